@@ -1,0 +1,127 @@
+"""An invented chain of corner shops, "Lantern Lane Grocers", and its weekly unit sales.
+
+Nothing here comes from real data: every number is drawn from the generator below. The
+scenario has what real sales tables have: products that differ in level, trend and
+seasonality; a winter-holiday bump; one shop closed for a week (missing values); and one
+data-entry slip (a spike a hundred times too large).
+
+>>> table = weekly_units(shops=2, products=3, years=2)
+>>> sorted(table.column_names)
+['product', 'shop', 'units', 'week']
+>>> table.num_rows
+624
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyarrow as pa
+
+WEEKS_PER_YEAR = 52
+PRODUCT_NAMES = (
+    "oat loaf",
+    "rye loaf",
+    "sea salt",
+    "plum jam",
+    "honey jar",
+    "cocoa tin",
+    "ginger beer",
+    "iced tea",
+    "lemonade",
+    "soup mix",
+    "porridge",
+    "tea lights",
+    "wrapping roll",
+    "sun cream",
+    "ice lolly",
+    "firewood",
+    "umbrella",
+    "hot cider",
+    "mince pie",
+    "pumpkin",
+)
+SHOP_NAMES = (
+    "Quayside",
+    "Millbrook",
+    "Old Market",
+    "Fenwick",
+    "Harbour End",
+    "Larch Hill",
+    "Saltmarsh",
+    "Tanners Row",
+    "Upper Green",
+    "Willowby",
+    "Cobble Cross",
+    "North Pier",
+)
+
+# Where in the year each product peaks (week number), and how seasonal it is (0..1).
+_PEAKS = np.array([10, 12, 30, 36, 44, 50, 28, 27, 29, 2, 4, 50, 50, 26, 29, 1, 46, 50, 51, 43])
+_STRENGTHS = np.array(
+    [
+        0.05,
+        0.05,
+        0.3,
+        0.2,
+        0.2,
+        0.5,
+        0.6,
+        0.7,
+        0.7,
+        0.5,
+        0.5,
+        0.6,
+        0.9,
+        0.9,
+        0.9,
+        0.9,
+        0.4,
+        0.8,
+        0.95,
+        0.8,
+    ]
+)
+
+CLOSED_SHOP = 3  # Fenwick closed for one week: its rows for that week carry no units
+CLOSED_WEEK = 70
+SLIP_SHOP, SLIP_PRODUCT, SLIP_WEEK = 5, 0, 120  # a value typed with an extra zero
+
+
+def weekly_units(shops: int = 12, products: int = 20, years: int = 4, seed: int = 7) -> pa.Table:
+    """Weekly units per shop and product: columns shop, product, week (0, 1, ...), units.
+
+    Units are NULL in the week the closed shop was shut; one row carries a data-entry slip.
+    """
+    rng = np.random.default_rng(seed)
+    weeks = WEEKS_PER_YEAR * years
+    t = np.arange(weeks)
+    shop_col, product_col, week_col, unit_col = [], [], [], []
+    for s in range(shops):
+        shop_size = rng.uniform(0.6, 1.8)
+        for p in range(products):
+            level = rng.uniform(20, 200) * shop_size
+            growth = rng.normal(0.002, 0.002)  # per week, on the log scale
+            phase = 2 * np.pi * (t - _PEAKS[p % len(_PEAKS)]) / WEEKS_PER_YEAR
+            strength = _STRENGTHS[p % len(_STRENGTHS)]
+            seasonal = np.exp(strength * np.cos(phase))
+            holiday = 1.0 + 0.35 * ((t % WEEKS_PER_YEAR) == 50)  # the week before the holiday
+            noise = np.exp(rng.normal(0.0, 0.06, weeks))
+            units = np.round(level * np.exp(growth * t) * seasonal * holiday * noise)
+            units = np.maximum(units, 1.0)
+            present = np.ones(weeks, dtype=bool)
+            if s == CLOSED_SHOP and weeks > CLOSED_WEEK:
+                present[CLOSED_WEEK] = False
+            if (s, p) == (SLIP_SHOP, SLIP_PRODUCT) and weeks > SLIP_WEEK:
+                units[SLIP_WEEK] *= 10
+            shop_col += [SHOP_NAMES[s % len(SHOP_NAMES)]] * weeks
+            product_col += [PRODUCT_NAMES[p % len(PRODUCT_NAMES)]] * weeks
+            week_col.append(t)
+            unit_col.append(np.where(present, units, np.nan))
+    return pa.table(
+        {
+            "shop": pa.array(shop_col),
+            "product": pa.array(product_col),
+            "week": pa.array(np.concatenate(week_col), type=pa.int64()),
+            "units": pa.array(np.concatenate(unit_col), from_pandas=True),
+        }
+    )

@@ -1,0 +1,287 @@
+"""A batch of series through checks, transform, kernel and back: the one path every front uses.
+
+Input is the flat layout of an Arrow list array (values plus offsets); output is the same
+layout. Fronts (Python API, DuckDB functions, CLI) only convert to and from it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import transform
+from .kernel import linear
+from .kernel.stl import COL_ACTIVE, N_SETTINGS, stl_batch_parallel, stl_batch_serial
+from .params import ON_ERROR, ParamError, SplitParams
+
+OK = "ok"
+
+
+class SplitError(ValueError):
+    """A series that cannot be split; the message names the series and the reason."""
+
+
+@dataclass
+class BatchResult:
+    """Components in the input's flat layout, plus one entry per series."""
+
+    offsets: np.ndarray
+    trend: np.ndarray
+    seasonal: np.ndarray
+    remainder: np.ndarray
+    adjusted: np.ndarray
+    weight: np.ndarray
+    lambdas: np.ndarray  # Box-Cox lambda used per series; NaN when not transformed
+    periods: np.ndarray  # period used per series; 0 where none could be resolved
+    status: list[str]  # "ok" or the reason the series was left unsplit
+
+    def series(self, i: int) -> slice:
+        return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
+
+
+def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
+    """How many ``True`` entries each segment of ``mask`` holds (empty segments give 0).
+
+    >>> segment_counts(np.array([True, False, True, True]), np.array([0, 1, 1, 4])).tolist()
+    [1, 0, 2]
+    """
+    running = np.concatenate(([0], np.cumsum(mask, dtype=np.int64)))
+    return running[offsets[1:]] - running[offsets[:-1]]
+
+
+def _first_in_segment(mask: np.ndarray, offsets: np.ndarray, s: int) -> int:
+    return int(offsets[s] + np.flatnonzero(mask[offsets[s] : offsets[s + 1]])[0])
+
+
+def _check_series(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    periods: np.ndarray,
+    needs_positive: np.ndarray,
+    transform_names: list[str],
+    status: list[str],
+    times: np.ndarray | None,
+    describe_time: Callable[[int], str] | None,
+) -> None:
+    """Write a reason into ``status`` for each series that cannot be split.
+
+    The checks run over the whole batch at once; only the failing series are visited one by
+    one, to word their reason.
+    """
+    lengths = np.diff(offsets)
+    checked = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
+    infinite = np.isinf(values)
+    missing = np.isnan(values)
+    nonpositive = (values <= 0.0) & np.repeat(needs_positive, lengths)  # NaN compares False
+    repeated = np.zeros(values.size, dtype=bool)
+    if times is not None and values.size > 1:
+        repeated[1:] = np.diff(times) == 0
+        starts = offsets[:-1][lengths > 0]
+        repeated[starts] = False  # no pairs across series
+    n_rep = segment_counts(repeated, offsets)
+    n_inf = segment_counts(infinite, offsets)
+    n_nonpos = segment_counts(nonpositive, offsets)
+    n_obs = lengths - segment_counts(missing, offsets)
+    too_short = lengths < 2 * periods
+
+    # Every position in the cycle needs an observed value somewhere in the series.
+    usable = checked & ~too_short
+    point_period = np.repeat(np.where(usable, periods, 1), lengths)
+    position = np.arange(values.size) - np.repeat(offsets[:-1], lengths)
+    base = np.concatenate(([0], np.cumsum(np.where(usable, periods, 1))))
+    slot = np.repeat(base[:-1], lengths) + position % point_period
+    seen = np.bincount(slot[~missing], minlength=base[-1]) > 0
+    uncovered = segment_counts(~seen, base) > 0
+
+    failing = checked & (
+        (n_rep > 0) | too_short | (n_inf > 0) | (n_nonpos > 0) | (n_obs == 0) | (usable & uncovered)
+    )
+    for s in np.flatnonzero(failing):
+        lo = int(offsets[s])
+        period = int(periods[s])
+        if n_rep[s]:
+            at = _first_in_segment(repeated, offsets, s)
+            shown = describe_time(int(times[at])) if describe_time else str(times[at])
+            status[s] = f"duplicate time {shown}"
+        elif too_short[s]:
+            status[s] = f"has {lengths[s]} points; at least two periods ({2 * period}) are needed"
+        elif n_inf[s]:
+            at = _first_in_segment(infinite, offsets, s)
+            status[s] = f"infinite value at position {at - lo}"
+        elif n_nonpos[s]:
+            at = _first_in_segment(nonpositive, offsets, s)
+            status[s] = (
+                f"value {values[at]:g} at position {at - lo} is not positive, "
+                f"which the {transform_names[s]} transform needs"
+            )
+        elif n_obs[s] == 0:
+            status[s] = "every value is missing"
+        else:
+            phase = int(np.flatnonzero(~seen[base[s] : base[s + 1]])[0])
+            status[s] = f"cycle position {phase} of {period} has no observed value"
+
+
+def _run_kernel(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    parallel: bool,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Trend, seasonal and weights of every active series (NaN elsewhere)."""
+    trend = np.full(y.size, np.nan)
+    seasonal = np.full(y.size, np.nan)
+    weight = np.full(y.size, np.nan)
+    lengths = np.diff(offsets)
+    complete = segment_counts(np.isnan(y), offsets) == 0
+    direct = settings.copy()
+    # The linear-map shortcut for groups of complete, non-robust, equal-length series.
+    candidates = np.flatnonzero((settings[:, COL_ACTIVE] == 1) & complete)
+    if candidates.size:
+        keys = np.column_stack((lengths[candidates], settings[candidates]))
+        unique, inverse = np.unique(keys, axis=0, return_inverse=True)
+        inverse = inverse.reshape(-1)
+        for g, key in enumerate(unique):
+            n, row = int(key[0]), key[1:]
+            members = candidates[inverse == g]
+            if not linear.eligible(n, row):
+                continue
+            if members.size < max(2, n // 4) and not linear.is_cached(n, row):
+                continue  # too few series to pay for building the matrices
+            index = offsets[members][:, None] + np.arange(n)
+            t_part, s_part = linear.apply(y[index], row)
+            trend[index] = t_part
+            seasonal[index] = s_part
+            weight[index] = 1.0
+            direct[members, COL_ACTIVE] = 0
+    if direct[:, COL_ACTIVE].any():
+        run = stl_batch_parallel if parallel else stl_batch_serial
+        run(y, offsets, direct, trend, seasonal, weight)
+    return trend, seasonal, weight
+
+
+def split_batch(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    params: SplitParams | Sequence[SplitParams],
+    groups: np.ndarray | None = None,
+    *,
+    label: Callable[[int], str] = lambda i: f"#{i}",
+    times: np.ndarray | None = None,
+    describe_time: Callable[[int], str] | None = None,
+    status: list[str] | None = None,
+    on_error: str = "raise",
+    parallel: bool = True,
+) -> BatchResult:
+    """Split every series of a flat batch.
+
+    Parameters
+    ----------
+    values : float64 array, NaN for missing values, all series end to end.
+    offsets : int64 array of ``n_series + 1`` boundaries into ``values``.
+    params : one parameter set for all series, or one per group (see ``groups``).
+    groups : index into ``params`` per series, when several parameter sets are given.
+    label : names series ``i`` in error messages (for example its key).
+    times : sorted int64 time codes in the same layout, to catch repeated times.
+    describe_time : turns a time code into readable text for messages.
+    status : reasons already known per series (``"ok"`` for none), from the front.
+    on_error : ``"raise"`` stops at the first bad series; ``"keep"`` leaves it unsplit
+        (NaN components) with the reason in ``status``.
+    parallel : spread series over numba's threads; pass False when the caller brings
+        its own threads (a database running UDF calls in parallel).
+
+    Examples
+    --------
+    >>> y = 10 + np.tile([1.0, -1.0, 2.0, -2.0], 6)
+    >>> out = split_batch(y, np.array([0, 24]), SplitParams(period=4))
+    >>> out.status, bool(np.allclose(out.trend + out.seasonal + out.remainder, y))
+    (['ok'], True)
+    """
+    if on_error not in ON_ERROR:
+        raise ParamError(f"on_error must be one of {', '.join(ON_ERROR)}, got {on_error!r}")
+    values = np.ascontiguousarray(values, dtype=np.float64)
+    offsets = np.ascontiguousarray(offsets, dtype=np.int64)
+    count = offsets.size - 1
+    if isinstance(params, SplitParams):
+        params = [params]
+        groups = None
+    if groups is None:
+        groups = np.zeros(count, dtype=np.int64)
+    status = [OK] * count if status is None else list(status)
+    settings = np.zeros((count, N_SETTINGS), dtype=np.int64)
+    lambdas = np.full(count, np.nan)
+    periods = np.zeros(count, dtype=np.int64)
+    transformed = np.zeros(count, dtype=bool)
+    auto_lambda = np.zeros(count, dtype=bool)
+
+    transform_names = ["none"] * count
+    for g, group_params in enumerate(params):
+        members = np.flatnonzero(groups == g)
+        if members.size == 0:
+            continue
+        try:
+            resolved = group_params.resolve()
+        except ParamError as exc:
+            for s in members:
+                if status[s] == OK:
+                    status[s] = str(exc)
+            continue
+        settings[members] = resolved.settings_row()
+        periods[members] = resolved.period
+        if resolved.transform != "none":
+            transformed[members] = True
+            for s in members:
+                transform_names[s] = resolved.transform
+            if resolved.boxcox_lambda is None:
+                auto_lambda[members] = True
+            else:
+                lambdas[members] = resolved.boxcox_lambda
+    _check_series(
+        values, offsets, periods, transformed, transform_names, status, times, describe_time
+    )
+
+    ok = np.array([s == OK for s in status], dtype=bool)
+    if auto_lambda.any():
+        chosen = transform.guerrero_lambdas(values, offsets, periods, auto_lambda & ok)
+        lambdas[auto_lambda] = chosen[auto_lambda]
+        for s in np.flatnonzero(auto_lambda & ok & np.isnan(lambdas)):
+            status[s] = "Box-Cox lambda cannot be chosen: fewer than two cycles with spread"
+            ok[s] = False
+
+    bad = np.flatnonzero(~ok)
+    if on_error == "raise" and bad.size:
+        first = int(bad[0])
+        more = f" (and {bad.size - 1} more series)" if bad.size > 1 else ""
+        raise SplitError(f"series {label(first)}: {status[first]}{more}")
+
+    settings[:, COL_ACTIVE] = ok
+    lengths = np.diff(offsets)
+    point_lambda = np.repeat(lambdas, lengths)
+    point_transformed = np.repeat(transformed & ok, lengths)
+    y = values.copy()
+    if point_transformed.any():
+        y[point_transformed] = transform.forward(
+            values[point_transformed], point_lambda[point_transformed]
+        )
+    trend, seasonal, weight = _run_kernel(y, offsets, settings, parallel)
+    remainder = y - trend - seasonal
+    adjusted = y - seasonal
+    if point_transformed.any():
+        adjusted[point_transformed] = transform.inverse(
+            adjusted[point_transformed], point_lambda[point_transformed]
+        )
+    missing = np.isnan(values)
+    weight[missing] = np.nan
+    lambdas[~ok] = np.nan
+    return BatchResult(
+        offsets=offsets,
+        trend=trend,
+        seasonal=seasonal,
+        remainder=remainder,
+        adjusted=adjusted,
+        weight=weight,
+        lambdas=lambdas,
+        periods=periods,
+        status=status,
+    )

@@ -1,0 +1,1 @@
+"""The numeric core: numba-compiled STL and helpers on flat arrays, nothing else imported."""

@@ -1,0 +1,303 @@
+"""The STL procedure of Cleveland, Cleveland, McRae & Terpenning (1990) on a batch of series.
+
+A batch is one flat float64 array of values and int64 offsets (series ``i`` is
+``values[offsets[i]:offsets[i + 1]]``), the layout of an Arrow list array, plus one row of
+integer settings per series (columns named by the ``COL_*`` constants). Missing values are
+NaN; they get zero weight in every loess fit, so trend and seasonal are defined everywhere.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import get_num_threads, njit, prange
+
+from .loess import FAR, NEAR, fit_at, smooth
+
+# Columns of the settings matrix, one row per series.
+COL_PERIOD = 0
+COL_SEASON_SPAN = 1  # 0 means an infinite span: a fixed seasonal pattern
+COL_TREND_SPAN = 2
+COL_LOWPASS_SPAN = 3
+COL_SEASON_DEGREE = 4
+COL_TREND_DEGREE = 5
+COL_LOWPASS_DEGREE = 6
+COL_SEASON_JUMP = 7
+COL_TREND_JUMP = 8
+COL_LOWPASS_JUMP = 9
+COL_INNER = 10
+COL_OUTER = 11
+COL_ACTIVE = 12  # 0: leave this series alone (outputs stay NaN)
+N_SETTINGS = 13
+
+
+@njit(nogil=True, cache=True)
+def _moving_average(x: np.ndarray, n: int, length: int, out: np.ndarray) -> None:
+    """Running mean of ``length`` points; writes ``n - length + 1`` values."""
+    total = 0.0
+    for i in range(length):
+        total += x[i]
+    out[0] = total / length
+    for j in range(1, n - length + 1):
+        total = total - x[j - 1] + x[j + length - 1]
+        out[j] = total / length
+
+
+@njit(nogil=True, cache=True)
+def _subseries_smooth(
+    detrended: np.ndarray,
+    pw: np.ndarray,
+    n: int,
+    period: int,
+    span: int,
+    degree: int,
+    jump: int,
+    cycle: np.ndarray,
+    sub_y: np.ndarray,
+    sub_w: np.ndarray,
+    sub_fit: np.ndarray,
+    scratch: np.ndarray,
+) -> None:
+    """Cycle-subseries smoothing (paper, step 2), one point beyond each end of each subseries.
+
+    ``cycle`` receives ``n + 2 * period`` values: position ``i`` of the padded series is
+    time ``i - period``.
+    """
+    for phase in range(period):
+        k = (n - phase - 1) // period + 1
+        for m in range(k):
+            sub_y[m] = detrended[m * period + phase]
+            sub_w[m] = pw[m * period + phase]
+        if span == 0:
+            # Infinite span: the (weighted) mean of the subseries at every position, the
+            # limit of the loess fit as the span grows, so the pattern repeats exactly.
+            total = 0.0
+            weight = 0.0
+            for m in range(k):
+                if sub_w[m] > 0.0:
+                    total += sub_w[m] * sub_y[m]
+                    weight += sub_w[m]
+            if weight <= 0.0:
+                # every point down-weighted to zero: fall back to the plain mean
+                count = 0
+                for m in range(k):
+                    if not math.isnan(sub_y[m]):
+                        total += sub_y[m]
+                        count += 1
+                weight = max(count, 1)
+            level = total / weight
+            for m in range(k + 2):
+                sub_fit[m] = level
+        else:
+            smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:], scratch)
+            value, ok = fit_at(sub_y, sub_w, k, span, degree, -1.0, 0, min(span, k) - 1, scratch)
+            sub_fit[0] = value if ok else sub_fit[1]
+            value, ok = fit_at(
+                sub_y, sub_w, k, span, degree, float(k), max(0, k - span), k - 1, scratch
+            )
+            sub_fit[k + 1] = value if ok else sub_fit[k]
+        for m in range(k + 2):
+            cycle[m * period + phase] = sub_fit[m]
+
+
+@njit(nogil=True, cache=True)
+def _robustness_weights(
+    y: np.ndarray, fit: np.ndarray, n: int, rw: np.ndarray, absres: np.ndarray
+) -> None:
+    """Bisquare of |remainder| / (6 * median |remainder|) (paper, section 2.4).
+
+    Missing points get weight 0; the median is over the observed points.
+    """
+    count = 0
+    for i in range(n):
+        if not math.isnan(y[i]):
+            absres[count] = abs(y[i] - fit[i])
+            count += 1
+    if count == 0:
+        return
+    scale = 6.0 * np.median(absres[:count])
+    near = NEAR * scale
+    far = FAR * scale
+    for i in range(n):
+        if math.isnan(y[i]):
+            rw[i] = 0.0
+            continue
+        r = abs(y[i] - fit[i])
+        if r <= near:
+            rw[i] = 1.0
+        elif r <= far:
+            q = r / scale
+            q = 1.0 - q * q
+            rw[i] = q * q
+        else:
+            rw[i] = 0.0
+
+
+@njit(nogil=True, cache=True)
+def buffer_size(n: int, period: int) -> int:
+    """Scratch values that ``_stl_one`` needs for a series of ``n`` points."""
+    return 7 * (n + 2 * period + 2) + 3 * (n // period + 3)
+
+
+@njit(nogil=True, cache=True)
+def _stl_one(
+    y: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+    buf: np.ndarray,
+) -> None:
+    """STL of one series ``y`` (NaN = missing) into ``trend``, ``seasonal`` and ``weight``.
+
+    ``buf`` is scratch of at least ``buffer_size(n, period)`` values, reused across series.
+    """
+    n = y.shape[0]
+    period = settings[COL_PERIOD]
+    season_span = settings[COL_SEASON_SPAN]
+    trend_span = settings[COL_TREND_SPAN]
+    lowpass_span = settings[COL_LOWPASS_SPAN]
+    inner = settings[COL_INNER]
+    outer = settings[COL_OUTER]
+    width = n + 2 * period + 2
+    detrended = buf[0:width]
+    cycle = buf[width : 2 * width]
+    smoothed = buf[2 * width : 3 * width]
+    lowpass = buf[3 * width : 4 * width]
+    pw = buf[4 * width : 5 * width]
+    ones = buf[5 * width : 6 * width]
+    scratch = buf[6 * width : 7 * width]
+    kmax = n // period + 3
+    sub_y = buf[7 * width : 7 * width + kmax]
+    sub_w = buf[7 * width + kmax : 7 * width + 2 * kmax]
+    sub_fit = buf[7 * width + 2 * kmax : 7 * width + 3 * kmax]
+
+    for i in range(n):
+        pw[i] = 0.0 if math.isnan(y[i]) else 1.0
+        trend[i] = 0.0
+        weight[i] = pw[i]
+    for i in range(width):
+        ones[i] = 1.0
+
+    passes = 0
+    while True:
+        for _ in range(inner):
+            for i in range(n):
+                detrended[i] = y[i] - trend[i]
+            _subseries_smooth(
+                detrended,
+                pw,
+                n,
+                period,
+                season_span,
+                settings[COL_SEASON_DEGREE],
+                settings[COL_SEASON_JUMP],
+                cycle,
+                sub_y,
+                sub_w,
+                sub_fit,
+                scratch,
+            )
+            # Low-pass filter of the cycle-subseries (paper, step 3): moving averages of
+            # length period, period and 3, then a loess fit.
+            _moving_average(cycle, n + 2 * period, period, smoothed)
+            _moving_average(smoothed, n + period + 1, period, lowpass)
+            _moving_average(lowpass, n + 2, 3, smoothed)
+            smooth(
+                smoothed,
+                ones,
+                n,
+                lowpass_span,
+                settings[COL_LOWPASS_DEGREE],
+                settings[COL_LOWPASS_JUMP],
+                lowpass,
+                scratch,
+            )
+            for i in range(n):
+                seasonal[i] = cycle[period + i] - lowpass[i]
+                detrended[i] = y[i] - seasonal[i]
+            smooth(
+                detrended,
+                pw,
+                n,
+                trend_span,
+                settings[COL_TREND_DEGREE],
+                settings[COL_TREND_JUMP],
+                trend,
+                scratch,
+            )
+        passes += 1
+        if passes > outer:
+            break
+        for i in range(n):
+            detrended[i] = trend[i] + seasonal[i]
+        _robustness_weights(y, detrended, n, pw, scratch)
+        for i in range(n):
+            weight[i] = pw[i]
+
+
+@njit(nogil=True, cache=True)
+def _stl_range(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    first: int,
+    stop: int,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+) -> None:
+    """Series ``first .. stop-1`` of the batch, one scratch buffer for all of them."""
+    need = 0
+    for s in range(first, stop):
+        if settings[s, COL_ACTIVE]:
+            n = offsets[s + 1] - offsets[s]
+            need = max(need, buffer_size(n, settings[s, COL_PERIOD]))
+    buf = np.empty(need)
+    for s in range(first, stop):
+        if not settings[s, COL_ACTIVE]:
+            continue
+        lo = offsets[s]
+        hi = offsets[s + 1]
+        _stl_one(values[lo:hi], settings[s], trend[lo:hi], seasonal[lo:hi], weight[lo:hi], buf)
+
+
+@njit(nogil=True, cache=True)
+def stl_batch_serial(values, offsets, settings, trend, seasonal, weight):
+    """STL over every active series of the batch on the calling thread (no numba threads).
+
+    For callers that bring their own threads, such as a database running UDF calls in
+    parallel; the GIL is released throughout.
+    """
+    _stl_range(values, offsets, settings, 0, offsets.shape[0] - 1, trend, seasonal, weight)
+
+
+@njit(nogil=True, parallel=True, cache=True)
+def _stl_batch_parallel(values, offsets, settings, trend, seasonal, weight, chunks):
+    count = offsets.shape[0] - 1
+    for c in prange(chunks):
+        _stl_range(
+            values,
+            offsets,
+            settings,
+            c * count // chunks,
+            (c + 1) * count // chunks,
+            trend,
+            seasonal,
+            weight,
+        )
+
+
+def stl_batch_parallel(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+) -> None:
+    """STL over every active series of the batch, spread over numba's threads."""
+    count = offsets.shape[0] - 1
+    chunks = max(1, min(count, 4 * get_num_threads()))
+    _stl_batch_parallel(values, offsets, settings, trend, seasonal, weight, chunks)

@@ -1,0 +1,262 @@
+"""One validated parameter set for a split, and the published default rules.
+
+Every default that depends on another setting is computed here and nowhere else.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, fields, replace
+from typing import Any
+
+import numpy as np
+
+from .kernel import stl as _k
+
+TRANSFORMS = ("none", "log", "boxcox")
+ON_ERROR = ("raise", "keep")
+
+# Common practice (the paper asks only for an odd number of at least 7).
+DEFAULT_SEASON_SPAN = 13
+
+
+class ParamError(ValueError):
+    """A parameter that no series could be split with."""
+
+
+def smallest_odd_at_least(x: float) -> int:
+    """The smallest odd integer >= ``x``.
+
+    >>> smallest_odd_at_least(20.35), smallest_odd_at_least(12)
+    (21, 13)
+    """
+    k = math.ceil(x - 1e-9)
+    return k if k % 2 == 1 else k + 1
+
+
+def default_trend_span(period: int, season_span: int) -> int:
+    """Cleveland et al. (1990), section 3: smallest odd >= 1.5 p / (1 - 1.5 / n_s).
+
+    A season span of 0 (infinite) gives 1.5 p.
+
+    >>> default_trend_span(12, 13)
+    21
+    """
+    shrink = 0.0 if season_span == 0 else 1.5 / season_span
+    return smallest_odd_at_least(1.5 * period / (1.0 - shrink))
+
+
+def default_lowpass_span(period: int) -> int:
+    """Cleveland et al. (1990), section 3: the smallest odd integer >= the period.
+
+    >>> default_lowpass_span(12)
+    13
+    """
+    return smallest_odd_at_least(period)
+
+
+def default_jump(span: int) -> int:
+    """About a tenth of the span, at least 1 (Cleveland et al. 1990, section 3, from memory;
+    the same rule as the reference routines' ``int(span / 10 + 0.9)``).
+
+    >>> default_jump(13), default_jump(21), default_jump(7)
+    (2, 3, 1)
+    """
+    return max(1, int(span / 10 + 0.9))
+
+
+def default_loops(robust: bool) -> tuple[int, int]:
+    """(inner, outer) loop counts: the paper's advice (section 3, from memory) is two inner
+    passes without robustness, one inner pass per robustness pass with it, and a handful of
+    robustness passes (we take 10, its figure for near-certain convergence)."""
+    return (1, 10) if robust else (2, 0)
+
+
+def _as_int(name: str, value: Any) -> int | None:
+    if value is None:
+        return None
+    if isinstance(value, bool):
+        raise ParamError(f"{name} must be an integer, got {value!r}")
+    try:
+        as_float = float(value)
+    except (TypeError, ValueError):
+        raise ParamError(f"{name} must be an integer, got {value!r}") from None
+    if not math.isfinite(as_float) or as_float != int(as_float):
+        raise ParamError(f"{name} must be an integer, got {value!r}")
+    return int(as_float)
+
+
+@dataclass(frozen=True)
+class SplitParams:
+    """Settings of one split; ``None`` means "use the published default".
+
+    >>> SplitParams(period=12).resolve().trend_span
+    21
+    """
+
+    period: int | None = None
+    season_span: int | None = None
+    trend_span: int | None = None
+    lowpass_span: int | None = None
+    season_degree: int | None = None
+    trend_degree: int | None = None
+    lowpass_degree: int | None = None
+    season_jump: int | None = None
+    trend_jump: int | None = None
+    lowpass_jump: int | None = None
+    robust: bool = False
+    inner_loops: int | None = None
+    outer_loops: int | None = None
+    transform: str = "none"
+    boxcox_lambda: float | None = None
+
+    @classmethod
+    def from_kwargs(cls, **kwargs: Any) -> SplitParams:
+        """Build from keyword arguments, rejecting unknown names.
+
+        >>> SplitParams.from_kwargs(period=7, robust=True).robust
+        True
+        """
+        known = {f.name for f in fields(cls)}
+        unknown = sorted(set(kwargs) - known)
+        if unknown:
+            raise ParamError(
+                f"unknown argument(s) {', '.join(unknown)}; known: {', '.join(sorted(known))}"
+            )
+        return cls(**kwargs)
+
+    def with_period(self, period: int) -> SplitParams:
+        return replace(self, period=period)
+
+    def resolve(self) -> ResolvedParams:
+        """Check every setting and fill in the defaults; raises ``ParamError``."""
+        period = _as_int("period", self.period)
+        if period is None:
+            raise ParamError("period is required")
+        if period < 2:
+            raise ParamError(f"period must be at least 2, got {period}")
+        season_span = _as_int("season_span", self.season_span)
+        if season_span is None:
+            season_span = DEFAULT_SEASON_SPAN
+        if season_span != 0:
+            _check_span("season_span", season_span)
+        trend_span = _as_int("trend_span", self.trend_span)
+        trend_span = default_trend_span(period, season_span) if trend_span is None else trend_span
+        _check_span("trend_span", trend_span)
+        lowpass_span = _as_int("lowpass_span", self.lowpass_span)
+        lowpass_span = default_lowpass_span(period) if lowpass_span is None else lowpass_span
+        _check_span("lowpass_span", lowpass_span)
+
+        degrees = []
+        for name in ("season_degree", "trend_degree", "lowpass_degree"):
+            degree = _as_int(name, getattr(self, name))
+            degree = 1 if degree is None else degree
+            if degree not in (0, 1):
+                raise ParamError(f"{name} must be 0 or 1, got {degree}")
+            degrees.append(degree)
+
+        jumps = []
+        for name, span in (
+            ("season_jump", season_span),
+            ("trend_jump", trend_span),
+            ("lowpass_jump", lowpass_span),
+        ):
+            jump = _as_int(name, getattr(self, name))
+            jump = default_jump(span) if jump is None else jump
+            if jump < 1:
+                raise ParamError(f"{name} must be at least 1, got {jump}")
+            jumps.append(jump)
+
+        if not isinstance(self.robust, (bool, np.bool_)):
+            raise ParamError(f"robust must be true or false, got {self.robust!r}")
+        robust = bool(self.robust)
+        inner_default, outer_default = default_loops(robust)
+        inner = _as_int("inner_loops", self.inner_loops)
+        inner = inner_default if inner is None else inner
+        if inner < 1:
+            raise ParamError(f"inner_loops must be at least 1, got {inner}")
+        outer = _as_int("outer_loops", self.outer_loops)
+        outer = outer_default if outer is None else outer
+        if outer < 0:
+            raise ParamError(f"outer_loops must be at least 0, got {outer}")
+        if not robust:
+            outer = 0
+
+        transform = "none" if self.transform is None else str(self.transform).lower()
+        if transform not in TRANSFORMS:
+            raise ParamError(
+                f"transform must be one of {', '.join(TRANSFORMS)}, got {self.transform!r}"
+            )
+        lam = self.boxcox_lambda
+        if lam is not None:
+            lam = float(lam)
+            if not math.isfinite(lam):
+                raise ParamError(f"boxcox_lambda must be finite, got {self.boxcox_lambda!r}")
+        if transform == "log":
+            lam = 0.0
+        elif transform == "none":
+            lam = None
+        return ResolvedParams(
+            period=period,
+            season_span=season_span,
+            trend_span=trend_span,
+            lowpass_span=lowpass_span,
+            season_degree=degrees[0],
+            trend_degree=degrees[1],
+            lowpass_degree=degrees[2],
+            season_jump=jumps[0],
+            trend_jump=jumps[1],
+            lowpass_jump=jumps[2],
+            robust=robust,
+            inner_loops=inner,
+            outer_loops=outer,
+            transform=transform,
+            boxcox_lambda=lam,
+        )
+
+
+def _check_span(name: str, span: int) -> None:
+    if span < 3 or span % 2 == 0:
+        raise ParamError(f"{name} must be an odd integer of at least 3, got {span}")
+
+
+@dataclass(frozen=True)
+class ResolvedParams:
+    """Every setting filled in and checked; what the kernel runs with."""
+
+    period: int
+    season_span: int
+    trend_span: int
+    lowpass_span: int
+    season_degree: int
+    trend_degree: int
+    lowpass_degree: int
+    season_jump: int
+    trend_jump: int
+    lowpass_jump: int
+    robust: bool
+    inner_loops: int
+    outer_loops: int
+    transform: str
+    boxcox_lambda: float | None  # None with boxcox: chosen per series (Guerrero 1993)
+
+    def settings_row(self) -> np.ndarray:
+        """The kernel's integer settings row for this parameter set."""
+        row = np.zeros(_k.N_SETTINGS, dtype=np.int64)
+        row[_k.COL_PERIOD] = self.period
+        row[_k.COL_SEASON_SPAN] = self.season_span
+        row[_k.COL_TREND_SPAN] = self.trend_span
+        row[_k.COL_LOWPASS_SPAN] = self.lowpass_span
+        row[_k.COL_SEASON_DEGREE] = self.season_degree
+        row[_k.COL_TREND_DEGREE] = self.trend_degree
+        row[_k.COL_LOWPASS_DEGREE] = self.lowpass_degree
+        row[_k.COL_SEASON_JUMP] = self.season_jump
+        row[_k.COL_TREND_JUMP] = self.trend_jump
+        row[_k.COL_LOWPASS_JUMP] = self.lowpass_jump
+        row[_k.COL_INNER] = self.inner_loops
+        row[_k.COL_OUTER] = self.outer_loops
+        row[_k.COL_ACTIVE] = 1
+        return row
+
+    def as_dict(self) -> dict[str, Any]:
+        return asdict(self)

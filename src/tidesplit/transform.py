@@ -1,0 +1,59 @@
+"""Log and Box-Cox transforms, their inverses, and Guerrero's automatic lambda.
+
+Box-Cox: ``(y ** lam - 1) / lam``, and ``log(y)`` at ``lam == 0`` (Box & Cox 1964). We use
+scipy's ufuncs for the formula and its inverse rather than writing them again.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.special import boxcox as _boxcox
+from scipy.special import inv_boxcox as _inv_boxcox
+
+from .kernel.guerrero import guerrero_batch
+
+
+def forward(values: np.ndarray, lambdas: np.ndarray) -> np.ndarray:
+    """Box-Cox of each value with its own lambda (NaN stays NaN; lambda 0 is the log).
+
+    >>> forward(np.array([1.0, np.e]), np.array([0.0, 0.0])).round(6).tolist()
+    [0.0, 1.0]
+    """
+    return _boxcox(values, lambdas)
+
+
+def inverse(values: np.ndarray, lambdas: np.ndarray) -> np.ndarray:
+    """Back from the Box-Cox scale.
+
+    >>> inverse(forward(np.array([2.0, 5.0]), np.array([0.5, 0.5])), np.array([0.5, 0.5])).tolist()
+    [2.0, 5.0]
+    """
+    return _inv_boxcox(values, lambdas)
+
+
+def guerrero_lambda(values: np.ndarray, period: int) -> float:
+    """Guerrero's (1993) lambda in [-1, 2] for one positive series; NaN if it cannot be chosen.
+
+    >>> y = np.exp(np.linspace(0, 3, 48)) * (1.2 + np.sin(np.arange(48) * np.pi / 6)) * 10
+    >>> -1.0 <= guerrero_lambda(y, 12) <= 2.0
+    True
+    """
+    y = np.ascontiguousarray(values, dtype=np.float64)
+    out = np.empty(1)
+    guerrero_batch(
+        y,
+        np.array([0, y.size], dtype=np.int64),
+        np.array([period], dtype=np.int64),
+        np.ones(1, dtype=np.bool_),
+        out,
+    )
+    return float(out[0])
+
+
+def guerrero_lambdas(
+    values: np.ndarray, offsets: np.ndarray, periods: np.ndarray, active: np.ndarray
+) -> np.ndarray:
+    """Guerrero's lambda for every active series of a batch (NaN for the others)."""
+    out = np.empty(offsets.size - 1)
+    guerrero_batch(values, offsets, periods, active, out)
+    return out
