@@ -44,8 +44,8 @@ def __getattr__(name: str) -> Any:
 def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnection:
     """A DuckDB connection with every ``tide_*`` function registered.
 
-    >>> connect().sql("SELECT 2").fetchone()
-    (2,)
+    >>> connect().sql("SELECT 2").fetchall()
+    [(2,)]
     """
     from .duckdb_ext import connect as _connect
 
@@ -56,8 +56,8 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     """Register the ``tide_*`` functions on an existing DuckDB connection (idempotent).
 
     >>> import duckdb
-    >>> register(duckdb.connect()).sql("SELECT 3").fetchone()
-    (3,)
+    >>> register(duckdb.connect()).sql("SELECT 3").fetchall()
+    [(3,)]
     """
     from .duckdb_ext import register as _register
 

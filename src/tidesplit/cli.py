@@ -84,6 +84,9 @@ def run_demo(database: str | None, shops: int, products: int, years: int) -> Non
     print(f"\nTables weekly_units and weekly_split are in {where}.")
 
 
+COMMANDS = ("demo",)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tidesplit`` command."""
     parser = argparse.ArgumentParser(

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import transform
-from .kernel import linear
+from .kernel import checks, linear
 from .kernel.stl import COL_ACTIVE, N_SETTINGS, stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ParamError, SplitParams
 
@@ -51,76 +51,72 @@ def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     return running[offsets[1:]] - running[offsets[:-1]]
 
 
-def _first_in_segment(mask: np.ndarray, offsets: np.ndarray, s: int) -> int:
-    return int(offsets[s] + np.flatnonzero(mask[offsets[s] : offsets[s + 1]])[0])
-
-
 def _check_series(
     values: np.ndarray,
     offsets: np.ndarray,
     periods: np.ndarray,
     needs_positive: np.ndarray,
-    transform_names: list[str],
+    transform_names: dict[int, str],
     status: list[str],
     times: np.ndarray | None,
     describe_time: Callable[[int], str] | None,
 ) -> None:
     """Write a reason into ``status`` for each series that cannot be split.
 
-    The checks run over the whole batch at once; only the failing series are visited one by
-    one, to word their reason.
+    One compiled pass finds the failing series; only those are visited here, to word it.
     """
-    lengths = np.diff(offsets)
-    checked = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
-    infinite = np.isinf(values)
-    missing = np.isnan(values)
-    nonpositive = (values <= 0.0) & np.repeat(needs_positive, lengths)  # NaN compares False
-    repeated = np.zeros(values.size, dtype=bool)
-    if times is not None and values.size > 1:
-        repeated[1:] = np.diff(times) == 0
-        starts = offsets[:-1][lengths > 0]
-        repeated[starts] = False  # no pairs across series
-    n_rep = segment_counts(repeated, offsets)
-    n_inf = segment_counts(infinite, offsets)
-    n_nonpos = segment_counts(nonpositive, offsets)
-    n_obs = lengths - segment_counts(missing, offsets)
-    too_short = lengths < 2 * periods
-
-    # Every position in the cycle needs an observed value somewhere in the series.
-    usable = checked & ~too_short
-    point_period = np.repeat(np.where(usable, periods, 1), lengths)
-    position = np.arange(values.size) - np.repeat(offsets[:-1], lengths)
-    base = np.concatenate(([0], np.cumsum(np.where(usable, periods, 1))))
-    slot = np.repeat(base[:-1], lengths) + position % point_period
-    seen = np.bincount(slot[~missing], minlength=base[-1]) > 0
-    uncovered = segment_counts(~seen, base) > 0
-
-    failing = checked & (
-        (n_rep > 0) | too_short | (n_inf > 0) | (n_nonpos > 0) | (n_obs == 0) | (usable & uncovered)
-    )
-    for s in np.flatnonzero(failing):
-        lo = int(offsets[s])
-        period = int(periods[s])
-        if n_rep[s]:
-            at = _first_in_segment(repeated, offsets, s)
-            shown = describe_time(int(times[at])) if describe_time else str(times[at])
+    count = offsets.size - 1
+    todo = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
+    code = np.empty(count, dtype=np.int64)
+    where = np.empty(count, dtype=np.int64)
+    time_codes = np.empty(0, dtype=np.int64) if times is None else times
+    checks.scan_batch(values, offsets, time_codes, periods, needs_positive, todo, code, where)
+    for s in np.flatnonzero(code != checks.FINE):
+        lo, n, period, at = int(offsets[s]), int(offsets[s + 1] - offsets[s]), periods[s], where[s]
+        if code[s] == checks.REPEATED_TIME:
+            shown = describe_time(int(times[lo + at])) if describe_time else str(times[lo + at])
             status[s] = f"duplicate time {shown}"
-        elif too_short[s]:
-            status[s] = f"has {lengths[s]} points; at least two periods ({2 * period}) are needed"
-        elif n_inf[s]:
-            at = _first_in_segment(infinite, offsets, s)
-            status[s] = f"infinite value at position {at - lo}"
-        elif n_nonpos[s]:
-            at = _first_in_segment(nonpositive, offsets, s)
+        elif code[s] == checks.TOO_SHORT:
+            status[s] = f"has {n} points; at least two periods ({2 * period}) are needed"
+        elif code[s] == checks.INFINITE:
+            status[s] = f"infinite value at position {at}"
+        elif code[s] == checks.NOT_POSITIVE:
             status[s] = (
-                f"value {values[at]:g} at position {at - lo} is not positive, "
+                f"value {values[lo + at]:g} at position {at} is not positive, "
                 f"which the {transform_names[s]} transform needs"
             )
-        elif n_obs[s] == 0:
+        elif code[s] == checks.ALL_MISSING:
             status[s] = "every value is missing"
         else:
-            phase = int(np.flatnonzero(~seen[base[s] : base[s + 1]])[0])
-            status[s] = f"cycle position {phase} of {period} has no observed value"
+            status[s] = f"cycle position {at} of {period} has no observed value"
+
+
+def _equal_shape_groups(
+    members: np.ndarray, lengths: np.ndarray, settings: np.ndarray
+) -> list[tuple[np.ndarray, int, np.ndarray]]:
+    """Split ``members`` into groups of one length and one settings row."""
+    if members.size == 0:
+        return []
+    rows = settings[members]
+    if (rows == rows[0]).all():
+        setting_ids = np.zeros(members.size, dtype=np.int64)
+        distinct_rows = rows[:1]
+    else:
+        distinct_rows, setting_ids = np.unique(rows, axis=0, return_inverse=True)
+        setting_ids = setting_ids.reshape(-1)
+    distinct_lengths, length_ids = np.unique(lengths[members], return_inverse=True)
+    combined = setting_ids * distinct_lengths.size + length_ids
+    groups = []
+    for key in np.unique(combined):
+        chosen = members[combined == key]
+        groups.append(
+            (
+                chosen,
+                int(distinct_lengths[key % distinct_lengths.size]),
+                distinct_rows[key // distinct_lengths.size],
+            )
+        )
+    return groups
 
 
 def _run_kernel(
@@ -138,23 +134,26 @@ def _run_kernel(
     direct = settings.copy()
     # The linear-map shortcut for groups of complete, non-robust, equal-length series.
     candidates = np.flatnonzero((settings[:, COL_ACTIVE] == 1) & complete)
-    if candidates.size:
-        keys = np.column_stack((lengths[candidates], settings[candidates]))
-        unique, inverse = np.unique(keys, axis=0, return_inverse=True)
-        inverse = inverse.reshape(-1)
-        for g, key in enumerate(unique):
-            n, row = int(key[0]), key[1:]
-            members = candidates[inverse == g]
-            if not linear.eligible(n, row):
-                continue
-            if members.size < max(2, n // 4) and not linear.is_cached(n, row):
-                continue  # too few series to pay for building the matrices
+    for members, n, row in _equal_shape_groups(candidates, lengths, settings):
+        if not linear.eligible(n, row):
+            continue
+        if members.size < max(2, n // 4) and not linear.is_cached(n, row):
+            continue  # too few series to pay for building the matrices
+        if members.size == (members[-1] - members[0] + 1):
+            # consecutive series of one length: a reshaped view, no gather
+            lo = offsets[members[0]]
+            block = y[lo : lo + members.size * n].reshape(members.size, n)
+            t_part, s_part = linear.apply(block, row)
+            trend[lo : lo + members.size * n] = t_part.ravel()
+            seasonal[lo : lo + members.size * n] = s_part.ravel()
+            weight[lo : lo + members.size * n] = 1.0
+        else:
             index = offsets[members][:, None] + np.arange(n)
             t_part, s_part = linear.apply(y[index], row)
             trend[index] = t_part
             seasonal[index] = s_part
             weight[index] = 1.0
-            direct[members, COL_ACTIVE] = 0
+        direct[members, COL_ACTIVE] = 0
     if direct[:, COL_ACTIVE].any():
         run = stl_batch_parallel if parallel else stl_batch_serial
         run(y, offsets, direct, trend, seasonal, weight)
@@ -215,7 +214,7 @@ def split_batch(
     transformed = np.zeros(count, dtype=bool)
     auto_lambda = np.zeros(count, dtype=bool)
 
-    transform_names = ["none"] * count
+    transform_names: dict[int, str] = {}
     for g, group_params in enumerate(params):
         members = np.flatnonzero(groups == g)
         if members.size == 0:
@@ -231,8 +230,7 @@ def split_batch(
         periods[members] = resolved.period
         if resolved.transform != "none":
             transformed[members] = True
-            for s in members:
-                transform_names[s] = resolved.transform
+            transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
             if resolved.boxcox_lambda is None:
                 auto_lambda[members] = True
             else:

@@ -221,7 +221,7 @@ def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnec
     """A DuckDB connection (in memory unless ``database`` names a file) with tidesplit registered.
 
     >>> con = connect()
-    >>> con.sql("SELECT 1").fetchone()
-    (1,)
+    >>> con.sql("SELECT 1").fetchall()
+    [(1,)]
     """
     return register(duckdb.connect(database if database is not None else ":memory:", **kwargs))

@@ -85,7 +85,13 @@ def _minimise(means: np.ndarray, sds: np.ndarray, count: int) -> float:
 
 
 @njit(nogil=True, parallel=True, cache=True)
-def guerrero_batch(values, offsets, periods, active, out):
+def guerrero_batch(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    periods: np.ndarray,
+    active: np.ndarray,
+    out: np.ndarray,
+) -> None:
     """Lambda per active series into ``out``; NaN with fewer than two blocks or no spread."""
     for s in prange(offsets.shape[0] - 1):
         out[s] = np.nan

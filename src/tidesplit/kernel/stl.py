@@ -264,7 +264,14 @@ def _stl_range(
 
 
 @njit(nogil=True, cache=True)
-def stl_batch_serial(values, offsets, settings, trend, seasonal, weight):
+def stl_batch_serial(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+) -> None:
     """STL over every active series of the batch on the calling thread (no numba threads).
 
     For callers that bring their own threads, such as a database running UDF calls in
@@ -274,7 +281,15 @@ def stl_batch_serial(values, offsets, settings, trend, seasonal, weight):
 
 
 @njit(nogil=True, parallel=True, cache=True)
-def _stl_batch_parallel(values, offsets, settings, trend, seasonal, weight, chunks):
+def _stl_batch_parallel(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+    chunks: int,
+) -> None:
     count = offsets.shape[0] - 1
     for c in prange(chunks):
         _stl_range(

@@ -1,0 +1,92 @@
+"""The package as a whole: docstring examples run, the import stays light, every SQL
+function and command is documented."""
+
+from __future__ import annotations
+
+import doctest
+import importlib
+import pkgutil
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+import tidesplit
+
+README = Path(__file__).resolve().parents[1] / "README.md"
+MODULES = sorted(
+    {"tidesplit"}
+    | {
+        f"tidesplit.{info.name}"
+        for info in pkgutil.walk_packages(tidesplit.__path__)
+        if not info.name.startswith("_")
+    }
+)
+
+
+@pytest.mark.parametrize("name", MODULES)
+def test_docstring_examples(name):
+    module = importlib.import_module(name)
+    failures, _ = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
+    assert failures == 0
+
+
+def test_public_functions_have_examples():
+    for name in tidesplit.__all__:
+        obj = getattr(tidesplit, name)
+        assert obj.__doc__, name
+        if callable(obj) and not isinstance(obj, type):
+            assert ">>>" in obj.__doc__, f"{name} has no example"
+
+
+def test_import_is_light():
+    code = (
+        "import sys, tidesplit; "
+        "print(sorted(m for m in ('duckdb', 'pandas', 'pyarrow', 'matplotlib', 'pyspark') "
+        "if m in sys.modules))"
+    )
+    loaded = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout.strip()
+    assert loaded == "[]"
+
+
+def sql_functions(con) -> set[str]:
+    rows = con.sql(
+        "SELECT DISTINCT function_name FROM duckdb_functions() "
+        "WHERE function_name LIKE 'tide\\_%' ESCAPE '\\'"
+    ).fetchall()
+    return {r[0] for r in rows}
+
+
+def test_every_sql_function_is_documented(con):
+    names = sql_functions(con)
+    assert {"tide_split", "tide_split_list"} <= names
+    text = README.read_text()
+    for name in names:
+        assert re.search(rf"`{name}\(", text), f"{name} missing from README"
+
+
+def test_every_command_has_help_and_docs():
+    from tidesplit import cli
+
+    text = README.read_text()
+    for command in cli.COMMANDS:
+        result = subprocess.run(
+            [sys.executable, "-m", "tidesplit.cli", command, "--help"],
+            capture_output=True,
+            text=True,
+            check=True,
+        )
+        assert "usage" in result.stdout
+        assert f"tidesplit {command}" in text
+
+
+def test_every_argument_is_documented():
+    from tidesplit.duckdb_ext import SPLIT_ARGS
+
+    text = README.read_text()
+    for name in ("period", *(n for n, _ in SPLIT_ARGS)):
+        assert f"`{name}`" in text, f"argument {name} missing from README"
