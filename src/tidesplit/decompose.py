@@ -13,8 +13,9 @@ import numpy as np
 
 from . import transform
 from .kernel import checks, linear
-from .kernel.stl import COL_ACTIVE, N_SETTINGS, stl_batch_parallel, stl_batch_serial
-from .params import ON_ERROR, ParamError, SplitParams
+from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
+from .kernel.stl import COL_ACTIVE, COL_PERIOD, N_SETTINGS, stl_batch_parallel, stl_batch_serial
+from .params import ON_ERROR, ParamError, ResolvedParams, SplitParams
 
 OK = "ok"
 
@@ -34,8 +35,12 @@ class BatchResult:
     adjusted: np.ndarray
     weight: np.ndarray
     lambdas: np.ndarray  # Box-Cox lambda used per series; NaN when not transformed
-    periods: np.ndarray  # period used per series; 0 where none could be resolved
+    periods: np.ndarray  # (shortest) period used per series; 0 where none was resolved
     status: list[str]  # "ok" or the reason the series was left unsplit
+    # With several periods (MSTL): the periods kept per series, and one seasonal part per
+    # period (row k of seasonal_parts belongs to the k-th period of each series).
+    series_periods: list[tuple[int, ...]] | None = None
+    seasonal_parts: np.ndarray | None = None
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -202,32 +207,46 @@ def split_batch(
     values = np.ascontiguousarray(values, dtype=np.float64)
     offsets = np.ascontiguousarray(offsets, dtype=np.int64)
     count = offsets.size - 1
+    lengths = np.diff(offsets)
     if isinstance(params, SplitParams):
         params = [params]
         groups = None
     if groups is None:
         groups = np.zeros(count, dtype=np.int64)
     status = [OK] * count if status is None else list(status)
-    settings = np.zeros((count, N_SETTINGS), dtype=np.int64)
+    resolved_groups: dict[int, ResolvedParams] = {}
+    for g, group_params in enumerate(params):
+        try:
+            resolved_groups[g] = group_params.resolve()
+        except ParamError as exc:
+            for s in np.flatnonzero(groups == g):
+                if status[s] == OK:
+                    status[s] = str(exc)
+    multi = any(p.multi for p in params)
+    width = max((len(r.periods) for r in resolved_groups.values()), default=1)
+    settings = np.zeros((count, width, N_SETTINGS), dtype=np.int64)
+    n_periods = np.zeros(count, dtype=np.int64)
     lambdas = np.full(count, np.nan)
     periods = np.zeros(count, dtype=np.int64)
     transformed = np.zeros(count, dtype=bool)
     auto_lambda = np.zeros(count, dtype=bool)
-
     transform_names: dict[int, str] = {}
-    for g, group_params in enumerate(params):
+    dropped: dict[int, tuple[int, ...]] = {}
+    for g, resolved in resolved_groups.items():
         members = np.flatnonzero(groups == g)
         if members.size == 0:
             continue
-        try:
-            resolved = group_params.resolve()
-        except ParamError as exc:
-            for s in members:
-                if status[s] == OK:
-                    status[s] = str(exc)
-            continue
-        settings[members] = resolved.settings_row()
+        rows = resolved.settings_rows()
+        settings[members, : rows.shape[0]] = rows
         periods[members] = resolved.period
+        n_periods[members] = rows.shape[0]
+        if params[g].multi:
+            # MSTL drops periods that are not shorter than half the series
+            keep = (np.asarray(resolved.periods)[None, :] * 2 < lengths[members, None]).sum(1)
+            for s, kept in zip(members, keep, strict=True):
+                if kept < len(resolved.periods):
+                    dropped[int(s)] = resolved.periods[kept:]
+            n_periods[members] = np.maximum(keep, 1)
         if resolved.transform != "none":
             transformed[members] = True
             transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
@@ -253,8 +272,7 @@ def split_batch(
         more = f" (and {bad.size - 1} more series)" if bad.size > 1 else ""
         raise SplitError(f"series {label(first)}: {status[first]}{more}")
 
-    settings[:, COL_ACTIVE] = ok
-    lengths = np.diff(offsets)
+    settings[:, :, COL_ACTIVE] = ok[:, None]
     point_lambda = np.repeat(lambdas, lengths)
     point_transformed = np.repeat(transformed & ok, lengths)
     y = values.copy()
@@ -262,7 +280,23 @@ def split_batch(
         y[point_transformed] = transform.forward(
             values[point_transformed], point_lambda[point_transformed]
         )
-    trend, seasonal, weight = _run_kernel(y, offsets, settings, parallel)
+    parts = None
+    series_periods = None
+    if multi:
+        trend, parts, weight = _run_multi_kernel(
+            y, offsets, settings, n_periods, params, groups, parallel
+        )
+        seasonal = parts.sum(axis=0)
+        series_periods = [
+            tuple(int(p) for p in settings[s, : n_periods[s], COL_PERIOD]) if ok[s] else ()
+            for s in range(count)
+        ]
+        for s, gone in dropped.items():
+            if ok[s]:
+                shown = ", ".join(str(p) for p in gone)
+                status[s] = f"ok; dropped period {shown}: not shorter than half the series"
+    else:
+        trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
     remainder = y - trend - seasonal
     adjusted = y - seasonal
     if point_transformed.any():
@@ -282,4 +316,35 @@ def split_batch(
         lambdas=lambdas,
         periods=periods,
         status=status,
+        series_periods=series_periods,
+        seasonal_parts=parts,
     )
+
+
+def _run_multi_kernel(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    n_periods: np.ndarray,
+    params: Sequence[SplitParams],
+    groups: np.ndarray,
+    parallel: bool,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """MSTL over every active series; returns trend, seasonal parts (periods x points), weights."""
+    width = settings.shape[1]
+    trend = np.full(y.size, np.nan)
+    parts = np.full((width, y.size), np.nan)
+    weight = np.full(y.size, np.nan)
+    run = mstl_batch_parallel if parallel else mstl_batch_serial
+    for g, group_params in enumerate(params):
+        members = groups == g
+        if not members.any():
+            continue
+        rounds = group_params.resolve().iterations if settings[members, 0, COL_ACTIVE].any() else 1
+        chosen = settings.copy()
+        chosen[~members, :, COL_ACTIVE] = 0
+        run(y, offsets, chosen, n_periods, rounds, trend, parts, weight)
+    lengths = np.diff(offsets)
+    unused = np.arange(width)[:, None] >= np.repeat(n_periods, lengths)[None, :]
+    parts[unused] = 0.0
+    return trend, parts, weight

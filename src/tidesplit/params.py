@@ -109,6 +109,9 @@ class SplitParams:
     outer_loops: int | None = None
     transform: str = "none"
     boxcox_lambda: float | None = None
+    periods: tuple[int, ...] | None = None
+    season_spans: tuple[int, ...] | None = None
+    iterations: int | None = None
 
     @classmethod
     def from_kwargs(cls, **kwargs: Any) -> SplitParams:
@@ -123,27 +126,69 @@ class SplitParams:
             raise ParamError(
                 f"unknown argument(s) {', '.join(unknown)}; known: {', '.join(sorted(known))}"
             )
+        for name in ("periods", "season_spans"):
+            if kwargs.get(name) is not None:
+                kwargs[name] = tuple(kwargs[name])
         return cls(**kwargs)
 
     def with_period(self, period: int) -> SplitParams:
+        """The same settings for another (single) period."""
         return replace(self, period=period)
+
+    def with_periods(self, periods: tuple[int, ...]) -> SplitParams:
+        """The same settings for several periods (MSTL)."""
+        return replace(self, periods=tuple(periods))
+
+    @property
+    def multi(self) -> bool:
+        """Whether several seasonal periods were asked for (MSTL)."""
+        return self.periods is not None
 
     def resolve(self) -> ResolvedParams:
         """Check every setting and fill in the defaults; raises ``ParamError``."""
-        period = _as_int("period", self.period)
-        if period is None:
+        if self.periods is not None and self.period is not None:
+            raise ParamError("give period or periods, not both")
+        if self.periods is not None:
+            periods = [_as_int("periods", p) for p in self.periods]
+            if not periods:
+                raise ParamError("periods is empty")
+        else:
+            periods = [_as_int("period", self.period)]
+        if periods[0] is None:
             raise ParamError("period is required")
-        if period < 2:
-            raise ParamError(f"period must be at least 2, got {period}")
-        season_span = _as_int("season_span", self.season_span)
-        if season_span is None:
-            season_span = DEFAULT_SEASON_SPAN
-        if season_span != 0:
-            _check_span("season_span", season_span)
+        for period in periods:
+            if period is None or period < 2:
+                raise ParamError(f"period must be at least 2, got {period}")
+        if len(set(periods)) < len(periods):
+            raise ParamError(f"periods must differ, got {list(periods)}")
+        if self.season_spans is not None:
+            spans = [_as_int("season_spans", v) for v in self.season_spans]
+            if len(spans) != len(periods):
+                raise ParamError(f"season_spans has {len(spans)} values for {len(periods)} periods")
+        elif self.season_span is not None:
+            spans = [_as_int("season_span", self.season_span)] * len(periods)
+        elif self.periods is not None:
+            # MSTL's published default: 7 + 4 i for the i-th period (Bandara et al. 2021)
+            spans = [7 + 4 * (i + 1) for i in range(len(periods))]
+        else:
+            spans = [DEFAULT_SEASON_SPAN]
+        order = np.argsort(periods, kind="stable")
+        periods = [int(periods[i]) for i in order]
+        spans = [int(spans[i]) for i in order]
+        for span in spans:
+            if span != 0:
+                _check_span("season_span", span)
+        iterations = _as_int("iterations", self.iterations)
+        iterations = 2 if iterations is None else iterations  # Bandara et al. (2021)
+        if iterations < 1:
+            raise ParamError(f"iterations must be at least 1, got {iterations}")
+        period, season_span = periods[0], spans[0]
         trend_span = _as_int("trend_span", self.trend_span)
+        given_trend = trend_span
         trend_span = default_trend_span(period, season_span) if trend_span is None else trend_span
         _check_span("trend_span", trend_span)
         lowpass_span = _as_int("lowpass_span", self.lowpass_span)
+        given_lowpass = lowpass_span
         lowpass_span = default_lowpass_span(period) if lowpass_span is None else lowpass_span
         _check_span("lowpass_span", lowpass_span)
 
@@ -196,7 +241,24 @@ class SplitParams:
             lam = 0.0
         elif transform == "none":
             lam = None
+        given_jumps = [
+            _as_int(name, getattr(self, name))
+            for name in ("season_jump", "trend_jump", "lowpass_jump")
+        ]
+        cycles = []
+        for p, ns in zip(periods, spans, strict=True):
+            nt = default_trend_span(p, ns) if given_trend is None else given_trend
+            nl = default_lowpass_span(p) if given_lowpass is None else given_lowpass
+            js = [
+                default_jump(span) if given is None else given
+                for given, span in zip(given_jumps, (ns, nt, nl), strict=True)
+            ]
+            cycles.append((p, ns, nt, nl, *js))
         return ResolvedParams(
+            periods=tuple(periods),
+            season_spans=tuple(spans),
+            iterations=iterations,
+            cycles=tuple(cycles),
             period=period,
             season_span=season_span,
             trend_span=trend_span,
@@ -222,8 +284,16 @@ def _check_span(name: str, span: int) -> None:
 
 @dataclass(frozen=True)
 class ResolvedParams:
-    """Every setting filled in and checked; what the kernel runs with."""
+    """Every setting filled in and checked; what the kernel runs with.
 
+    The flat fields describe the first (shortest) period; ``cycles`` holds, per period,
+    (period, season span, trend span, low-pass span, and the three jumps).
+    """
+
+    periods: tuple[int, ...]
+    season_spans: tuple[int, ...]
+    iterations: int
+    cycles: tuple[tuple[int, ...], ...]
     period: int
     season_span: int
     trend_span: int
@@ -241,22 +311,28 @@ class ResolvedParams:
     boxcox_lambda: float | None  # None with boxcox: chosen per series (Guerrero 1993)
 
     def settings_row(self) -> np.ndarray:
-        """The kernel's integer settings row for this parameter set."""
-        row = np.zeros(_k.N_SETTINGS, dtype=np.int64)
-        row[_k.COL_PERIOD] = self.period
-        row[_k.COL_SEASON_SPAN] = self.season_span
-        row[_k.COL_TREND_SPAN] = self.trend_span
-        row[_k.COL_LOWPASS_SPAN] = self.lowpass_span
-        row[_k.COL_SEASON_DEGREE] = self.season_degree
-        row[_k.COL_TREND_DEGREE] = self.trend_degree
-        row[_k.COL_LOWPASS_DEGREE] = self.lowpass_degree
-        row[_k.COL_SEASON_JUMP] = self.season_jump
-        row[_k.COL_TREND_JUMP] = self.trend_jump
-        row[_k.COL_LOWPASS_JUMP] = self.lowpass_jump
-        row[_k.COL_INNER] = self.inner_loops
-        row[_k.COL_OUTER] = self.outer_loops
-        row[_k.COL_ACTIVE] = 1
-        return row
+        """The kernel's integer settings row for the first period."""
+        return self.settings_rows()[0]
+
+    def settings_rows(self) -> np.ndarray:
+        """One kernel settings row per period, shortest period first."""
+        rows = np.zeros((len(self.cycles), _k.N_SETTINGS), dtype=np.int64)
+        for k, (p, ns, nt, nl, sj, tj, lj) in enumerate(self.cycles):
+            row = rows[k]
+            row[_k.COL_PERIOD] = p
+            row[_k.COL_SEASON_SPAN] = ns
+            row[_k.COL_TREND_SPAN] = nt
+            row[_k.COL_LOWPASS_SPAN] = nl
+            row[_k.COL_SEASON_DEGREE] = self.season_degree
+            row[_k.COL_TREND_DEGREE] = self.trend_degree
+            row[_k.COL_LOWPASS_DEGREE] = self.lowpass_degree
+            row[_k.COL_SEASON_JUMP] = sj
+            row[_k.COL_TREND_JUMP] = tj
+            row[_k.COL_LOWPASS_JUMP] = lj
+            row[_k.COL_INNER] = self.inner_loops
+            row[_k.COL_OUTER] = self.outer_loops
+            row[_k.COL_ACTIVE] = 1
+        return rows
 
     def as_dict(self) -> dict[str, Any]:
         return asdict(self)

@@ -1,0 +1,374 @@
+"""Time columns: the regular step of each series, its gaps, and the period a step implies.
+
+Times arrive as int64 codes: integers as they are; DATE, TIMESTAMP and TIMESTAMPTZ as
+microseconds since 1970-01-01 (UTC for TIMESTAMPTZ). Per series we find the step:
+
+- calendar months (monthly, quarterly, yearly, or any whole number of months) when every
+  time falls on the same day of its month and time of day, or every time is a month end;
+- otherwise a fixed duration: the smallest difference between neighbouring times, which
+  every other difference must be a whole multiple of (15 minutes, hourly, daily, weekly...).
+
+TIMESTAMPTZ: steps of a day or more are measured on the wall clock of the session's time
+zone (a daily series at local midnight has 23- and 25-hour days across daylight-saving
+changes and stays one step per day); shorter steps are measured in absolute time, so an
+hourly series runs through the change with neither a gap nor a repeated hour.
+
+Times missing inside a series become missing values at their place in the regular grid.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .decompose import OK, segment_counts
+
+US_PER_MINUTE = 60_000_000
+US_PER_HOUR = 60 * US_PER_MINUTE
+US_PER_DAY = 24 * US_PER_HOUR
+US_PER_WEEK = 7 * US_PER_DAY
+
+UNIT_NUMBER = 0  # integer time: steps in its own units
+UNIT_MICROSECOND = 1
+UNIT_MONTH = 2
+
+KINDS = ("integer", "date", "timestamp", "timestamptz")
+
+# A series may have at most this many grid points per observed point once gaps are filled
+# (common practice guard against a stray time far from the rest).
+MAX_GROWTH = 10
+
+# The period implied by a step when none is given (common practice).
+PERIOD_TABLE = (
+    ("monthly (1 month)", 12),
+    ("quarterly (3 months)", 4),
+    ("weekly (7 days)", 52),
+    ("daily (1 day)", 7),
+    ("hourly (1 hour)", 24),
+    ("k minutes dividing a day", "1440 / k (one day)"),
+    ("k hours dividing a day", "24 / k (one day)"),
+    ("k months dividing a year", "12 / k (one year)"),
+    ("yearly, or any other step", "none: give period"),
+)
+
+
+def time_kind(sql_type: str | None) -> str:
+    """Our kind of time from DuckDB's type name.
+
+    >>> time_kind("DATE"), time_kind("TIMESTAMP WITH TIME ZONE"), time_kind("INTEGER")
+    ('date', 'timestamptz', 'integer')
+    """
+    name = (sql_type or "BIGINT").upper()
+    if name == "DATE":
+        return "date"
+    if "TIME ZONE" in name or name.startswith("TIMESTAMPTZ"):
+        return "timestamptz"
+    if name.startswith("TIMESTAMP"):
+        return "timestamp"
+    return "integer"
+
+
+@dataclass
+class Grid:
+    """Where each input row sits on its series' regular grid."""
+
+    unit: np.ndarray  # per series: UNIT_*
+    step: np.ndarray  # per series: the step in that unit
+    slots: np.ndarray  # per input row: its position on the grid
+    offsets: np.ndarray  # grid offsets (series i spans offsets[i]:offsets[i+1])
+    first: np.ndarray  # per series: the code (or month index) of the first grid point
+    anchor: np.ndarray  # per series, months: microseconds after the month start, -1 month end
+    local: np.ndarray  # per series: measured on the wall clock (TIMESTAMPTZ daily and up)
+
+    @property
+    def complete(self) -> bool:
+        """True when no series has a gap (grid and input are the same)."""
+        return self.offsets[-1] == self.slots.size
+
+
+def describe(code: int, kind: str) -> str:
+    """A time code as readable text.
+
+    >>> describe(0, "date"), describe(3600_000_000, "timestamptz"), describe(7, "integer")
+    ('1970-01-01', '1970-01-01 01:00:00+00', '7')
+    """
+    if kind == "integer":
+        return str(code)
+    stamp = np.datetime64(int(code), "us")
+    if kind == "date":
+        return str(stamp.astype("datetime64[D]"))
+    text = str(stamp.astype("datetime64[s]")).replace("T", " ")
+    return text + "+00" if kind == "timestamptz" else text
+
+
+def _local_codes(codes: np.ndarray, time_zone: str | None) -> np.ndarray:
+    """UTC microseconds to wall-clock microseconds in ``time_zone``."""
+    if not time_zone or time_zone.upper() == "UTC":
+        return codes
+    import pandas as pd  # only TIMESTAMPTZ needs the time-zone database
+
+    stamps = pd.DatetimeIndex(codes.astype("datetime64[us]")).tz_localize("UTC")
+    return stamps.tz_convert(time_zone).tz_localize(None).as_unit("us").asi8
+
+
+def _utc_codes(local: np.ndarray, time_zone: str | None) -> np.ndarray:
+    if not time_zone or time_zone.upper() == "UTC":
+        return local
+    import pandas as pd
+
+    stamps = pd.DatetimeIndex(local.astype("datetime64[us]")).tz_localize(
+        time_zone, ambiguous=True, nonexistent="shift_forward"
+    )
+    return stamps.tz_convert("UTC").tz_localize(None).as_unit("us").asi8
+
+
+def _segment_min(x: np.ndarray, offsets: np.ndarray, empty: int) -> np.ndarray:
+    out = np.full(offsets.size - 1, empty, dtype=np.int64)
+    nonempty = offsets[1:] > offsets[:-1]
+    if x.size:
+        out[nonempty] = np.minimum.reduceat(x, offsets[:-1][nonempty])
+    return out
+
+
+def _segment_max(x: np.ndarray, offsets: np.ndarray, empty: int) -> np.ndarray:
+    out = np.full(offsets.size - 1, empty, dtype=np.int64)
+    nonempty = offsets[1:] > offsets[:-1]
+    if x.size:
+        out[nonempty] = np.maximum.reduceat(x, offsets[:-1][nonempty])
+    return out
+
+
+def regularise(
+    codes: np.ndarray,
+    offsets: np.ndarray,
+    kind: str,
+    status: list[str],
+    time_zone: str | None = None,
+) -> Grid:
+    """Find each series' step and the grid position of every row; bad series get a status.
+
+    ``codes`` must be sorted within each series. A repeated time, or a difference that is
+    not a whole multiple of the step, leaves the series with a reason in ``status``.
+
+    >>> status = ["ok"]
+    >>> grid = regularise(np.array([0, 2, 6, 8]), np.array([0, 4]), "integer", status)
+    >>> grid.step.tolist(), grid.slots.tolist(), grid.offsets.tolist(), status
+    ([2], [0, 1, 3, 4], [0, 5], ['ok'])
+    """
+    codes = np.ascontiguousarray(codes, dtype=np.int64)
+    count = offsets.size - 1
+    lengths = np.diff(offsets)
+    starts = offsets[:-1]
+    unit = np.full(count, UNIT_NUMBER if kind == "integer" else UNIT_MICROSECOND)
+    local = np.zeros(count, dtype=bool)
+    measured = codes
+    if kind == "timestamptz":
+        measured = _local_codes(codes, time_zone)
+        local[:] = True
+    first_row = np.zeros(codes.size, dtype=bool)
+    first_row[starts[lengths > 0]] = True
+    big = np.iinfo(np.int64).max
+
+    def fixed_steps(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        diffs = np.diff(values, prepend=values[:1])
+        diffs[first_row] = big
+        step = _segment_min(np.where(diffs > 0, diffs, big), offsets, big)
+        return diffs, step
+
+    diffs, step = fixed_steps(measured)
+    if kind == "timestamptz":
+        # sub-daily steps are measured in absolute time instead (see the module notes)
+        short = (step < US_PER_DAY) | (step % US_PER_DAY != 0)
+        if short.any():
+            utc_diffs, utc_step = fixed_steps(codes)
+            rows = np.repeat(short, lengths)
+            measured = np.where(rows, codes, measured)
+            diffs = np.where(rows, utc_diffs, diffs)
+            step = np.where(short, utc_step, step)
+            local &= ~short
+
+    anchor = np.zeros(count, dtype=np.int64)
+    first = np.zeros(count, dtype=np.int64)
+    slot_units = measured.copy()
+    if kind != "integer":
+        months = measured.astype("datetime64[us]").astype("datetime64[M]")
+        month_start = months.astype("datetime64[us]").astype(np.int64)
+        into_month = measured - month_start
+        next_start = (months + 1).astype("datetime64[us]").astype(np.int64)
+        day = US_PER_DAY
+        month_end = (measured // day) == (next_start // day - 1)
+        tod = measured % day
+        same_anchor = _segment_min(into_month, offsets, 0) == _segment_max(into_month, offsets, 0)
+        ends = segment_counts(~month_end, offsets) == 0
+        same_tod = _segment_min(tod, offsets, 0) == _segment_max(tod, offsets, 0)
+        by_month = (same_anchor | (ends & same_tod)) & (lengths >= 2) & (step >= 28 * day)
+        if by_month.any():
+            rows = np.repeat(by_month, lengths)
+            month_index = months.astype(np.int64)
+            m_diffs = np.diff(month_index, prepend=month_index[:1])
+            m_diffs[first_row] = big
+            m_step = _segment_min(np.where(m_diffs > 0, m_diffs, big), offsets, big)
+            unit[by_month] = UNIT_MONTH
+            step = np.where(by_month, m_step, step)
+            diffs = np.where(rows, np.where(m_diffs == 0, 0, m_diffs), diffs)
+            slot_units = np.where(rows, month_index, slot_units)
+            anchor = np.where(by_month & same_anchor, _segment_min(into_month, offsets, 0), anchor)
+            anchor = np.where(by_month & ~same_anchor, -1 - _segment_min(tod, offsets, 0), anchor)
+
+    has_rows = lengths > 0
+    first[has_rows] = slot_units[starts[has_rows]]
+    safe_step = np.where((step > 0) & (step < big), step, 1)
+    row_step = np.repeat(safe_step, lengths)
+    rel = slot_units - np.repeat(first, lengths)
+    slots = rel // row_step
+
+    repeated = (diffs == 0) & ~first_row
+    uneven = (diffs % row_step != 0) & ~first_row & ~repeated
+    n_rep = segment_counts(repeated, offsets)
+    n_uneven = segment_counts(uneven, offsets)
+    span = np.where(has_rows, _segment_max(slots, offsets, 0) + 1, 0)
+    too_sparse = span > MAX_GROWTH * np.maximum(lengths, 1)
+    for s in np.flatnonzero((n_rep > 0) | (n_uneven > 0) | too_sparse):
+        if status[s] != OK:
+            continue
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        if n_rep[s]:
+            at = lo + int(np.flatnonzero(repeated[lo:hi])[0])
+            status[s] = f"duplicate time {describe(int(codes[at]), kind)}"
+        elif n_uneven[s]:
+            at = lo + int(np.flatnonzero(uneven[lo:hi])[0])
+            status[s] = (
+                f"irregular times: {describe(int(codes[at - 1]), kind)} to "
+                f"{describe(int(codes[at]), kind)} is not a whole number of steps "
+                f"of {describe_step(int(unit[s]), int(step[s]))}"
+            )
+        else:
+            status[s] = (
+                f"too sparse: {lengths[s]} times spread over {span[s]} steps of "
+                f"{describe_step(int(unit[s]), int(step[s]))}"
+            )
+    bad = np.array([st != OK for st in status], dtype=bool)
+    span[bad] = lengths[bad]  # a bad series keeps its rows as they are
+    slots = np.where(
+        np.repeat(bad, lengths), np.arange(codes.size) - np.repeat(starts, lengths), slots
+    )
+    grid_offsets = np.concatenate(([0], np.cumsum(span))).astype(np.int64)
+    return Grid(unit, step, slots, grid_offsets, first, anchor, local)
+
+
+def describe_step(unit: int, step: int) -> str:
+    """A step as words.
+
+    >>> describe_step(UNIT_MONTH, 3), describe_step(UNIT_MICROSECOND, 900_000_000)
+    ('3 months', '15 minutes')
+    """
+    if unit == UNIT_NUMBER:
+        return f"{step}"
+    if unit == UNIT_MONTH:
+        return "1 month" if step == 1 else f"{step} months"
+    for size, name in (
+        (US_PER_WEEK, "week"),
+        (US_PER_DAY, "day"),
+        (US_PER_HOUR, "hour"),
+        (US_PER_MINUTE, "minute"),
+        (1_000_000, "second"),
+    ):
+        if step % size == 0:
+            k = step // size
+            return f"1 {name}" if k == 1 else f"{k} {name}s"
+    return f"{step} microseconds"
+
+
+def period_for_step(unit: int, step: int) -> int:
+    """The seasonal period a step implies (PERIOD_TABLE), or 0 when it implies none.
+
+    >>> us = UNIT_MICROSECOND
+    >>> [period_for_step(UNIT_MONTH, 1), period_for_step(UNIT_MONTH, 3),
+    ...  period_for_step(us, US_PER_WEEK), period_for_step(us, US_PER_DAY),
+    ...  period_for_step(us, US_PER_HOUR), period_for_step(us, 15 * US_PER_MINUTE)]
+    [12, 4, 52, 7, 24, 96]
+    """
+    if unit == UNIT_MONTH:
+        return 12 // step if step < 12 and 12 % step == 0 else 0
+    if unit == UNIT_MICROSECOND:
+        if step == US_PER_WEEK:
+            return 52
+        if step == US_PER_DAY:
+            return 7
+        if step < US_PER_DAY and US_PER_DAY % step == 0:
+            return US_PER_DAY // step
+    return 0
+
+
+def periods_for_step(unit: int, step: int) -> tuple[int, ...]:
+    """The seasonal periods a step implies for several cycles (common practice):
+    sub-daily data has a day and a week, daily data a week and a year, others one period.
+
+    >>> us = UNIT_MICROSECOND
+    >>> periods_for_step(us, US_PER_HOUR), periods_for_step(us, US_PER_DAY)
+    ((24, 168), (7, 365))
+    """
+    if unit == UNIT_MICROSECOND and step < US_PER_DAY and US_PER_DAY % step == 0:
+        per_day = US_PER_DAY // step
+        return (per_day, 7 * per_day)
+    if unit == UNIT_MICROSECOND and step == US_PER_DAY:
+        return (7, 365)
+    single = period_for_step(unit, step)
+    return (single,) if single else ()
+
+
+def grid_codes(grid: Grid, kind: str, time_zone: str | None = None) -> np.ndarray:
+    """The time code of every grid point (for rows inserted into gaps)."""
+    lengths = np.diff(grid.offsets)
+    position = np.arange(grid.offsets[-1]) - np.repeat(grid.offsets[:-1], lengths)
+    unit = np.repeat(grid.unit, lengths)
+    step = np.repeat(grid.step, lengths)
+    first = np.repeat(grid.first, lengths)
+    out = first + position * step
+    monthly = unit == UNIT_MONTH
+    if monthly.any():
+        month = (first + position * step)[monthly].astype("datetime64[M]")
+        anchor = np.repeat(grid.anchor, lengths)[monthly]
+        start = month.astype("datetime64[us]").astype(np.int64)
+        following = (month + 1).astype("datetime64[us]").astype(np.int64)
+        end_of_month = following - US_PER_DAY + (-1 - anchor)
+        out[monthly] = np.where(anchor >= 0, start + anchor, end_of_month)
+    if kind == "timestamptz" and grid.local.any():
+        rows = np.repeat(grid.local, lengths)
+        out[rows] = _utc_codes(out[rows], time_zone)
+    return out
+
+
+def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
+    """The first clear peak of the autocorrelation of the linearly detrended series, or 0.
+
+    Common practice: a lag of at least 2 where the autocorrelation is a local maximum and
+    above both 0.3 and the rough 95% band 2 / sqrt(n). Missing values are interpolated for
+    this estimate only.
+
+    >>> t = np.arange(120)
+    >>> estimate_period(np.sin(2 * np.pi * t / 12) + 0.01 * t)
+    12
+    >>> estimate_period(np.random.default_rng(0).normal(size=120))
+    0
+    """
+    y = np.asarray(values, dtype=float)
+    good = ~np.isnan(y)
+    n = y.size
+    if good.sum() < 8:
+        return 0
+    t = np.arange(n)
+    y = np.interp(t, t[good], y[good])
+    slope, intercept = np.polyfit(t, y, 1)
+    y = y - (slope * t + intercept)
+    denom = np.dot(y, y)
+    if denom <= 0:
+        return 0
+    top = min(max_lag or n // 2, n - 2)
+    acf = np.array([np.dot(y[: n - k], y[k:]) / denom for k in range(top + 2)])
+    threshold = max(0.3, 2 / np.sqrt(n))
+    for k in range(2, top + 1):
+        if acf[k] > threshold and acf[k] >= acf[k - 1] and acf[k] >= acf[k + 1]:
+            return k
+    return 0
