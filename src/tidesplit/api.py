@@ -9,8 +9,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .decompose import OK, BatchResult, split_batch
+from .decompose import OK, segment_counts, split_batch
 from .params import SplitParams
+from .rows import split_rows
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
@@ -82,19 +83,37 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     )
 
 
-def _time_codes(times: pd.Series) -> tuple[np.ndarray, np.ndarray]:
-    """Sortable int64 codes of a time column (microseconds for dates and timestamps)."""
+def _time_codes(times: pd.Series) -> tuple[np.ndarray, np.ndarray, str, str | None]:
+    """Sortable int64 codes of a time column, its null mask, kind and time zone.
+
+    Dates and timestamps become microseconds since 1970-01-01 (UTC when zone-aware).
+    """
     nulls = times.isna().to_numpy()
     if pd.api.types.is_datetime64_any_dtype(times):
-        codes = times.dt.tz_convert("UTC") if getattr(times.dt, "tz", None) else times
-        codes = codes.astype("datetime64[us]").astype("int64", copy=False)
-        return np.where(nulls, 0, codes.to_numpy()), nulls
-    if isinstance(times.dtype, pd.ArrowDtype) or times.dtype == object:
-        converted = pd.to_datetime(times, utc=False, errors="coerce")
-        if converted.notna().sum() == (~nulls).sum() and not pd.api.types.is_numeric_dtype(times):
-            return _time_codes(converted)
+        zone = getattr(times.dt, "tz", None)
+        stamps = times.dt.tz_convert("UTC").dt.tz_localize(None) if zone else times
+        codes = stamps.astype("datetime64[us]").astype("int64", copy=False).to_numpy()
+        kind = "timestamptz" if zone else "timestamp"
+        return np.where(nulls, 0, codes), nulls, kind, None if zone is None else str(zone)
+    if times.dtype == object and not pd.api.types.is_numeric_dtype(times):
+        converted = pd.to_datetime(times, errors="coerce")
+        if converted.notna().sum() == (~nulls).sum():
+            codes, nulls, kind, zone = _time_codes(converted)
+            is_date = all(not hasattr(v, "hour") for v in times[~nulls].head(50))
+            return codes, nulls, "date" if is_date and kind == "timestamp" else kind, zone
     filled = times.fillna(0) if nulls.any() else times
-    return filled.to_numpy().astype(np.int64), nulls
+    return filled.to_numpy().astype(np.int64), nulls, "integer", None
+
+
+def _codes_to_times(codes: np.ndarray, kind: str, zone: str | None) -> pd.Series:
+    if kind == "integer":
+        return pd.Series(codes)
+    stamps = pd.Series(codes.astype("datetime64[us]"))
+    if kind == "timestamptz":
+        return stamps.dt.tz_localize("UTC").dt.tz_convert(zone)
+    if kind == "date":
+        return stamps.dt.date
+    return stamps
 
 
 def split_table(
@@ -104,48 +123,46 @@ def split_table(
     value: str,
     period: int | None = None,
     *,
+    fill_gaps: bool = False,
     on_error: str = "raise",
     **params: Any,
 ) -> pd.DataFrame:
     """Split every series of a keyed table (pandas DataFrame or Arrow table).
 
     Returns one row per input row, ordered by key and time: the key column(s), time and
-    value under their own names, then trend, seasonal, remainder, adjusted, weight and
-    status (``'ok'``, or why the series was left unsplit under ``on_error='keep'``).
-    NULL keys form a group of their own.
+    value under their own names, then trend, seasonal, remainder, adjusted, weight,
+    inserted and status (``'ok'``, or why the series was left unsplit under
+    ``on_error='keep'``). With ``fill_gaps=True`` there is also a row for every time
+    missing inside a series (``inserted`` true, value NaN). With ``periods=[...]`` (or
+    ``periods=[]`` for those the step implies) the split has several seasonal periods and a
+    ``seasonal_by_period`` column holds a dict of the parts. NULL keys form a group of
+    their own.
 
     Examples
     --------
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 9)
+    (16, 10)
     """
     keys = [key] if isinstance(key, str) else list(key)
-    frame = (
-        data.to_pandas()
-        if hasattr(data, "to_pandas") and not isinstance(data, pd.DataFrame)
-        else data
-    )
+    is_frame = isinstance(data, pd.DataFrame)
+    frame = data if is_frame else data.to_pandas()
     missing = [c for c in [*keys, time, value] if c not in frame.columns]
     if missing:
         raise KeyError(f"no column(s) named {', '.join(missing)}")
     frame = frame[[*keys, time, value]].copy()
-    codes, time_nulls = _time_codes(frame[time])
+    codes, time_nulls, kind, zone = _time_codes(frame[time])
     frame["__code"] = codes
     frame["__null_time"] = time_nulls
-    frame = frame.sort_values(
-        [*keys, "__null_time", "__code", value], kind="stable", na_position="last"
-    )
-    frame = frame.reset_index(drop=True)
+    order = [*keys, "__null_time", "__code", value]
+    frame = frame.sort_values(order, kind="stable", na_position="last").reset_index(drop=True)
     group_ids = frame.groupby(keys, sort=False, dropna=False).ngroup().to_numpy()
     starts = np.flatnonzero(np.diff(group_ids, prepend=-1) != 0)
     offsets = np.append(starts, len(frame)).astype(np.int64)
     y = pd.to_numeric(frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
     first_rows = frame.iloc[starts][keys]
     status = [OK] * starts.size
-    from .decompose import segment_counts
-
     for i in np.flatnonzero(segment_counts(frame["__null_time"].to_numpy(), offsets)):
         status[i] = "a time is NULL"
 
@@ -153,17 +170,39 @@ def split_table(
         row = first_rows.iloc[i]
         return "{" + ", ".join(f"{k!r}: {row[k]!r}" for k in keys) + "}"
 
-    result: BatchResult = split_batch(
+    result = split_rows(
         y,
         offsets,
         SplitParams.from_kwargs(period=period, **params),
+        codes=frame["__code"].to_numpy(),
+        kind=kind,
+        time_zone=zone,
         label=label,
-        times=frame["__code"].to_numpy(),
         status=status,
         on_error=on_error,
+        fill_gaps=fill_gaps,
     )
-    out = frame[[*keys, time, value]].copy()
+    lengths = np.diff(result.offsets)
+    if result.source is not None:
+        source = result.source
+        taken = frame.iloc[np.where(source >= 0, source, 0)].reset_index(drop=True)
+        out = taken[keys].copy()
+        series_of = np.repeat(np.arange(starts.size), lengths)
+        out[keys] = first_rows.iloc[series_of].to_numpy()
+        out[time] = _codes_to_times(result.codes, kind, zone).to_numpy()
+        out[value] = np.where(
+            source >= 0, taken[value].to_numpy(dtype=float, na_value=np.nan), np.nan
+        )
+    else:
+        out = frame[[*keys, time, value]].copy()
     for name in COMPONENTS:
         out[name] = getattr(result, name)
-    out["status"] = np.repeat(np.array(result.status, dtype=object), np.diff(offsets))
+    if result.seasonal_parts is not None:
+        periods = np.repeat(np.array(result.batch.series_periods, dtype=object), lengths)
+        parts = result.seasonal_parts
+        out["seasonal_by_period"] = [
+            {p: float(parts[k, r]) for k, p in enumerate(ps)} for r, ps in enumerate(periods)
+        ]
+    out["inserted"] = result.inserted
+    out["status"] = np.repeat(np.array(result.status, dtype=object), lengths)
     return out

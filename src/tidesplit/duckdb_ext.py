@@ -15,9 +15,10 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import batch
-from .decompose import OK, split_batch
-from .params import SplitParams
+from . import batch, calendar
+from .decompose import OK, segment_counts
+from .params import ParamError, SplitParams
+from .rows import split_rows
 
 UDF_NAME = "__tide_split_series"
 
@@ -38,34 +39,63 @@ SPLIT_ARGS: tuple[tuple[str, str], ...] = (
     ("outer_loops", "DOUBLE"),
     ("transform", "VARCHAR"),
     ("boxcox_lambda", "DOUBLE"),
+    ("fill_gaps", "BOOLEAN"),
     ("on_error", "VARCHAR"),
 )
+# Arguments of several seasonal periods (tide_split_multi only).
+MULTI_ARGS: tuple[tuple[str, str], ...] = (
+    ("periods", "DOUBLE[]"),
+    ("season_spans", "DOUBLE[]"),
+    ("iterations", "DOUBLE"),
+)
+# What the UDF takes before the decomposition arguments.
+LEAD_ARGS: tuple[tuple[str, str], ...] = (
+    ("label", "VARCHAR"),
+    ("time_codes", "BIGINT[]"),
+    ("time_kind", "VARCHAR"),
+    ("time_zone", "VARCHAR"),
+    ("values", "DOUBLE[]"),
+    ("period", "DOUBLE"),
+)
+UDF_ARGS = LEAD_ARGS + SPLIT_ARGS + MULTI_ARGS
 
 RESULT_TYPE = (
     "STRUCT(trend DOUBLE[], seasonal DOUBLE[], remainder DOUBLE[], adjusted DOUBLE[], "
-    "weight DOUBLE[], boxcox_lambda DOUBLE, status VARCHAR)"
+    "weight DOUBLE[], seasonal_by_period MAP(BIGINT, DOUBLE)[], inserted BOOLEAN[], "
+    "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
+    "boxcox_lambda DOUBLE, status VARCHAR)"
 )
-_PARAM_NAMES = ("period", *(name for name, _ in SPLIT_ARGS[:-1]))
+_FRONT_ONLY = {"fill_gaps", "on_error"}  # arguments of the call, not of the split
 
 
-def _param_columns(columns: list[pa.Array]) -> tuple[list[SplitParams], np.ndarray, list[Any]]:
-    """Parameter sets of a call: usually one, constant over every row."""
+def _column_values(col: pa.Array) -> tuple[bool, list[Any] | Any]:
+    """(constant, value): the one value of a constant column, else every row's value."""
+    if col.null_count == len(col):
+        return True, None
+    if pa.types.is_list(col.type):
+        rows = [None if v is None else tuple(v) for v in col.to_pylist()]
+        return (True, rows[0]) if len(set(rows)) == 1 else (False, rows)
+    if len(pc.unique(col)) == 1:
+        return True, col[0].as_py()
+    return False, col.to_pylist()
+
+
+def _param_sets(
+    names: list[str], columns: list[pa.Array]
+) -> tuple[list[dict[str, Any]], np.ndarray]:
+    """The distinct argument sets of a call (usually one) and the set of each row."""
     count = len(columns[0])
-    if all(len(pc.unique(col)) <= 1 for col in columns):
-        first = [col[0].as_py() if count else None for col in columns]
-        return [_params_from_row(first[:-1])], np.zeros(count, dtype=np.int64), [first[-1]]
-    rows = list(zip(*(col.to_pylist() for col in columns), strict=True))
+    found = [_column_values(col) for col in columns]
+    if all(constant for constant, _ in found):
+        return [dict(zip(names, (v for _, v in found), strict=True))], np.zeros(count, np.int64)
+    per_row = [v if not constant else [v] * count for constant, v in found]
     distinct: dict[tuple[Any, ...], int] = {}
-    groups = np.array([distinct.setdefault(row, len(distinct)) for row in rows], dtype=np.int64)
+    groups = np.array(
+        [distinct.setdefault(row, len(distinct)) for row in zip(*per_row, strict=True)],
+        dtype=np.int64,
+    )
     ordered = sorted(distinct, key=distinct.__getitem__)
-    return [_params_from_row(list(row[:-1])) for row in ordered], groups, [r[-1] for r in ordered]
-
-
-def _params_from_row(row: list[Any]) -> SplitParams:
-    given = {
-        name: value for name, value in zip(_PARAM_NAMES, row, strict=True) if value is not None
-    }
-    return SplitParams.from_kwargs(**given)
+    return [dict(zip(names, row, strict=True)) for row in ordered], groups
 
 
 def _describe_values(values: np.ndarray, offsets: np.ndarray, i: int) -> str:
@@ -75,9 +105,32 @@ def _describe_values(values: np.ndarray, offsets: np.ndarray, i: int) -> str:
     return f"[{shown}{more}]"
 
 
-def _split_udf(
-    labels: Any,
-    times: Any,
+def _per_row_maps(
+    parts: np.ndarray, series_periods: list[tuple[int, ...]], offsets: np.ndarray
+) -> pa.Array:
+    """One MAP(period -> seasonal part) per output row, as a list per series."""
+    lengths = np.diff(offsets)
+    width = parts.shape[0]
+    table = np.zeros((len(series_periods), width), dtype=np.int64)
+    kept = np.array([len(p) for p in series_periods], dtype=np.int64)
+    for s, periods in enumerate(series_periods):
+        table[s, : len(periods)] = periods
+    row_kept = np.repeat(kept, lengths)
+    used = np.arange(width)[None, :] < row_kept[:, None]  # rows x periods
+    keys = np.repeat(table, lengths, axis=0)[used]
+    items = parts.T[used]
+    map_offsets = np.concatenate(([0], np.cumsum(row_kept))).astype(np.int32)
+    maps = pa.MapArray.from_arrays(
+        pa.array(map_offsets), pa.array(keys, pa.int64()), pa.array(items, pa.float64())
+    )
+    return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), maps)
+
+
+def _split_udf(  # DuckDB passes one argument per SQL parameter, in UDF_ARGS order
+    label: Any,
+    time_codes: Any,
+    time_kind: Any,
+    time_zone: Any,
     values: Any,
     period: Any,
     season_span: Any,
@@ -94,9 +147,39 @@ def _split_udf(
     outer_loops: Any,
     transform: Any,
     boxcox_lambda: Any,
+    fill_gaps: Any,
     on_error: Any,
+    periods: Any,
+    season_spans: Any,
+    iterations: Any,
 ) -> pa.Array:
-    params = (
+    labels = batch.as_array(label)
+    value_lists = batch.as_array(values)
+    offsets, child, null_rows = batch.list_layout(value_lists)
+    flat = batch.float_values(child)
+    count = len(value_lists)
+    status = [OK] * count
+    for i in np.flatnonzero(null_rows):
+        status[i] = "the list of values is NULL"
+
+    time_lists = batch.as_array(time_codes)
+    codes = None
+    if time_lists.null_count < len(time_lists):
+        time_offsets, time_child, _ = batch.list_layout(time_lists)
+        if not np.array_equal(time_offsets, offsets):
+            raise ValueError(f"{UDF_NAME}: times and values differ in length")
+        codes, time_nulls = batch.int_values(time_child)
+        if time_nulls.any():
+            for i in np.flatnonzero(segment_counts(time_nulls, offsets)):
+                if status[i] == OK:
+                    status[i] = "a time is NULL"
+    kinds = batch.as_array(time_kind)
+    kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
+    zones = batch.as_array(time_zone)
+    zone = zones[0].as_py() if len(zones) else None
+
+    names = ["period"] + [n for n, _ in SPLIT_ARGS + MULTI_ARGS]
+    columns = [
         period,
         season_span,
         trend_span,
@@ -112,60 +195,69 @@ def _split_udf(
         outer_loops,
         transform,
         boxcox_lambda,
+        fill_gaps,
         on_error,
-    )
-    labels = batch.as_array(labels)
-    value_lists = batch.as_array(values)
-    offsets, child, null_rows = batch.list_layout(value_lists)
-    flat = batch.float_values(child)
-    count = len(value_lists)
-    status = [OK] * count
-    for i in np.flatnonzero(null_rows):
-        status[i] = "the list of values is NULL"
+        periods,
+        season_spans,
+        iterations,
+    ]
+    sets, _ = _param_sets(names, [batch.as_array(c) for c in columns])
+    if len(sets) > 1:
+        # rare: arguments that vary from row to row; split each group on its own
+        raise ParamError("arguments must be the same for every series of one query")
+    given = sets[0]
+    mode = given.pop("on_error") or "raise"
+    fill = bool(given.pop("fill_gaps"))
+    split_params = SplitParams.from_kwargs(**{k: v for k, v in given.items() if v is not None})
+    if given.get("periods") == ():
+        split_params = SplitParams.from_kwargs(
+            **{k: v for k, v in given.items() if v is not None and k != "periods"}, periods=()
+        )
 
-    time_lists = batch.as_array(times)
-    time_codes = None
-    if time_lists.null_count < len(time_lists):
-        time_offsets, time_child, _ = batch.list_layout(time_lists)
-        if not np.array_equal(time_offsets, offsets):
-            raise ValueError(f"{UDF_NAME}: times and values differ in length")
-        time_codes, time_nulls = batch.int_values(time_child)
-        if time_nulls.any():
-            from .decompose import segment_counts
-
-            for i in np.flatnonzero(segment_counts(time_nulls, offsets)):
-                if status[i] == OK:
-                    status[i] = "a time is NULL"
-
-    param_sets, groups, error_modes = _param_columns([batch.as_array(p) for p in params])
-    on_error = error_modes[0] or "raise"
-    if len(set(error_modes)) > 1:
-        on_error = "keep" if all(m == "keep" for m in error_modes) else "raise"
-
-    def label(i: int) -> str:
+    def name(i: int) -> str:
         text = labels[i].as_py() if len(labels) else None
         return text if text is not None else _describe_values(flat, offsets, i)
 
-    result = split_batch(
+    result = split_rows(
         flat,
         offsets,
-        param_sets,
-        groups,
-        label=label,
-        times=time_codes,
+        split_params,
+        codes=codes,
+        kind=kind,
+        time_zone=zone,
+        label=name,
         status=status,
-        on_error=on_error,
+        on_error=mode,
         parallel=False,
+        fill_gaps=fill,
     )
+    out_offsets = result.offsets
     nulls = null_rows if null_rows.any() else None
-    fields = [
-        batch.float_lists(getattr(result, name), offsets, nulls)
-        for name in ("trend", "seasonal", "remainder", "adjusted", "weight")
-    ]
-    fields.append(pa.array(result.lambdas, type=pa.float64(), from_pandas=True))
-    fields.append(pa.array(result.status, type=pa.string()))
-    names = ["trend", "seasonal", "remainder", "adjusted", "weight", "boxcox_lambda", "status"]
-    return pa.StructArray.from_arrays(fields, names=names)
+    fields = {
+        part: batch.float_lists(getattr(result, part), out_offsets, nulls)
+        for part in ("trend", "seasonal", "remainder", "adjusted", "weight")
+    }
+    if result.seasonal_parts is not None:
+        fields["seasonal_by_period"] = _per_row_maps(
+            result.seasonal_parts, result.batch.series_periods, out_offsets
+        )
+    else:
+        fields["seasonal_by_period"] = pa.nulls(count, pa.list_(pa.map_(pa.int64(), pa.float64())))
+    offsets32 = pa.array(out_offsets.astype(np.int32))
+    fields["inserted"] = pa.ListArray.from_arrays(offsets32, pa.array(result.inserted))
+    if fill and result.codes is not None:
+        fields["time_codes"] = pa.ListArray.from_arrays(offsets32, pa.array(result.codes))
+        fields["source"] = pa.ListArray.from_arrays(offsets32, pa.array(result.source))
+    else:
+        fields["time_codes"] = pa.nulls(count, pa.list_(pa.int64()))
+        fields["source"] = pa.nulls(count, pa.list_(pa.int64()))
+    used = result.batch.periods
+    fields["period"] = pa.array(np.where(used > 0, used, 0), mask=used == 0)
+    series_periods = result.batch.series_periods or [(int(p),) if p else () for p in used]
+    fields["periods"] = pa.array([list(p) for p in series_periods], pa.list_(pa.int64()))
+    fields["boxcox_lambda"] = pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True)
+    fields["status"] = pa.array(result.status, type=pa.string())
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
 def _macro_sql() -> str:
@@ -174,6 +266,9 @@ def _macro_sql() -> str:
         text.replace("{split_args}", ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS))
         .replace("{split_pass}", ", ".join(name for name, _ in SPLIT_ARGS))
         .replace("{split_named}", ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS))
+        .replace("{multi_args}", ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS))
+        .replace("{multi_pass}", ", ".join(name for name, _ in MULTI_ARGS))
+        .replace("{multi_named}", ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS))
     )
 
 
@@ -203,11 +298,10 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     if replace and _has_udf(con):
         con.remove_function(UDF_NAME)
     if replace or not _has_udf(con):
-        arg_types = ["VARCHAR", "BIGINT[]", "DOUBLE[]", "DOUBLE"] + [t for _, t in SPLIT_ARGS]
         con.create_function(
             UDF_NAME,
             _split_udf,
-            arg_types,
+            [t for _, t in UDF_ARGS],
             RESULT_TYPE,
             type="arrow",
             null_handling="special",
