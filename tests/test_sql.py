@@ -12,6 +12,7 @@ from conftest import seasonal_series
 import tidesplit
 
 COMPONENTS = ["trend", "seasonal", "remainder", "adjusted", "weight"]
+TAIL = ["inserted", "period", "status"]
 
 
 def sales_frame(rng, shops=3, products=4, n=48, period=12, missing=True):
@@ -49,7 +50,7 @@ def test_one_row_per_input_row_with_own_column_names(con, sales):
         "SELECT * FROM tide_split(one_store, 'sku', 'month', 'units', period := 12)"
     ).df()
     # sku must not also pick up sku_name: key names are exact, not patterns
-    assert list(out.columns) == ["sku", "month", "units", *COMPONENTS, "status"]
+    assert list(out.columns) == ["sku", "month", "units", *COMPONENTS, *TAIL]
     assert len(out) == (sales["store"] == 1).sum()
     assert (out["status"] == "ok").all()
 
@@ -58,7 +59,7 @@ def test_several_keys_and_every_row_back(con, sales):
     out = con.sql(
         "SELECT * FROM tide_split(sales, ['store', 'sku'], 'month', 'units', period := 12)"
     ).df()
-    assert list(out.columns) == ["store", "sku", "month", "units", *COMPONENTS, "status"]
+    assert list(out.columns) == ["store", "sku", "month", "units", *COMPONENTS, *TAIL]
     assert len(out) == len(sales)
     merged = out.merge(sales, on=["store", "sku", "month"], suffixes=("", "_in"))
     assert len(merged) == len(sales)

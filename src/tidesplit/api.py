@@ -33,6 +33,7 @@ class Split:
     period: int
     boxcox_lambda: float | None
     index: pd.Index | None = None
+    seasonal_parts: dict[int, np.ndarray] | None = None  # per period, with several periods
 
     def to_frame(self) -> pd.DataFrame:
         """The components as columns of a DataFrame (the input's index, if it had one).
@@ -53,7 +54,9 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     period : points per seasonal cycle (12 for monthly data with a yearly cycle).
     **params : season_span, trend_span, lowpass_span, the three degrees and jumps, robust,
         inner_loops, outer_loops, transform ('none', 'log', 'boxcox') and boxcox_lambda
-        (None with 'boxcox': chosen by Guerrero's method).
+        (None with 'boxcox': chosen by Guerrero's method); or, instead of ``period``,
+        ``periods=[24, 168]`` for several seasonal periods (MSTL) with ``season_spans``
+        and ``iterations``.
 
     Examples
     --------
@@ -70,7 +73,12 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
         y, np.array([0, y.size]), settings, label=lambda i: "(the series)", on_error="raise"
     )
     lam = result.lambdas[0]
+    parts = None
+    if result.seasonal_parts is not None:
+        kept = result.series_periods[0]
+        parts = {p: result.seasonal_parts[k] for k, p in enumerate(kept)}
     return Split(
+        seasonal_parts=parts,
         observed=y,
         trend=result.trend,
         seasonal=result.seasonal,
@@ -92,7 +100,7 @@ def _time_codes(times: pd.Series) -> tuple[np.ndarray, np.ndarray, str, str | No
     if pd.api.types.is_datetime64_any_dtype(times):
         zone = getattr(times.dt, "tz", None)
         stamps = times.dt.tz_convert("UTC").dt.tz_localize(None) if zone else times
-        codes = stamps.astype("datetime64[us]").astype("int64", copy=False).to_numpy()
+        codes = stamps.astype("datetime64[us]").astype("int64").to_numpy()
         kind = "timestamptz" if zone else "timestamp"
         return np.where(nulls, 0, codes), nulls, kind, None if zone is None else str(zone)
     if times.dtype == object and not pd.api.types.is_numeric_dtype(times):
@@ -143,7 +151,7 @@ def split_table(
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 10)
+    (16, 11)
     """
     keys = [key] if isinstance(key, str) else list(key)
     is_frame = isinstance(data, pd.DataFrame)
@@ -198,11 +206,17 @@ def split_table(
     for name in COMPONENTS:
         out[name] = getattr(result, name)
     if result.seasonal_parts is not None:
-        periods = np.repeat(np.array(result.batch.series_periods, dtype=object), lengths)
+        series_of = np.repeat(np.arange(lengths.size), lengths)
+        periods = [result.batch.series_periods[s] for s in series_of]
         parts = result.seasonal_parts
         out["seasonal_by_period"] = [
             {p: float(parts[k, r]) for k, p in enumerate(ps)} for r, ps in enumerate(periods)
         ]
     out["inserted"] = result.inserted
+    if result.seasonal_parts is not None:
+        out["periods"] = periods
+    else:
+        used = result.batch.periods.astype(float)
+        out["period"] = np.repeat(np.where(used > 0, used, np.nan), lengths)
     out["status"] = np.repeat(np.array(result.status, dtype=object), lengths)
     return out

@@ -237,11 +237,16 @@ def regularise(
             at = lo + int(np.flatnonzero(repeated[lo:hi])[0])
             status[s] = f"duplicate time {describe(int(codes[at]), kind)}"
         elif n_uneven[s]:
-            at = lo + int(np.flatnonzero(uneven[lo:hi])[0])
+            # name the first pair that breaks the most common step, which is what a
+            # person reads as "the" step of the series
+            own = diffs[lo + 1 : hi]
+            steps, counts = np.unique(own[own > 0], return_counts=True)
+            usual = int(steps[np.argmax(counts)])
+            at = lo + 1 + int(np.flatnonzero(own % usual != 0)[0])
             status[s] = (
                 f"irregular times: {describe(int(codes[at - 1]), kind)} to "
                 f"{describe(int(codes[at]), kind)} is not a whole number of steps "
-                f"of {describe_step(int(unit[s]), int(step[s]))}"
+                f"of {describe_step(int(unit[s]), usual)}"
             )
         else:
             status[s] = (

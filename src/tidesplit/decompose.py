@@ -306,6 +306,7 @@ def split_batch(
     missing = np.isnan(values)
     weight[missing] = np.nan
     lambdas[~ok] = np.nan
+    periods[~ok] = 0
     return BatchResult(
         offsets=offsets,
         trend=trend,

@@ -53,6 +53,8 @@ SELECT unnest(__key),
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        unnest(__parts.inserted) AS inserted,
+       __parts.period AS period,
+       __parts.periods AS periods,
        __parts.status AS status
 FROM __split
 WHERE NOT coalesce(fill_gaps, false)
@@ -74,18 +76,20 @@ SELECT unnest(__key),
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        unnest(__parts.inserted) AS inserted,
+       __parts.period AS period,
+       __parts.periods AS periods,
        __parts.status AS status
 FROM __split
 WHERE coalesce(fill_gaps, false);
 
 -- One key column by name, or a list of them (exact names, not patterns).
 CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {split_args}) AS TABLE
-    (SELECT * EXCLUDE (seasonal_by_period) FROM __tide_split_keys(tbl, [key], time, value, period := period, {split_named})),
+    (SELECT * EXCLUDE (seasonal_by_period, periods) FROM __tide_split_keys(tbl, [key], time, value, period := period, {split_named})),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {split_args}) AS TABLE
-    (SELECT * EXCLUDE (seasonal_by_period) FROM __tide_split_keys(tbl, key, time, value, period := period, {split_named}));
+    (SELECT * EXCLUDE (seasonal_by_period, periods) FROM __tide_split_keys(tbl, key, time, value, period := period, {split_named}));
 
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, {split_args}, {multi_args}) AS TABLE
-    (SELECT * FROM __tide_split_keys(tbl, [key], time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations)),
+    (SELECT * EXCLUDE (period) FROM __tide_split_keys(tbl, [key], time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, {split_args}, {multi_args}) AS TABLE
-    (SELECT * FROM __tide_split_keys(tbl, key, time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations));
+    (SELECT * EXCLUDE (period) FROM __tide_split_keys(tbl, key, time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations));
