@@ -23,6 +23,9 @@ __all__ = [
     "SplitError",
     "SplitParams",
     "connect",
+    "forecast",
+    "outliers",
+    "profile",
     "register",
     "split",
     "split_batch",
@@ -34,7 +37,7 @@ __version__ = "0.1.0"
 
 def __getattr__(name: str) -> Any:
     # pandas and duckdb load only when a front that needs them is first used.
-    if name in ("split", "split_table", "Split"):
+    if name in ("split", "split_table", "Split", "profile", "outliers", "forecast"):
         from . import api
 
         return getattr(api, name)

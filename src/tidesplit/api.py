@@ -9,9 +9,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from . import summaries
 from .decompose import OK, segment_counts, split_batch
 from .params import SplitParams
-from .rows import split_rows
+from .rows import RowsResult, split_rows
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
@@ -124,6 +125,58 @@ def _codes_to_times(codes: np.ndarray, kind: str, zone: str | None) -> pd.Series
     return stamps
 
 
+class _Table:
+    """A keyed table sorted into series: the common first step of the table functions."""
+
+    def __init__(self, data: Any, key: str | Sequence[str], time: str, value: str) -> None:
+        keys = [key] if isinstance(key, str) else list(key)
+        frame = data if isinstance(data, pd.DataFrame) else data.to_pandas()
+        missing = [c for c in [*keys, time, value] if c not in frame.columns]
+        if missing:
+            raise KeyError(f"no column(s) named {', '.join(missing)}")
+        frame = frame[[*keys, time, value]].copy()
+        codes, time_nulls, self.kind, self.zone = _time_codes(frame[time])
+        frame["__code"] = codes
+        frame["__null_time"] = time_nulls
+        order = [*keys, "__null_time", "__code", value]
+        frame = frame.sort_values(order, kind="stable", na_position="last")
+        self.frame = frame.reset_index(drop=True)
+        group_ids = self.frame.groupby(keys, sort=False, dropna=False).ngroup().to_numpy()
+        self.starts = np.flatnonzero(np.diff(group_ids, prepend=-1) != 0)
+        self.offsets = np.append(self.starts, len(frame)).astype(np.int64)
+        self.values = pd.to_numeric(self.frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
+        self.first_rows = self.frame.iloc[self.starts][keys]
+        self.keys, self.time, self.value = keys, time, value
+        self.status = [OK] * self.starts.size
+        nulls = segment_counts(self.frame["__null_time"].to_numpy(), self.offsets)
+        for i in np.flatnonzero(nulls):
+            self.status[i] = "a time is NULL"
+
+    def label(self, i: int) -> str:
+        row = self.first_rows.iloc[i]
+        return "{" + ", ".join(f"{k!r}: {row[k]!r}" for k in self.keys) + "}"
+
+    def split(
+        self, period: int | None, params: dict[str, Any], on_error: str, fill_gaps: bool
+    ) -> RowsResult:
+        return split_rows(
+            self.values,
+            self.offsets,
+            SplitParams.from_kwargs(period=period, **params),
+            codes=self.frame["__code"].to_numpy(),
+            kind=self.kind,
+            time_zone=self.zone,
+            label=self.label,
+            status=list(self.status),
+            on_error=on_error,
+            fill_gaps=fill_gaps,
+        )
+
+    def key_frame(self, series_of_rows: np.ndarray) -> pd.DataFrame:
+        """The key columns repeated for the given series indices."""
+        return self.first_rows.iloc[series_of_rows].reset_index(drop=True)
+
+
 def split_table(
     data: Any,
     key: str | Sequence[str],
@@ -153,43 +206,16 @@ def split_table(
     >>> split_table(frame, "shop", "t", "units", period=2).shape
     (16, 11)
     """
-    keys = [key] if isinstance(key, str) else list(key)
-    is_frame = isinstance(data, pd.DataFrame)
-    frame = data if is_frame else data.to_pandas()
-    missing = [c for c in [*keys, time, value] if c not in frame.columns]
-    if missing:
-        raise KeyError(f"no column(s) named {', '.join(missing)}")
-    frame = frame[[*keys, time, value]].copy()
-    codes, time_nulls, kind, zone = _time_codes(frame[time])
-    frame["__code"] = codes
-    frame["__null_time"] = time_nulls
-    order = [*keys, "__null_time", "__code", value]
-    frame = frame.sort_values(order, kind="stable", na_position="last").reset_index(drop=True)
-    group_ids = frame.groupby(keys, sort=False, dropna=False).ngroup().to_numpy()
-    starts = np.flatnonzero(np.diff(group_ids, prepend=-1) != 0)
-    offsets = np.append(starts, len(frame)).astype(np.int64)
-    y = pd.to_numeric(frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
-    first_rows = frame.iloc[starts][keys]
-    status = [OK] * starts.size
-    for i in np.flatnonzero(segment_counts(frame["__null_time"].to_numpy(), offsets)):
-        status[i] = "a time is NULL"
-
-    def label(i: int) -> str:
-        row = first_rows.iloc[i]
-        return "{" + ", ".join(f"{k!r}: {row[k]!r}" for k in keys) + "}"
-
-    result = split_rows(
-        y,
-        offsets,
-        SplitParams.from_kwargs(period=period, **params),
-        codes=frame["__code"].to_numpy(),
-        kind=kind,
-        time_zone=zone,
-        label=label,
-        status=status,
-        on_error=on_error,
-        fill_gaps=fill_gaps,
+    table = _Table(data, key, time, value)
+    frame, keys, starts, first_rows, kind, zone = (
+        table.frame,
+        table.keys,
+        table.starts,
+        table.first_rows,
+        table.kind,
+        table.zone,
     )
+    result = table.split(period, params, on_error, fill_gaps)
     lengths = np.diff(result.offsets)
     if result.source is not None:
         source = result.source
@@ -219,4 +245,135 @@ def split_table(
         used = result.batch.periods.astype(float)
         out["period"] = np.repeat(np.where(used > 0, used, np.nan), lengths)
     out["status"] = np.repeat(np.array(result.status, dtype=object), lengths)
+    return out
+
+
+def profile(
+    data: Any,
+    key: str | Sequence[str],
+    time: str,
+    value: str,
+    period: int | None = None,
+    *,
+    on_error: str = "raise",
+    **params: Any,
+) -> pd.DataFrame:
+    """One row per series: points, missing points, step, period(s), lambda, trend and
+    seasonal strength (Wang, Smith & Hyndman 2006), peak and trough of the cycle, seasonal
+    amplitude, remainder spread, share down-weighted, remainder lag-1 autocorrelation, status.
+
+    Examples
+    --------
+    >>> t = np.arange(48)
+    >>> frame = pd.DataFrame({"k": "a", "t": t, "v": 10 + np.sin(2 * np.pi * t / 12)})
+    >>> float(profile(frame, "k", "t", "v", period=12)["seasonal_strength"].iloc[0].round(2))
+    1.0
+    """
+    table = _Table(data, key, time, value)
+    result = table.split(period, params, on_error, fill_gaps=True)
+    found = summaries.profile(result, table.kind)
+    out = table.key_frame(np.arange(table.starts.size))
+    out["points"] = found.points
+    out["missing"] = found.missing
+    out["step"] = found.step
+    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+        out[name] = found.values[:, k]
+    if found.strength_by_period is not None:
+        out["strength_by_period"] = found.strength_by_period
+    out["peak_position"] = np.where(found.peak >= 0, found.peak, np.nan)
+    out["peak_label"] = found.peak_label
+    out["trough_position"] = np.where(found.trough >= 0, found.trough, np.nan)
+    out["trough_label"] = found.trough_label
+    used = result.batch.periods
+    out["period"] = np.where(used > 0, used, np.nan)
+    out["boxcox_lambda"] = result.batch.lambdas
+    out["status"] = result.status
+    return out
+
+
+def outliers(
+    data: Any,
+    key: str | Sequence[str],
+    time: str,
+    value: str,
+    period: int | None = None,
+    *,
+    method: str = "iqr",
+    threshold: float = 3.0,
+    all_rows: bool = False,
+    robust: bool = True,
+    on_error: str = "raise",
+    **params: Any,
+) -> pd.DataFrame:
+    """Rows whose remainder lies outside fences, with a score, the direction and the
+    expected value (trend + seasonal, on the original scale); all rows with ``all_rows``.
+
+    The split is robust by default, so that the points being judged do not pull the fit
+    towards themselves.
+
+    Examples
+    --------
+    >>> t = np.arange(120)
+    >>> v = 10 + np.sin(2 * np.pi * t / 12) + np.random.default_rng(1).normal(0, 0.1, 120)
+    >>> v[30] += 5
+    >>> frame = pd.DataFrame({"k": "a", "t": t, "v": v})
+    >>> row = outliers(frame, "k", "t", "v", period=12).query("t == 30").iloc[0]
+    >>> row["direction"], float(row["expected"].round(1))
+    ('high', 10.0)
+    """
+    table = _Table(data, key, time, value)
+    params = {"robust": robust, **params}
+    result = table.split(period, params, on_error, fill_gaps=True)
+    found = summaries.unusual_points(result, method, threshold)
+    rows = result.source >= 0
+    out = table.frame[[*table.keys, table.time, table.value]].copy()
+    out["expected"] = found.expected[rows]
+    out["remainder"] = result.remainder[rows]
+    out["score"] = found.score[rows]
+    out["direction"] = np.array(found.direction, dtype=object)[rows]
+    out["weight"] = result.weight[rows]
+    out["is_outlier"] = found.flagged[rows]
+    out["status"] = np.repeat(np.array(result.status, dtype=object), np.diff(table.offsets))
+    if all_rows:
+        return out
+    keep = out["is_outlier"] | ~out["status"].str.startswith(OK)
+    return out[keep].reset_index(drop=True)
+
+
+def forecast(
+    data: Any,
+    key: str | Sequence[str],
+    time: str,
+    value: str,
+    period: int | None = None,
+    *,
+    horizon: int = 12,
+    level: float = 0.95,
+    method: str = "damped",
+    on_error: str = "raise",
+    **params: Any,
+) -> pd.DataFrame:
+    """Future rows per series up to ``horizon`` steps, with prediction intervals at ``level``.
+
+    The decomposition forecast: the seasonal part carried forward from the last cycle, the
+    seasonally adjusted series forecast by a damped trend (``method='damped'``) or drift
+    (``'drift'``), added back and inverse-transformed.
+
+    Examples
+    --------
+    >>> t = np.arange(48)
+    >>> frame = pd.DataFrame({"k": "a", "t": t, "v": 10 + 0.1 * t + np.sin(2 * np.pi * t / 12)})
+    >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
+    [48, 49, 50]
+    """
+    table = _Table(data, key, time, value)
+    result = table.split(period, params, on_error, fill_gaps=True)
+    ahead = summaries.forecast(result, table.kind, table.zone, horizon, level, method)
+    ok = np.flatnonzero([s.startswith(OK) for s in result.status])
+    out = table.key_frame(np.repeat(ok, horizon))
+    out[table.time] = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
+    out["step"] = ahead.step
+    out["forecast"] = ahead.point
+    out["lower"] = ahead.lower
+    out["upper"] = ahead.upper
     return out

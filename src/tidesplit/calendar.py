@@ -345,6 +345,21 @@ def grid_codes(grid: Grid, kind: str, time_zone: str | None = None) -> np.ndarra
     return out
 
 
+def future_codes(grid: Grid, s: int, horizon: int, kind: str, time_zone: str | None) -> np.ndarray:
+    """The time codes of the ``horizon`` grid points after the end of series ``s``."""
+    length = int(grid.offsets[s + 1] - grid.offsets[s])
+    ahead = Grid(
+        unit=grid.unit[s : s + 1],
+        step=grid.step[s : s + 1],
+        slots=np.empty(0, np.int64),
+        offsets=np.array([0, length + horizon], dtype=np.int64),
+        first=grid.first[s : s + 1],
+        anchor=grid.anchor[s : s + 1],
+        local=grid.local[s : s + 1],
+    )
+    return grid_codes(ahead, kind, time_zone)[length:]
+
+
 def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
     """The first clear peak of the autocorrelation of the linearly detrended series, or 0.
 

@@ -7,6 +7,8 @@ the components back to one row per input row.
 
 from __future__ import annotations
 
+import inspect
+from dataclasses import dataclass
 from importlib import resources
 from typing import Any
 
@@ -15,10 +17,10 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import batch, calendar
+from . import batch, calendar, summaries
 from .decompose import OK, segment_counts
 from .params import ParamError, SplitParams
-from .rows import split_rows
+from .rows import RowsResult, split_rows
 
 UDF_NAME = "__tide_split_series"
 
@@ -126,113 +128,102 @@ def _per_row_maps(
     return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), maps)
 
 
-def _split_udf(  # DuckDB passes one argument per SQL parameter, in UDF_ARGS order
-    label: Any,
-    time_codes: Any,
-    time_kind: Any,
-    time_zone: Any,
-    values: Any,
-    period: Any,
-    season_span: Any,
-    trend_span: Any,
-    lowpass_span: Any,
-    season_degree: Any,
-    trend_degree: Any,
-    lowpass_degree: Any,
-    season_jump: Any,
-    trend_jump: Any,
-    lowpass_jump: Any,
-    robust: Any,
-    inner_loops: Any,
-    outer_loops: Any,
-    transform: Any,
-    boxcox_lambda: Any,
-    fill_gaps: Any,
-    on_error: Any,
-    periods: Any,
-    season_spans: Any,
-    iterations: Any,
-) -> pa.Array:
-    labels = batch.as_array(label)
-    value_lists = batch.as_array(values)
-    offsets, child, null_rows = batch.list_layout(value_lists)
+@dataclass
+class _Call:
+    """One UDF call, decoded: the series, their times and the split arguments."""
+
+    values: np.ndarray
+    offsets: np.ndarray
+    null_rows: np.ndarray
+    codes: np.ndarray | None
+    kind: str
+    zone: str | None
+    params: SplitParams
+    on_error: str
+    fill_gaps: bool
+    status: list[str]
+    label: Any
+    extra: dict[str, Any]
+
+    def split(self, fill_gaps: bool | None = None) -> RowsResult:
+        return split_rows(
+            self.values,
+            self.offsets,
+            self.params,
+            codes=self.codes,
+            kind=self.kind,
+            time_zone=self.zone,
+            label=self.label,
+            status=self.status,
+            on_error=self.on_error,
+            parallel=False,
+            fill_gaps=self.fill_gaps if fill_gaps is None else fill_gaps,
+        )
+
+
+def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call:
+    labels = columns["label"]
+    offsets, child, null_rows = batch.list_layout(columns["values"])
     flat = batch.float_values(child)
-    count = len(value_lists)
-    status = [OK] * count
+    status = [OK] * len(null_rows)
     for i in np.flatnonzero(null_rows):
         status[i] = "the list of values is NULL"
-
-    time_lists = batch.as_array(time_codes)
+    time_lists = columns["time_codes"]
     codes = None
     if time_lists.null_count < len(time_lists):
         time_offsets, time_child, _ = batch.list_layout(time_lists)
         if not np.array_equal(time_offsets, offsets):
             raise ValueError(f"{UDF_NAME}: times and values differ in length")
         codes, time_nulls = batch.int_values(time_child)
-        if time_nulls.any():
-            for i in np.flatnonzero(segment_counts(time_nulls, offsets)):
-                if status[i] == OK:
-                    status[i] = "a time is NULL"
-    kinds = batch.as_array(time_kind)
+        for i in np.flatnonzero(segment_counts(time_nulls, offsets)):
+            if status[i] == OK:
+                status[i] = "a time is NULL"
+    kinds, zones = columns["time_kind"], columns["time_zone"]
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
-    zones = batch.as_array(time_zone)
     zone = zones[0].as_py() if len(zones) else None
 
-    names = ["period"] + [n for n, _ in SPLIT_ARGS + MULTI_ARGS]
-    columns = [
-        period,
-        season_span,
-        trend_span,
-        lowpass_span,
-        season_degree,
-        trend_degree,
-        lowpass_degree,
-        season_jump,
-        trend_jump,
-        lowpass_jump,
-        robust,
-        inner_loops,
-        outer_loops,
-        transform,
-        boxcox_lambda,
-        fill_gaps,
-        on_error,
-        periods,
-        season_spans,
-        iterations,
-    ]
-    sets, _ = _param_sets(names, [batch.as_array(c) for c in columns])
+    names = ["period", *(n for n, _ in SPLIT_ARGS + MULTI_ARGS), *extra_names]
+    sets, _ = _param_sets(names, [columns[n] for n in names])
     if len(sets) > 1:
-        # rare: arguments that vary from row to row; split each group on its own
         raise ParamError("arguments must be the same for every series of one query")
     given = sets[0]
-    mode = given.pop("on_error") or "raise"
+    extra = {n: given.pop(n) for n in extra_names}
+    on_error = given.pop("on_error") or "raise"
     fill = bool(given.pop("fill_gaps"))
-    split_params = SplitParams.from_kwargs(**{k: v for k, v in given.items() if v is not None})
+    chosen = {k: v for k, v in given.items() if v is not None}
     if given.get("periods") == ():
-        split_params = SplitParams.from_kwargs(
-            **{k: v for k, v in given.items() if v is not None and k != "periods"}, periods=()
-        )
+        chosen["periods"] = ()
 
-    def name(i: int) -> str:
+    def label(i: int) -> str:
         text = labels[i].as_py() if len(labels) else None
         return text if text is not None else _describe_values(flat, offsets, i)
 
-    result = split_rows(
+    return _Call(
         flat,
         offsets,
-        split_params,
-        codes=codes,
-        kind=kind,
-        time_zone=zone,
-        label=name,
-        status=status,
-        on_error=mode,
-        parallel=False,
-        fill_gaps=fill,
+        null_rows,
+        codes,
+        kind,
+        zone,
+        SplitParams.from_kwargs(**chosen),
+        on_error,
+        fill,
+        status,
+        label,
+        extra,
     )
+
+
+def _lists(values: np.ndarray, offsets: np.ndarray, arrow_type: pa.DataType) -> pa.Array:
+    child = pa.array(values, type=arrow_type, from_pandas=True)
+    return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
+
+
+def _split_handler(call: _Call) -> pa.Array:
+    result = call.split()
+    count = len(call.null_rows)
     out_offsets = result.offsets
-    nulls = null_rows if null_rows.any() else None
+    nulls = call.null_rows if call.null_rows.any() else None
     fields = {
         part: batch.float_lists(getattr(result, part), out_offsets, nulls)
         for part in ("trend", "seasonal", "remainder", "adjusted", "weight")
@@ -242,22 +233,142 @@ def _split_udf(  # DuckDB passes one argument per SQL parameter, in UDF_ARGS ord
             result.seasonal_parts, result.batch.series_periods, out_offsets
         )
     else:
-        fields["seasonal_by_period"] = pa.nulls(count, pa.list_(pa.map_(pa.int64(), pa.float64())))
-    offsets32 = pa.array(out_offsets.astype(np.int32))
-    fields["inserted"] = pa.ListArray.from_arrays(offsets32, pa.array(result.inserted))
-    if fill and result.codes is not None:
-        fields["time_codes"] = pa.ListArray.from_arrays(offsets32, pa.array(result.codes))
-        fields["source"] = pa.ListArray.from_arrays(offsets32, pa.array(result.source))
+        map_type = pa.list_(pa.map_(pa.int64(), pa.float64()))
+        fields["seasonal_by_period"] = pa.nulls(count, map_type)
+    fields["inserted"] = _lists(result.inserted, out_offsets, pa.bool_())
+    if call.fill_gaps and result.codes is not None:
+        fields["time_codes"] = _lists(result.codes, out_offsets, pa.int64())
+        fields["source"] = _lists(result.source, out_offsets, pa.int64())
     else:
         fields["time_codes"] = pa.nulls(count, pa.list_(pa.int64()))
         fields["source"] = pa.nulls(count, pa.list_(pa.int64()))
-    used = result.batch.periods
-    fields["period"] = pa.array(np.where(used > 0, used, 0), mask=used == 0)
-    series_periods = result.batch.series_periods or [(int(p),) if p else () for p in used]
-    fields["periods"] = pa.array([list(p) for p in series_periods], pa.list_(pa.int64()))
-    fields["boxcox_lambda"] = pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True)
-    fields["status"] = pa.array(result.status, type=pa.string())
+    fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
+def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
+    """Per-series fields every function returns: period(s), lambda, status."""
+    used = result.batch.periods
+    series_periods = result.batch.series_periods or [(int(p),) if p else () for p in used]
+    return {
+        "period": pa.array(used, type=pa.int64(), mask=used == 0),
+        "periods": pa.array([list(p) for p in series_periods], pa.list_(pa.int64())),
+        "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
+        "status": pa.array(result.status, type=pa.string()),
+    }
+
+
+def _profile_handler(call: _Call) -> pa.Array:
+    result = call.split(fill_gaps=True)
+    found = summaries.profile(result, call.kind)
+    fields: dict[str, pa.Array] = {
+        "points": pa.array(found.points, pa.int64()),
+        "missing": pa.array(found.missing, pa.int64()),
+        "step": pa.array(found.step, pa.string()),
+    }
+    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+        fields[name] = pa.array(found.values[:, k], pa.float64(), from_pandas=True)
+    fields["strength_by_period"] = pa.array(
+        [
+            None if d is None else list(d.items())
+            for d in (found.strength_by_period or [None] * len(found.points))
+        ],
+        pa.map_(pa.int64(), pa.float64()),
+    )
+    fields["peak_position"] = pa.array(found.peak, pa.int64(), mask=found.peak < 0)
+    fields["peak_label"] = pa.array(found.peak_label, pa.string())
+    fields["trough_position"] = pa.array(found.trough, pa.int64(), mask=found.trough < 0)
+    fields["trough_label"] = pa.array(found.trough_label, pa.string())
+    fields.update(_series_fields(result))
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
+def _outlier_handler(call: _Call) -> pa.Array:
+    result = call.split(fill_gaps=True)
+    method = call.extra["method"] or "iqr"
+    threshold = 3.0 if call.extra["threshold"] is None else float(call.extra["threshold"])
+    found = summaries.unusual_points(result, method, threshold)
+    # back to the input rows (the grid's inserted times have no value to judge)
+    rows = result.source >= 0
+    offsets = call.offsets
+    direction = np.array(found.direction, dtype=object)[rows]
+    fields = {
+        "remainder": _lists(result.remainder[rows], offsets, pa.float64()),
+        "expected": _lists(found.expected[rows], offsets, pa.float64()),
+        "score": _lists(found.score[rows], offsets, pa.float64()),
+        "is_outlier": _lists(found.flagged[rows], offsets, pa.bool_()),
+        "direction": _lists(direction, offsets, pa.string()),
+        "weight": _lists(result.weight[rows], offsets, pa.float64()),
+    }
+    fields.update(_series_fields(result))
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
+def _forecast_handler(call: _Call) -> pa.Array:
+    result = call.split(fill_gaps=True)
+    horizon = 12 if call.extra["horizon"] is None else int(call.extra["horizon"])
+    level = 0.95 if call.extra["level"] is None else float(call.extra["level"])
+    method = call.extra["method"] or "damped"
+    ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method)
+    ok = np.array([s.startswith(OK) for s in result.status], dtype=bool)
+    # one list per series: empty for a series that could not be split
+    counts = np.where(ok, horizon, 0)
+    offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
+    fields = {
+        "step": _lists(ahead.step, offsets, pa.int64()),
+        "time_codes": _lists(ahead.codes, offsets, pa.int64())
+        if ahead.codes is not None
+        else pa.nulls(len(ok), pa.list_(pa.int64())),
+        "forecast": _lists(ahead.point, offsets, pa.float64()),
+        "lower": _lists(ahead.lower, offsets, pa.float64()),
+        "upper": _lists(ahead.upper, offsets, pa.float64()),
+    }
+    fields.update(_series_fields(result))
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
+_SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
+UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
+    UDF_NAME: (_split_handler, (), RESULT_TYPE),
+    "__tide_profile_series": (
+        _profile_handler,
+        (),
+        "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
+        + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
+        + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
+        "peak_label VARCHAR, trough_position BIGINT, trough_label VARCHAR, "
+        f"{_SERIES_TYPES})",
+    ),
+    "__tide_outlier_series": (
+        _outlier_handler,
+        (("method", "VARCHAR"), ("threshold", "DOUBLE")),
+        "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
+        f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
+    ),
+    "__tide_forecast_series": (
+        _forecast_handler,
+        (("horizon", "DOUBLE"), ("level", "DOUBLE"), ("method", "VARCHAR")),
+        "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "
+        f"upper DOUBLE[], {_SERIES_TYPES})",
+    ),
+}
+
+
+def _as_udf(handler: Any, extra: tuple[tuple[str, str], ...]) -> Any:
+    """A Python function of one positional argument per SQL parameter, for DuckDB."""
+    names = [n for n, _ in UDF_ARGS + extra]
+    extra_names = tuple(n for n, _ in extra)
+
+    def call(*columns: Any) -> pa.Array:
+        decoded = _decode(
+            {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)}, extra_names
+        )
+        return handler(decoded)
+
+    call.__signature__ = inspect.Signature(  # type: ignore[attr-defined]
+        [inspect.Parameter(n, inspect.Parameter.POSITIONAL_ONLY) for n in names]
+    )
+    return call
 
 
 def _macro_sql() -> str:
@@ -266,15 +377,21 @@ def _macro_sql() -> str:
         text.replace("{split_args}", ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS))
         .replace("{split_pass}", ", ".join(name for name, _ in SPLIT_ARGS))
         .replace("{split_named}", ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS))
+        .replace(
+            "{outlier_args}",
+            ", ".join(
+                f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in SPLIT_ARGS
+            ),
+        )
         .replace("{multi_args}", ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS))
         .replace("{multi_pass}", ", ".join(name for name, _ in MULTI_ARGS))
         .replace("{multi_named}", ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS))
     )
 
 
-def _has_udf(con: duckdb.DuckDBPyConnection) -> bool:
+def _has_udf(con: duckdb.DuckDBPyConnection, name: str) -> bool:
     found = con.execute(
-        "SELECT count(*) FROM duckdb_functions() WHERE function_name = ?", [UDF_NAME]
+        "SELECT count(*) FROM duckdb_functions() WHERE function_name = ?", [name]
     ).fetchall()
     return bool(found[0][0])
 
@@ -295,18 +412,20 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     >>> con.sql(sql).fetchall()
     [(8,)]
     """
-    if replace and _has_udf(con):
-        con.remove_function(UDF_NAME)
-    if replace or not _has_udf(con):
-        con.create_function(
-            UDF_NAME,
-            _split_udf,
-            [t for _, t in UDF_ARGS],
-            RESULT_TYPE,
-            type="arrow",
-            null_handling="special",
-            side_effects=False,
-        )
+    for name, (handler, extra, result_type) in UDFS.items():
+        present = _has_udf(con, name)
+        if present and replace:
+            con.remove_function(name)
+        if replace or not present:
+            con.create_function(
+                name,
+                _as_udf(handler, extra),
+                [t for _, t in UDF_ARGS + extra],
+                result_type,
+                type="arrow",
+                null_handling="special",
+                side_effects=False,
+            )
     con.execute(_macro_sql())
     return con
 

@@ -34,6 +34,7 @@ class RowsResult:
     inserted: np.ndarray  # per output row: a time inserted into a gap
     source: np.ndarray | None  # per output row: its input row, -1 if inserted (fill_gaps)
     codes: np.ndarray | None  # per output row: time code (fill_gaps)
+    grid: calendar.Grid | None = None  # the regular grid, when times were given
 
     @property
     def status(self) -> list[str]:
@@ -152,6 +153,7 @@ def split_rows(
             inserted=inserted,
             source=source,
             codes=calendar.grid_codes(grid, kind, time_zone),
+            grid=grid,
             **out,
         )
     if positions is not None:
@@ -167,5 +169,6 @@ def split_rows(
         inserted=np.zeros(values.size, dtype=bool),
         source=identity if fill_gaps else None,
         codes=codes if fill_gaps else None,
+        grid=grid,
         **out,
     )

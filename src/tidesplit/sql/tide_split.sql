@@ -19,7 +19,8 @@ CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, {split_args}) AS
     __tide_split_series(NULL, NULL, NULL, NULL, values, period, {split_pass}, NULL, NULL, NULL);
 
-CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}) AS TABLE
+-- Every series of a table as ordered lists, one row per key.
+CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value) AS TABLE
 WITH __src AS (
     SELECT struct_pack(*COLUMNS(keys)) AS __key,
            struct_pack(COLUMNS([time])) AS __time_row,
@@ -27,20 +28,35 @@ WITH __src AS (
            struct_pack(COLUMNS([value])) AS __value_row,
            CAST(COLUMNS([value]) AS DOUBLE) AS __value
     FROM query_table(tbl)
-), __grouped AS (
-    SELECT __key,
-           list(__time_row ORDER BY __time_code, __value) AS __time_rows,
-           list(__value_row ORDER BY __time_code, __value) AS __value_rows,
-           list(__time_code ORDER BY __time_code, __value) AS __time_codes,
-           list(__value ORDER BY __time_code, __value) AS __values
-    FROM __src
-    GROUP BY __key
-), __split AS MATERIALIZED (
+)
+SELECT __key,
+       list(__time_row ORDER BY __time_code, __value) AS __time_rows,
+       list(__value_row ORDER BY __time_code, __value) AS __value_rows,
+       list(__time_code ORDER BY __time_code, __value) AS __time_codes,
+       list(__value ORDER BY __time_code, __value) AS __values
+FROM __src
+GROUP BY __key;
+
+-- A grid time code back to a time row shaped like the input's (name and type).
+CREATE OR REPLACE TEMP MACRO __tide_time_rows(codes, time_rows) AS
+    list_transform(codes, lambda c:
+        CASE WHEN false THEN time_rows[1]
+             ELSE row(__tide_time_from_code(c, struct_extract_at(time_rows[1], 1))) END);
+
+-- A grid row's input value (NULL for an inserted time), shaped like the input's.
+CREATE OR REPLACE TEMP MACRO __tide_value_rows(source, value_rows) AS
+    list_transform(source, lambda i:
+        CASE WHEN i >= 0 THEN value_rows[i + 1]
+             ELSE (CASE WHEN false THEN value_rows[1] ELSE row(NULL) END) END);
+
+CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}) AS TABLE
+WITH __split AS MATERIALIZED (
     SELECT __key, __time_rows, __value_rows,
            __tide_split_series(CAST(__key AS VARCHAR), __time_codes,
-                               typeof(struct_extract_at(__time_rows[1], 1)), current_setting('TimeZone'),
+                               typeof(struct_extract_at(__time_rows[1], 1)),
+                               current_setting('TimeZone'),
                                __values, period, {split_pass}, {multi_pass}) AS __parts
-    FROM __grouped
+    FROM __tide_grouped(tbl, keys, time, value)
 )
 -- the input rows as they came
 SELECT unnest(__key),
@@ -61,14 +77,8 @@ WHERE NOT coalesce(fill_gaps, false)
 UNION ALL
 -- with fill_gaps: every point of the regular grid, the inserted ones marked
 SELECT unnest(__key),
-       unnest(list_transform(__parts.time_codes, lambda c:
-           CASE WHEN false THEN __time_rows[1]
-                ELSE row(__tide_time_from_code(c, struct_extract_at(__time_rows[1], 1))) END),
-           recursive := true),
-       unnest(list_transform(__parts.source, lambda i:
-           CASE WHEN i >= 0 THEN __value_rows[i + 1]
-                ELSE (CASE WHEN false THEN __value_rows[1] ELSE row(NULL) END) END),
-           recursive := true),
+       unnest(__tide_time_rows(__parts.time_codes, __time_rows), recursive := true),
+       unnest(__tide_value_rows(__parts.source, __value_rows), recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
        unnest(__parts.seasonal_by_period) AS seasonal_by_period,
@@ -87,6 +97,68 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
     (SELECT * EXCLUDE (seasonal_by_period, periods) FROM __tide_split_keys(tbl, [key], time, value, period := period, {split_named})),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {split_args}) AS TABLE
     (SELECT * EXCLUDE (seasonal_by_period, periods) FROM __tide_split_keys(tbl, key, time, value, period := period, {split_named}));
+
+-- Per-series answers, one row per key.
+CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}) AS TABLE
+SELECT unnest(__key), unnest(__p)
+FROM (SELECT __key,
+             __tide_profile_series(CAST(__key AS VARCHAR), __time_codes,
+                                   typeof(struct_extract_at(__time_rows[1], 1)),
+                                   current_setting('TimeZone'), __values, period,
+                                   {split_pass}, {multi_pass}) AS __p
+      FROM __tide_grouped(tbl, keys, time, value));
+
+CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {split_args}, {multi_args}) AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, [key], time, value, period := period, {split_named}, {multi_named})),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {split_args}, {multi_args}) AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}));
+
+-- Points whose remainder lies outside the fences (all rows with all_rows := true).
+CREATE OR REPLACE TEMP MACRO __tide_outlier_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
+SELECT * FROM (
+    SELECT unnest(__key),
+           unnest(__time_rows, recursive := true),
+           unnest(__value_rows, recursive := true),
+           unnest(__o.expected) AS expected,
+           unnest(__o.remainder) AS remainder,
+           unnest(__o.score) AS score,
+           unnest(__o.direction) AS direction,
+           unnest(__o.weight) AS weight,
+           unnest(__o.is_outlier) AS is_outlier,
+           __o.status AS status
+    FROM (SELECT __key, __time_rows, __value_rows,
+                 __tide_outlier_series(CAST(__key AS VARCHAR), __time_codes,
+                                       typeof(struct_extract_at(__time_rows[1], 1)),
+                                       current_setting('TimeZone'), __values, period,
+                                       {split_pass}, {multi_pass}, method, threshold) AS __o
+          FROM __tide_grouped(tbl, keys, time, value)))
+WHERE is_outlier OR coalesce(all_rows, false) OR NOT starts_with(status, 'ok');
+
+CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
+    (SELECT * FROM __tide_outlier_keys(tbl, [key], time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, all_rows := all_rows)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
+    (SELECT * FROM __tide_outlier_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, all_rows := all_rows));
+
+-- Future rows per key up to a horizon, with prediction intervals.
+CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}, horizon := NULL, level := NULL, method := NULL) AS TABLE
+SELECT unnest(__key),
+       unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
+       unnest(__f.step) AS step,
+       unnest(__f.forecast) AS forecast,
+       unnest(__f.lower) AS lower,
+       unnest(__f.upper) AS upper,
+       __f.status AS status
+FROM (SELECT __key, __time_rows,
+             __tide_forecast_series(CAST(__key AS VARCHAR), __time_codes,
+                                    typeof(struct_extract_at(__time_rows[1], 1)),
+                                    current_setting('TimeZone'), __values, period,
+                                    {split_pass}, {multi_pass}, horizon, level, method) AS __f
+      FROM __tide_grouped(tbl, keys, time, value));
+
+CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {split_args}, {multi_args}, horizon := NULL, level := NULL, method := NULL) AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := period, {split_named}, {multi_named}, horizon := horizon, level := level, method := method)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {split_args}, {multi_args}, horizon := NULL, level := NULL, method := NULL) AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}, horizon := horizon, level := level, method := method));
 
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, {split_args}, {multi_args}) AS TABLE

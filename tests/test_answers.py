@@ -1,0 +1,286 @@
+"""tide_profile, tide_outliers and tide_forecast (and their Python twins) against hand
+computations, statsmodels and open datasets."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from datasets import AIRLINE_PASSENGERS, co2_monthly, elec_equip_monthly, elnino_monthly
+from statsmodels.tsa.arima.model import ARIMA
+from statsmodels.tsa.forecasting.stl import STLForecast
+from statsmodels.tsa.holtwinters import ExponentialSmoothing
+from statsmodels.tsa.seasonal import STL
+
+import tidesplit
+from tidesplit.kernel import summary
+
+
+def monthly_frame(y, key="s", start="2000-01-01"):
+    months = pd.date_range(start, periods=len(y), freq="MS")
+    return pd.DataFrame({"k": key, "month": months, "v": np.asarray(y, dtype=float)})
+
+
+# ---- strengths -------------------------------------------------------------------------
+
+
+def test_strength_formula_by_hand():
+    # Wang, Smith & Hyndman (2006); Hyndman & Athanasopoulos, FPP 3rd ed., section 4.3:
+    # F = max(0, 1 - Var(R) / Var(C + R)). By hand: R = [1, -1, 1, -1] has sample variance
+    # 4/3; S + R = [3, -1, -1, -1] has 4, so F_S = 2/3; T + R = [1, 0, 3, 2] has 5/3, so
+    # F_T = 1/5.
+    r = np.array([1.0, -1, 1, -1])
+    assert summary.strength(np.array([2.0, 0, -2, 0]), r) == pytest.approx(2 / 3)
+    assert summary.strength(np.array([0.0, 1, 2, 3]), r) == pytest.approx(0.2)
+    assert summary.strength(np.array([0.0, 0, 0, 0]), r) == 0.0  # clipped at zero
+
+
+def test_strengths_of_pure_cycle_and_of_noise(rng):
+    t = np.arange(120)
+    cycle = 10 + 3 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 0.05, 120)
+    noise = 10 + rng.normal(0, 1, 120)
+    frame = pd.concat([monthly_frame(cycle, "cycle"), monthly_frame(noise, "noise")])
+    out = tidesplit.profile(frame, "k", "month", "v").set_index("k")
+    assert out.loc["cycle", "seasonal_strength"] > 0.99
+    assert out.loc["noise", "seasonal_strength"] < 0.4
+    assert out.loc["noise", "trend_strength"] < 0.4
+
+
+def test_strengths_equal_those_of_statsmodels_components():
+    # the same formula applied to statsmodels' STL components (matched parameters)
+    y = elec_equip_monthly()
+    fit = STL(
+        y,
+        period=12,
+        seasonal=13,
+        trend=21,
+        low_pass=13,
+        seasonal_jump=2,
+        trend_jump=3,
+        low_pass_jump=2,
+    ).fit(inner_iter=2, outer_iter=0)
+    r = np.asarray(fit.resid)
+    expected_s = max(0, 1 - np.var(r, ddof=1) / np.var(fit.seasonal + r, ddof=1))
+    expected_t = max(0, 1 - np.var(r, ddof=1) / np.var(fit.trend + r, ddof=1))
+    out = tidesplit.profile(monthly_frame(y), "k", "month", "v")
+    assert out["seasonal_strength"].iloc[0] == pytest.approx(expected_s, abs=1e-8)
+    assert out["trend_strength"].iloc[0] == pytest.approx(expected_t, abs=1e-8)
+
+
+def test_profile_cycle_shape_and_labels(con):
+    t = np.arange(72)
+    y = 100 + 10 * np.sin(2 * np.pi * (t - 0) / 12)  # peaks in April, troughs in October
+    frame = monthly_frame(y)
+    con.register("frame", frame)
+    row = con.sql("SELECT * FROM tide_profile(frame, 'k', 'month', 'v')").df().iloc[0]
+    assert (row["peak_label"], row["trough_label"]) == ("April", "October")
+    assert (row["peak_position"], row["trough_position"]) == (3, 9)
+    assert row["seasonal_amplitude"] == pytest.approx(20, abs=0.5)
+    assert row["points"] == 72 and row["missing"] == 0 and row["step"] == "1 month"
+    assert row["period"] == 12 and row["status"] == "ok"
+    python = tidesplit.profile(frame, "k", "month", "v").iloc[0]
+    for name in ("trend_strength", "seasonal_strength", "remainder_sd", "remainder_acf1"):
+        assert row[name] == pytest.approx(python[name], abs=1e-10)
+
+
+def test_profile_counts_missing_and_flags_bad_series(con):
+    frame = monthly_frame(co2_monthly()[:120]).dropna()
+    short = monthly_frame(np.arange(10.0), key="short")
+    con.register("frame", pd.concat([frame, short]))
+    out = con.sql(
+        "SELECT * FROM tide_profile(frame, 'k', 'month', 'v', transform := 'boxcox', "
+        "on_error := 'keep') ORDER BY k"
+    ).df()
+    good, bad = out.iloc[0], out.iloc[1]
+    assert good["missing"] == 120 - len(frame) and good["points"] == len(frame)
+    assert -1 <= good["boxcox_lambda"] <= 2
+    assert bad["status"].startswith("has 10 points") and np.isnan(bad["seasonal_strength"])
+
+
+def test_profile_with_two_periods(con, rng):
+    t = np.arange(24 * 7 * 4)
+    y = (
+        20
+        + 4 * np.sin(2 * np.pi * t / 24)
+        + 2 * np.sin(2 * np.pi * t / 168)
+        + rng.normal(0, 0.3, t.size)
+    )
+    frame = pd.DataFrame(
+        {"k": "m", "ts": pd.date_range("2024-01-01", periods=t.size, freq="h"), "v": y}
+    )
+    con.register("frame", frame)
+    row = (
+        con.sql("SELECT * FROM tide_profile(frame, 'k', 'ts', 'v', periods := [24, 168])")
+        .df()
+        .iloc[0]
+    )
+    strengths = dict(row["strength_by_period"])
+    assert strengths[24] > 0.9 and strengths[168] > 0.6
+    assert row["peak_label"] == "06:00"  # sin over the day peaks a quarter-day in
+
+
+# ---- outliers ---------------------------------------------------------------------------
+
+OPEN_SERIES = {
+    "elec_equip": elec_equip_monthly,
+    "co2": lambda: pd.Series(co2_monthly()).interpolate().to_numpy(),
+    "elnino": elnino_monthly,
+    "airline (log)": lambda: np.log(AIRLINE_PASSENGERS),
+}
+
+
+def inject_spikes(y, rng, count=5, size=6.0):
+    """Spikes of `size` standard deviations of the plain fit's remainder, distinct places."""
+    scale = np.std(tidesplit.split(y, period=12).remainder)
+    places = np.sort(rng.choice(np.arange(12, y.size - 12), count, replace=False))
+    spiked = y.copy()
+    spiked[places] += size * scale * rng.choice([-1, 1], count)
+    return spiked, set(places.tolist())
+
+
+def spike_scores(name, robust, trials=5):
+    rng = np.random.default_rng(3)
+    recalls, false_rates = [], []
+    for _ in range(trials):
+        y, places = inject_spikes(OPEN_SERIES[name](), rng)
+        frame = pd.DataFrame({"k": name, "t": np.arange(y.size), "v": y})
+        found = set(tidesplit.outliers(frame, "k", "t", "v", period=12, robust=robust)["t"])
+        recalls.append(len(found & places) / len(places))
+        false_rates.append(len(found - places) / y.size)
+    return np.mean(recalls), np.mean(false_rates)
+
+
+@pytest.mark.parametrize("name", sorted(OPEN_SERIES))
+def test_injected_spikes_are_found(name):
+    # 5 spikes of 6 sd in each of 5 trials per open dataset (shipped with statsmodels, and
+    # the airline series). "False" flags include the datasets' own unusual months (the 2008
+    # fall in elec_equip, say), so their rate is an upper bound.
+    recall, false_rate = spike_scores(name, robust=True)
+    assert recall >= 0.9, (recall, false_rate)
+    assert false_rate <= 0.06, (recall, false_rate)
+    # the robust default is there because a plain fit bends towards the spikes it should find
+    plain_recall, _ = spike_scores(name, robust=False)
+    assert recall > plain_recall
+
+
+def test_clean_series_flag_few(rng):
+    # Gaussian noise around a cycle: 3-IQR fences (common practice) should flag well under 1%
+    flagged = 0
+    total = 0
+    for _ in range(20):
+        t = np.arange(240)
+        y = 10 + 0.01 * t + np.sin(2 * np.pi * t / 12) + rng.normal(0, 0.2, t.size)
+        frame = pd.DataFrame({"k": "x", "t": t, "v": y})
+        flagged += len(tidesplit.outliers(frame, "k", "t", "v", period=12))
+        total += t.size
+    assert flagged / total < 0.01
+
+
+def test_outliers_in_sql_match_python_and_join_back(con, rng):
+    y, _ = inject_spikes(elec_equip_monthly(), rng)
+    frame = monthly_frame(y)
+    con.register("frame", frame)
+    sql = con.sql("SELECT * FROM tide_outliers(frame, 'k', 'month', 'v') ORDER BY month").df()
+    python = tidesplit.outliers(frame, "k", "month", "v")
+    np.testing.assert_array_equal(pd.to_datetime(sql["month"]), pd.to_datetime(python["month"]))
+    np.testing.assert_allclose(sql["score"], python["score"], atol=1e-10)
+    assert set(sql["direction"]) <= {"high", "low"} and sql["is_outlier"].all()
+    every = con.sql(
+        "SELECT * FROM tide_outliers(frame, 'k', 'month', 'v', all_rows := true, method := 'mad')"
+    ).df()
+    assert len(every) == len(frame)
+    # expected is trend + seasonal on the original scale
+    logged = con.sql(
+        "SELECT * FROM tide_outliers(frame, 'k', 'month', 'v', all_rows := true, "
+        "transform := 'log')"
+    ).df()
+    np.testing.assert_allclose(
+        np.log(logged["v"]) - np.log(logged["expected"]), logged["remainder"], atol=1e-10
+    )
+
+
+# ---- forecasts --------------------------------------------------------------------------
+
+
+def test_drift_forecast_matches_statsmodels_stl_forecast():
+    # statsmodels' STLForecast carries the last cycle of the seasonal part forward and
+    # forecasts the adjusted series with the given model; ARIMA(0,1,0) with a trend term is
+    # a random walk with drift, our 'drift' method.
+    y = elec_equip_monthly()[:-12]
+    stl_args = dict(
+        seasonal=13, trend=21, low_pass=13, seasonal_jump=2, trend_jump=3, low_pass_jump=2
+    )
+    fit = STLForecast(
+        y, ARIMA, model_kwargs={"order": (0, 1, 0), "trend": "t"}, period=12, **stl_args
+    ).fit(inner_iter=2, outer_iter=0)
+    theirs = fit.forecast(12)
+    frame = pd.DataFrame({"k": "e", "t": np.arange(y.size), "v": y})
+    ours = tidesplit.forecast(frame, "k", "t", "v", period=12, horizon=12, method="drift")
+    np.testing.assert_allclose(ours["forecast"], theirs, rtol=1e-4)
+    assert ours["t"].tolist() == list(range(y.size, y.size + 12))
+
+
+def test_damped_trend_recursion_matches_statsmodels():
+    # statsmodels' ExponentialSmoothing (Holt's damped trend, fixed parameters, known start);
+    # its smoothing_trend b* relates to our state-space beta by beta = alpha * b*
+    a = np.log(AIRLINE_PASSENGERS)
+    alpha, beta_star, phi = 0.6, 0.1, 0.9
+    l0, b0 = a[0], a[1] - a[0]
+    model = ExponentialSmoothing(
+        a[1:],
+        trend="add",
+        damped_trend=True,
+        initialization_method="known",
+        initial_level=l0,
+        initial_trend=b0,
+    ).fit(smoothing_level=alpha, smoothing_trend=beta_star, damping_trend=phi, optimized=False)
+    level, slope, sse, _ = summary.damped_path(a[1:], alpha, alpha * beta_star, phi, l0, b0)
+    h = np.arange(1, 7)
+    ours = level + np.cumsum(phi**h) * slope
+    np.testing.assert_allclose(ours, model.forecast(6), rtol=1e-12)
+    assert sse == pytest.approx(model.sse, rel=1e-10)
+
+
+def mase(actual, forecast, train, period):
+    # Hyndman & Koehler (2006): MAE scaled by the in-sample seasonal naive MAE
+    scale = np.mean(np.abs(train[period:] - train[:-period]))
+    return np.mean(np.abs(actual - forecast)) / scale
+
+
+@pytest.mark.parametrize("method", ["damped", "drift"])
+def test_forecast_beats_seasonal_naive_on_held_out_tail(method):
+    y = AIRLINE_PASSENGERS
+    train, test = y[:-24], y[-24:]
+    frame = monthly_frame(train, start="1949-01-01")
+    out = tidesplit.forecast(frame, "k", "month", "v", horizon=24, method=method, transform="log")
+    ours = mase(test, out["forecast"].to_numpy(), train, 12)
+    naive = mase(test, np.tile(train[-12:], 2), train, 12)
+    assert ours < naive, (ours, naive)
+    # future rows carry the next months
+    assert pd.to_datetime(out["month"]).dt.strftime("%Y-%m").tolist()[:2] == ["1959-01", "1959-02"]
+
+
+@pytest.mark.parametrize("method", ["damped", "drift"])
+def test_intervals_widen_with_horizon(con, method):
+    frame = monthly_frame(elec_equip_monthly())
+    con.register("frame", frame)
+    out = con.sql(
+        f"SELECT * FROM tide_forecast(frame, 'k', 'month', 'v', horizon := 18, level := 0.8, "
+        f"method := '{method}') ORDER BY step"
+    ).df()
+    width = (out["upper"] - out["lower"]).to_numpy()
+    assert (np.diff(width) > 0).all()
+    assert ((out["lower"] < out["forecast"]) & (out["forecast"] < out["upper"])).all()
+    python = tidesplit.forecast(frame, "k", "month", "v", horizon=18, level=0.8, method=method)
+    np.testing.assert_allclose(out["forecast"], python["forecast"], rtol=1e-10)
+
+
+def test_future_times_follow_the_step(con):
+    weeks = pd.date_range("2023-01-02", periods=120, freq="7D").date
+    t = np.arange(120)
+    frame = pd.DataFrame({"k": "w", "week": weeks, "v": 50 + np.sin(2 * np.pi * t / 52) + 0.1 * t})
+    con.register("frame", frame)
+    out = con.sql("SELECT * FROM tide_forecast(frame, 'k', 'week', 'v', horizon := 3)").df()
+    expected = [weeks[-1] + pd.Timedelta(days=7 * h) for h in (1, 2, 3)]
+    assert pd.to_datetime(out["week"]).dt.date.tolist() == expected
+    assert out["step"].tolist() == [1, 2, 3]
