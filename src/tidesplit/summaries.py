@@ -13,7 +13,7 @@ from scipy.stats import norm
 
 from . import calendar, transform
 from .decompose import OK
-from .kernel import summary
+from .kernel import summary, threads
 from .rows import RowsResult
 
 PROFILE_COLUMNS = (
@@ -238,6 +238,7 @@ def forecast(
     horizon: int = 12,
     level: float = 0.95,
     method: str = "damped",
+    parallel: bool = True,
 ) -> Forecast:
     """Decomposition forecast: seasonal part carried forward from the last cycle, the
     seasonally adjusted series (trend + remainder) forecast by a damped trend or drift, added
@@ -260,7 +261,12 @@ def forecast(
     spread = np.full((count, horizon), np.nan)
     if method == "damped":
         fitted = np.empty((count, 6))
-        summary.damped_fit_batch(
+        launch = (
+            (lambda *a: threads.launch(summary.damped_fit_batch, *a))
+            if parallel
+            else summary.damped_fit_serial
+        )
+        launch(
             adjusted,
             offsets,
             ok,

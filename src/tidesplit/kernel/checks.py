@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # Reason codes, in the order they are checked.
 FINE = 0
@@ -20,7 +20,7 @@ ALL_MISSING = 5
 PHASE_UNSEEN = 6
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def scan_batch(
     values: np.ndarray,
     offsets: np.ndarray,
@@ -37,7 +37,7 @@ def scan_batch(
     ``times`` is empty when there are no times to check.
     """
     check_times = times.shape[0] > 0
-    for s in prange(offsets.shape[0] - 1):
+    for s in range(offsets.shape[0] - 1):
         code[s] = FINE
         where[s] = -1
         if not todo[s]:

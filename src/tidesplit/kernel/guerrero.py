@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 LOWER = -1.0
 UPPER = 2.0
@@ -84,7 +84,7 @@ def _minimise(means: np.ndarray, sds: np.ndarray, count: int) -> float:
     return 0.5 * (a + b)
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def guerrero_batch(
     values: np.ndarray,
     offsets: np.ndarray,
@@ -93,7 +93,7 @@ def guerrero_batch(
     out: np.ndarray,
 ) -> None:
     """Lambda per active series into ``out``; NaN with fewer than two blocks or no spread."""
-    for s in prange(offsets.shape[0] - 1):
+    for s in range(offsets.shape[0] - 1):
         out[s] = np.nan
         if not active[s]:
             continue

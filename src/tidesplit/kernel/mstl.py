@@ -12,6 +12,7 @@ import numpy as np
 from numba import get_num_threads, njit, prange
 
 from .stl import COL_ACTIVE, COL_PERIOD, _stl_one, buffer_size
+from .threads import launch
 
 
 @njit(nogil=True, cache=True)
@@ -130,6 +131,15 @@ def mstl_batch_parallel(
     """MSTL of every active series, spread over numba's threads."""
     count = offsets.shape[0] - 1
     chunks = max(1, min(count, 4 * get_num_threads()))
-    _mstl_batch_parallel(
-        values, offsets, settings, n_periods, rounds, trend, seasonal, weight, chunks
+    launch(
+        _mstl_batch_parallel,
+        values,
+        offsets,
+        settings,
+        n_periods,
+        rounds,
+        trend,
+        seasonal,
+        weight,
+        chunks,
     )

@@ -14,6 +14,7 @@ import numpy as np
 from numba import get_num_threads, njit, prange
 
 from .loess import FAR, NEAR, fit_at, smooth
+from .threads import launch
 
 # Columns of the settings matrix, one row per series.
 COL_PERIOD = 0
@@ -315,4 +316,4 @@ def stl_batch_parallel(
     """STL over every active series of the batch, spread over numba's threads."""
     count = offsets.shape[0] - 1
     chunks = max(1, min(count, 4 * get_num_threads()))
-    _stl_batch_parallel(values, offsets, settings, trend, seasonal, weight, chunks)
+    launch(_stl_batch_parallel, values, offsets, settings, trend, seasonal, weight, chunks)

@@ -40,7 +40,7 @@ def strength(component: np.ndarray, remainder: np.ndarray) -> float:
     return max(0.0, 1.0 - _variance(remainder, remainder, False) / joint)
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def series_summary(
     trend: np.ndarray,
     seasonal: np.ndarray,
@@ -57,7 +57,7 @@ def series_summary(
     amplitude (range of the mean seasonal by cycle position), remainder sd, share of points
     with robustness weight below 0.5, lag-1 autocorrelation of the remainder; and the cycle
     positions of the seasonal peak and trough."""
-    for s in prange(offsets.shape[0] - 1):
+    for s in range(offsets.shape[0] - 1):
         for c in range(out.shape[1]):
             out[s, c] = math.nan
         peak[s] = -1
@@ -118,7 +118,7 @@ def series_summary(
             out[s, 5] = num / den if den > 0 else math.nan
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def remainder_fences(
     remainder: np.ndarray,
     offsets: np.ndarray,
@@ -133,7 +133,7 @@ def remainder_fences(
     method 1 (MAD): centre the median, scale 1.4826 MAD, fences centre -/+ k scale.
     Quartiles interpolate linearly between order statistics (numpy's default).
     """
-    for s in prange(offsets.shape[0] - 1):
+    for s in range(offsets.shape[0] - 1):
         for c in range(4):
             out[s, c] = math.nan
         if not active[s]:
@@ -186,6 +186,21 @@ def damped_path(
     return level, slope, sse, count
 
 
+@njit(nogil=True, cache=True)
+def damped_fit_serial(
+    adjusted: np.ndarray,
+    offsets: np.ndarray,
+    active: np.ndarray,
+    alphas: np.ndarray,
+    betas: np.ndarray,
+    phis: np.ndarray,
+    out: np.ndarray,
+) -> None:
+    """``damped_fit_batch`` on the calling thread (for callers with threads of their own)."""
+    for s in range(offsets.shape[0] - 1):
+        _damped_fit_one(adjusted, offsets, active, alphas, betas, phis, out, s)
+
+
 @njit(nogil=True, parallel=True, cache=True)
 def damped_fit_batch(
     adjusted: np.ndarray,
@@ -202,37 +217,52 @@ def damped_fit_batch(
     ``out`` columns: alpha, beta, phi, final level, final slope, residual variance.
     """
     for s in prange(offsets.shape[0] - 1):
-        for c in range(6):
-            out[s, c] = math.nan
-        if not active[s]:
-            continue
-        a = adjusted[offsets[s] : offsets[s + 1]]
-        first = -1
-        second = -1
-        for i in range(a.shape[0]):
-            if not math.isnan(a[i]):
-                if first < 0:
-                    first = i
-                elif second < 0:
-                    second = i
-                    break
-        if second < 0:
-            continue
-        level0 = a[first]
-        slope0 = (a[second] - a[first]) / (second - first)
-        tail = a[first + 1 :]
-        best = math.inf
-        for alpha in alphas:
-            for beta in betas:
-                if beta > alpha:
-                    continue
-                for phi in phis:
-                    level, slope, sse, count = damped_path(tail, alpha, beta, phi, level0, slope0)
-                    if sse < best:
-                        best = sse
-                        out[s, 0] = alpha
-                        out[s, 1] = beta
-                        out[s, 2] = phi
-                        out[s, 3] = level
-                        out[s, 4] = slope
-                        out[s, 5] = sse / max(count - 3, 1)
+        _damped_fit_one(adjusted, offsets, active, alphas, betas, phis, out, s)
+
+
+@njit(nogil=True, cache=True)
+def _damped_fit_one(
+    adjusted: np.ndarray,
+    offsets: np.ndarray,
+    active: np.ndarray,
+    alphas: np.ndarray,
+    betas: np.ndarray,
+    phis: np.ndarray,
+    out: np.ndarray,
+    s: int,
+) -> None:
+    """Grid fit of one series (see ``damped_fit_batch``)."""
+    for c in range(6):
+        out[s, c] = math.nan
+    if not active[s]:
+        return
+    a = adjusted[offsets[s] : offsets[s + 1]]
+    first = -1
+    second = -1
+    for i in range(a.shape[0]):
+        if not math.isnan(a[i]):
+            if first < 0:
+                first = i
+            elif second < 0:
+                second = i
+                break
+    if second < 0:
+        return
+    level0 = a[first]
+    slope0 = (a[second] - a[first]) / (second - first)
+    tail = a[first + 1 :]
+    best = math.inf
+    for alpha in alphas:
+        for beta in betas:
+            if beta > alpha:
+                continue
+            for phi in phis:
+                level, slope, sse, count = damped_path(tail, alpha, beta, phi, level0, slope0)
+                if sse < best:
+                    best = sse
+                    out[s, 0] = alpha
+                    out[s, 1] = beta
+                    out[s, 2] = phi
+                    out[s, 3] = level
+                    out[s, 4] = slope
+                    out[s, 5] = sse / max(count - 3, 1)
