@@ -204,3 +204,25 @@ def test_many_series_on_several_threads_match_one_thread(rng):
     assert len(results[0]) == len(frame)
     for name in COMPONENTS:
         np.testing.assert_allclose(results[0][name], results[1][name], atol=1e-12, equal_nan=True)
+
+
+def test_rows_in_any_order_come_back_aligned(rng):
+    # list() keeps no order; the UDF sorts each series by time and maps the components back.
+    # Values encode their time, so any misalignment of time, value and components shows.
+    n_series, n = 3000, 48
+    frame = pd.DataFrame(
+        {"k": np.repeat(np.arange(n_series), n), "t": np.tile(np.arange(n), n_series)}
+    )
+    frame["v"] = 100 + frame["k"] + 0.5 * frame["t"] + 3 * np.sin(2 * np.pi * frame["t"] / 12)
+    frame = frame.sample(frac=1.0, random_state=7).reset_index(drop=True)
+    con = tidesplit.connect(config={"threads": 2})
+    con.register("frame", frame)
+    out = con.sql("SELECT * FROM tide_split(frame, 'k', 't', 'v', period := 12)").df()
+    expected = 100 + out["k"] + 0.5 * out["t"] + 3 * np.sin(2 * np.pi * out["t"] / 12)
+    np.testing.assert_allclose(out["v"], expected, atol=1e-9)
+    np.testing.assert_allclose(
+        out["trend"] + out["seasonal"] + out["remainder"], out["v"], atol=1e-9
+    )
+    one = out[out["k"] == 17].sort_values("t")
+    single = tidesplit.split(one["v"].to_numpy(), period=12)
+    np.testing.assert_allclose(one["trend"], single.trend, atol=1e-9)

@@ -55,6 +55,8 @@ def float_lists(values: np.ndarray, offsets: np.ndarray, nulls: np.ndarray | Non
     >>> float_lists(np.array([1.0, np.nan]), np.array([0, 2, 2]), None).to_pylist()
     [[1.0, None], []]
     """
-    child = pa.array(values, type=pa.float64(), from_pandas=True)
+    missing = np.isnan(values)
+    # without NaN the buffer is wrapped as it is (no copy, no scan for nulls)
+    child = pa.array(values, type=pa.float64(), mask=missing if missing.any() else None)
     mask = None if nulls is None or not nulls.any() else pa.array(nulls)
     return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child, mask=mask)

@@ -22,7 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .decompose import OK, segment_counts
+from .decompose import OK
+from .kernel import grid
 
 US_PER_MINUTE = 60_000_000
 US_PER_HOUR = 60 * US_PER_MINUTE
@@ -157,89 +158,77 @@ def regularise(
     ([2], [0, 1, 3, 4], [0, 5], ['ok'])
     """
     codes = np.ascontiguousarray(codes, dtype=np.int64)
+    offsets = np.ascontiguousarray(offsets, dtype=np.int64)
     count = offsets.size - 1
     lengths = np.diff(offsets)
-    starts = offsets[:-1]
     unit = np.full(count, UNIT_NUMBER if kind == "integer" else UNIT_MICROSECOND)
+    step = np.ones(count, dtype=np.int64)
+    first = np.zeros(count, dtype=np.int64)
+    span = np.zeros(count, dtype=np.int64)
+    problem = np.zeros(count, dtype=np.int64)
+    where = np.full(count, -1, dtype=np.int64)
+    slots = np.zeros(codes.size, dtype=np.int64)
+    anchor = np.zeros(count, dtype=np.int64)
+    everyone = np.ones(count, dtype=bool)
     local = np.zeros(count, dtype=bool)
     measured = codes
+
+    def scan(values: np.ndarray, which: np.ndarray) -> None:
+        grid.fixed_grid(values, offsets, which, step, first, span, problem, where, slots)
+
     if kind == "timestamptz":
+        # a day or more on the wall clock, shorter steps in absolute time (module notes)
         measured = _local_codes(codes, time_zone)
-        local[:] = True
-    first_row = np.zeros(codes.size, dtype=bool)
-    first_row[starts[lengths > 0]] = True
-    big = np.iinfo(np.int64).max
+        scan(measured, everyone)
+        local = (step >= US_PER_DAY) & (step % US_PER_DAY == 0)
+        if not local.all():
+            scan(codes, ~local)
+            measured = np.where(np.repeat(local, lengths), measured, codes)
+    else:
+        scan(codes, everyone)
 
-    def fixed_steps(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        diffs = np.diff(values, prepend=values[:1])
-        diffs[first_row] = big
-        step = _segment_min(np.where(diffs > 0, diffs, big), offsets, big)
-        return diffs, step
-
-    diffs, step = fixed_steps(measured)
-    if kind == "timestamptz":
-        # sub-daily steps are measured in absolute time instead (see the module notes)
-        short = (step < US_PER_DAY) | (step % US_PER_DAY != 0)
-        if short.any():
-            utc_diffs, utc_step = fixed_steps(codes)
-            rows = np.repeat(short, lengths)
-            measured = np.where(rows, codes, measured)
-            diffs = np.where(rows, utc_diffs, diffs)
-            step = np.where(short, utc_step, step)
-            local &= ~short
-
-    anchor = np.zeros(count, dtype=np.int64)
-    first = np.zeros(count, dtype=np.int64)
-    slot_units = measured.copy()
     if kind != "integer":
-        months = measured.astype("datetime64[us]").astype("datetime64[M]")
-        month_start = months.astype("datetime64[us]").astype(np.int64)
-        into_month = measured - month_start
-        next_start = (months + 1).astype("datetime64[us]").astype(np.int64)
-        day = US_PER_DAY
-        month_end = (measured // day) == (next_start // day - 1)
-        tod = measured % day
-        same_anchor = _segment_min(into_month, offsets, 0) == _segment_max(into_month, offsets, 0)
-        ends = segment_counts(~month_end, offsets) == 0
-        same_tod = _segment_min(tod, offsets, 0) == _segment_max(tod, offsets, 0)
-        by_month = (same_anchor | (ends & same_tod)) & (lengths >= 2) & (step >= 28 * day)
-        if by_month.any():
-            rows = np.repeat(by_month, lengths)
-            month_index = months.astype(np.int64)
-            m_diffs = np.diff(month_index, prepend=month_index[:1])
-            m_diffs[first_row] = big
-            m_step = _segment_min(np.where(m_diffs > 0, m_diffs, big), offsets, big)
-            unit[by_month] = UNIT_MONTH
-            step = np.where(by_month, m_step, step)
-            diffs = np.where(rows, np.where(m_diffs == 0, 0, m_diffs), diffs)
-            slot_units = np.where(rows, month_index, slot_units)
-            anchor = np.where(by_month & same_anchor, _segment_min(into_month, offsets, 0), anchor)
-            anchor = np.where(by_month & ~same_anchor, -1 - _segment_min(tod, offsets, 0), anchor)
+        maybe = (step >= 28 * US_PER_DAY) & (lengths >= 2)
+        if maybe.any():
+            rows = np.repeat(maybe, lengths)
+            picked = measured[rows]
+            months = picked.astype("datetime64[us]").astype("datetime64[M]")
+            start = months.astype("datetime64[us]").astype(np.int64)
+            following = (months + 1).astype("datetime64[us]").astype(np.int64)
+            into = np.zeros(codes.size, dtype=np.int64)
+            ends = np.zeros(codes.size, dtype=bool)
+            tod = np.zeros(codes.size, dtype=np.int64)
+            into[rows] = picked - start
+            ends[rows] = picked // US_PER_DAY == following // US_PER_DAY - 1
+            tod[rows] = picked % US_PER_DAY
+            by_month = np.zeros(count, dtype=bool)
+            grid.month_anchors(into, ends, tod, offsets, maybe, by_month, anchor)
+            if by_month.any():
+                month_index = np.zeros(codes.size, dtype=np.int64)
+                month_index[rows] = months.astype(np.int64)
+                scan(month_index, by_month)
+                unit[by_month] = UNIT_MONTH
 
-    has_rows = lengths > 0
-    first[has_rows] = slot_units[starts[has_rows]]
-    safe_step = np.where((step > 0) & (step < big), step, 1)
-    row_step = np.repeat(safe_step, lengths)
-    rel = slot_units - np.repeat(first, lengths)
-    slots = rel // row_step
-
-    repeated = (diffs == 0) & ~first_row
-    uneven = (diffs % row_step != 0) & ~first_row & ~repeated
-    n_rep = segment_counts(repeated, offsets)
-    n_uneven = segment_counts(uneven, offsets)
-    span = np.where(has_rows, _segment_max(slots, offsets, 0) + 1, 0)
     too_sparse = span > MAX_GROWTH * np.maximum(lengths, 1)
-    for s in np.flatnonzero((n_rep > 0) | (n_uneven > 0) | too_sparse):
+    for s in np.flatnonzero((problem != grid.FINE) | too_sparse):
         if status[s] != OK:
             continue
         lo, hi = int(offsets[s]), int(offsets[s + 1])
-        if n_rep[s]:
-            at = lo + int(np.flatnonzero(repeated[lo:hi])[0])
-            status[s] = f"duplicate time {describe(int(codes[at]), kind)}"
-        elif n_uneven[s]:
+        if problem[s] == grid.REPEATED:
+            status[s] = f"duplicate time {describe(int(codes[where[s]]), kind)}"
+        elif problem[s] == grid.UNEVEN:
             # name the first pair that breaks the most common step, which is what a
             # person reads as "the" step of the series
-            own = diffs[lo + 1 : hi]
+            own = (
+                np.diff(measured[lo:hi])
+                if unit[s] != UNIT_MONTH
+                else np.diff(
+                    measured[lo:hi]
+                    .astype("datetime64[us]")
+                    .astype("datetime64[M]")
+                    .astype(np.int64)
+                )
+            )
             steps, counts = np.unique(own[own > 0], return_counts=True)
             usual = int(steps[np.argmax(counts)])
             at = lo + 1 + int(np.flatnonzero(own % usual != 0)[0])
@@ -254,10 +243,10 @@ def regularise(
                 f"{describe_step(int(unit[s]), int(step[s]))}"
             )
     bad = np.array([st != OK for st in status], dtype=bool)
-    span[bad] = lengths[bad]  # a bad series keeps its rows as they are
-    slots = np.where(
-        np.repeat(bad, lengths), np.arange(codes.size) - np.repeat(starts, lengths), slots
-    )
+    if bad.any():
+        span[bad] = lengths[bad]  # a bad series keeps its rows as they are
+        rows = np.repeat(bad, lengths)
+        slots[rows] = (np.arange(codes.size) - np.repeat(offsets[:-1], lengths))[rows]
     grid_offsets = np.concatenate(([0], np.cumsum(span))).astype(np.int64)
     return Grid(unit, step, slots, grid_offsets, first, anchor, local)
 

@@ -135,7 +135,11 @@ def _run_kernel(
     seasonal = np.full(y.size, np.nan)
     weight = np.full(y.size, np.nan)
     lengths = np.diff(offsets)
-    complete = segment_counts(np.isnan(y), offsets) == 0
+    gaps = np.isnan(y)
+    if gaps.any():
+        complete = segment_counts(gaps, offsets) == 0
+    else:
+        complete = np.ones(offsets.size - 1, dtype=bool)
     direct = settings.copy()
     # The linear-map shortcut for groups of complete, non-robust, equal-length series.
     candidates = np.flatnonzero((settings[:, COL_ACTIVE] == 1) & complete)
@@ -273,10 +277,11 @@ def split_batch(
         raise SplitError(f"series {label(first)}: {status[first]}{more}")
 
     settings[:, :, COL_ACTIVE] = ok[:, None]
-    point_lambda = np.repeat(lambdas, lengths)
-    point_transformed = np.repeat(transformed & ok, lengths)
+    any_transform = bool((transformed & ok).any())
+    point_lambda = np.repeat(lambdas, lengths) if any_transform else None
+    point_transformed = np.repeat(transformed & ok, lengths) if any_transform else None
     y = values.copy()
-    if point_transformed.any():
+    if any_transform:
         y[point_transformed] = transform.forward(
             values[point_transformed], point_lambda[point_transformed]
         )
@@ -299,7 +304,7 @@ def split_batch(
         trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
     remainder = y - trend - seasonal
     adjusted = y - seasonal
-    if point_transformed.any():
+    if any_transform:
         adjusted[point_transformed] = transform.inverse(
             adjusted[point_transformed], point_lambda[point_transformed]
         )

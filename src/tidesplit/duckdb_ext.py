@@ -20,7 +20,7 @@ import pyarrow.compute as pc
 from . import batch, calendar, summaries
 from .decompose import OK, segment_counts
 from .params import ParamError, SplitParams
-from .rows import RowsResult, split_rows
+from .rows import COMPONENTS, RowsResult, split_rows
 
 UDF_NAME = "__tide_split_series"
 
@@ -144,9 +144,13 @@ class _Call:
     status: list[str]
     label: Any
     extra: dict[str, Any]
+    order: np.ndarray | None = None  # input row of each time-sorted row, when not sorted
 
     def split(self, fill_gaps: bool | None = None) -> RowsResult:
-        return split_rows(
+        """Split the time-sorted rows; rows come back in input order, or, on the grid
+        (``fill_gaps``), with ``source`` naming input rows."""
+        fill = self.fill_gaps if fill_gaps is None else fill_gaps
+        result = split_rows(
             self.values,
             self.offsets,
             self.params,
@@ -157,8 +161,30 @@ class _Call:
             status=self.status,
             on_error=self.on_error,
             parallel=False,
-            fill_gaps=self.fill_gaps if fill_gaps is None else fill_gaps,
+            fill_gaps=fill,
         )
+        if self.order is None:
+            return result
+        if result.source is not None:
+            seen = result.source >= 0
+            result.source[seen] = self.order[result.source[seen]]
+            return result
+        for name in (*COMPONENTS, "inserted"):
+            moved = np.empty_like(getattr(result, name))
+            moved[self.order] = getattr(result, name)
+            setattr(result, name, moved)
+        if result.seasonal_parts is not None:
+            parts = np.empty_like(result.seasonal_parts)
+            parts[:, self.order] = result.seasonal_parts
+            result.seasonal_parts = parts
+        return result
+
+    def at_input_rows(self, result: RowsResult, grid_values: np.ndarray) -> np.ndarray:
+        """Grid values (``fill_gaps`` result) placed at their input rows."""
+        seen = result.source >= 0
+        out = np.empty(self.values.size, dtype=grid_values.dtype)
+        out[result.source[seen]] = grid_values[seen]
+        return out
 
 
 def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call:
@@ -175,9 +201,20 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
         if not np.array_equal(time_offsets, offsets):
             raise ValueError(f"{UDF_NAME}: times and values differ in length")
         codes, time_nulls = batch.int_values(time_child)
-        for i in np.flatnonzero(segment_counts(time_nulls, offsets)):
+        nulls_per_series = segment_counts(time_nulls, offsets) if time_nulls.any() else []
+        for i in np.flatnonzero(nulls_per_series):
             if status[i] == OK:
                 status[i] = "a time is NULL"
+    order = None
+    if codes is not None and codes.size > 1:
+        # DuckDB's list() keeps no order; the lists of one group share one, so we sort
+        # here, once, instead of asking for four sorted aggregates
+        series = np.repeat(np.arange(offsets.size - 1), np.diff(offsets))
+        step_down = (np.diff(codes) < 0) & (series[1:] == series[:-1])
+        if step_down.any():
+            order = np.lexsort((codes, series))
+            codes = codes[order]
+            flat = flat[order]
     kinds, zones = columns["time_kind"], columns["time_zone"]
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
     zone = zones[0].as_py() if len(zones) else None
@@ -211,6 +248,7 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
         status,
         label,
         extra,
+        order,
     )
 
 
@@ -249,10 +287,16 @@ def _split_handler(call: _Call) -> pa.Array:
 def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     """Per-series fields every function returns: period(s), lambda, status."""
     used = result.batch.periods
-    series_periods = result.batch.series_periods or [(int(p),) if p else () for p in used]
+    if result.batch.series_periods is None:
+        kept = (used > 0).astype(np.int64)
+        flat = used[used > 0]
+    else:
+        kept = np.array([len(p) for p in result.batch.series_periods], dtype=np.int64)
+        flat = np.array([p for ps in result.batch.series_periods for p in ps], dtype=np.int64)
+    period_offsets = np.concatenate(([0], np.cumsum(kept))).astype(np.int64)
     return {
         "period": pa.array(used, type=pa.int64(), mask=used == 0),
-        "periods": pa.array([list(p) for p in series_periods], pa.list_(pa.int64())),
+        "periods": _lists(flat, period_offsets, pa.int64()),
         "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
         "status": pa.array(result.status, type=pa.string()),
     }
@@ -289,16 +333,15 @@ def _outlier_handler(call: _Call) -> pa.Array:
     threshold = 3.0 if call.extra["threshold"] is None else float(call.extra["threshold"])
     found = summaries.unusual_points(result, method, threshold)
     # back to the input rows (the grid's inserted times have no value to judge)
-    rows = result.source >= 0
     offsets = call.offsets
-    direction = np.array(found.direction, dtype=object)[rows]
+    direction = np.array(found.direction, dtype=object)
     fields = {
-        "remainder": _lists(result.remainder[rows], offsets, pa.float64()),
-        "expected": _lists(found.expected[rows], offsets, pa.float64()),
-        "score": _lists(found.score[rows], offsets, pa.float64()),
-        "is_outlier": _lists(found.flagged[rows], offsets, pa.bool_()),
-        "direction": _lists(direction, offsets, pa.string()),
-        "weight": _lists(result.weight[rows], offsets, pa.float64()),
+        "remainder": _lists(call.at_input_rows(result, result.remainder), offsets, pa.float64()),
+        "expected": _lists(call.at_input_rows(result, found.expected), offsets, pa.float64()),
+        "score": _lists(call.at_input_rows(result, found.score), offsets, pa.float64()),
+        "is_outlier": _lists(call.at_input_rows(result, found.flagged), offsets, pa.bool_()),
+        "direction": _lists(call.at_input_rows(result, direction), offsets, pa.string()),
+        "weight": _lists(call.at_input_rows(result, result.weight), offsets, pa.float64()),
     }
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))

@@ -30,12 +30,16 @@ def fit_at(
     xs: float,
     nleft: int,
     nright: int,
-    w: np.ndarray,
 ) -> tuple[float, bool]:
     """Local regression of degree 0 or 1 at position ``xs`` over ``y[nleft..nright]``.
 
     Tricube weights of the distance, times the point weights ``pw`` (robustness times
     presence). Returns the fitted value and whether any point had weight (paper, eq. 2.1).
+
+    One pass accumulates the weighted moments in coordinates centred on ``xs``; the fitted
+    value of the weighted line follows from them. This is the reference routines' fit
+    (normalise the weights, shift them by the slope term, sum) rearranged so that nothing
+    is stored, which makes it several times faster; it agrees to rounding.
     """
     full_range = n - 1.0
     h = max(xs - nleft, nright - xs)
@@ -45,41 +49,39 @@ def fit_at(
         h += (span - n) // 2
     h_far = FAR * h
     h_near = NEAR * h
-    total = 0.0
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    total = 0.0  # sum w
+    first = 0.0  # sum w u, with u = j - xs
+    second = 0.0  # sum w u^2
+    value = 0.0  # sum w y
+    cross = 0.0  # sum w y u
     for j in range(nleft, nright + 1):
-        wj = 0.0
-        r = abs(j - xs)
+        u = j - xs
+        r = abs(u)
         if r <= h_far:
             if r <= h_near:
-                wj = 1.0
+                wj = pw[j]
             else:
-                q = r / h
+                q = r * inv_h
                 q = 1.0 - q * q * q
-                wj = q * q * q
-            wj *= pw[j]
-            total += wj
-        w[j] = wj
+                wj = q * q * q * pw[j]
+            if wj != 0.0:  # a missing y (NaN) always has weight 0 and must not poison sums
+                total += wj
+                first += wj * u
+                second += wj * u * u
+                value += wj * y[j]
+                cross += wj * y[j] * u
     if total <= 0.0:
         return 0.0, False
-    for j in range(nleft, nright + 1):
-        w[j] /= total
+    mean_y = value / total
     if h > 0.0 and degree > 0:
-        centre = 0.0
-        for j in range(nleft, nright + 1):
-            centre += w[j] * j
-        slope = xs - centre
-        spread = 0.0
-        for j in range(nleft, nright + 1):
-            spread += w[j] * (j - centre) * (j - centre)
-        if math.sqrt(spread) > NEAR * full_range:
-            slope /= spread
-            for j in range(nleft, nright + 1):
-                w[j] *= slope * (j - centre) + 1.0
-    fitted = 0.0
-    for j in range(nleft, nright + 1):
-        if w[j] != 0.0:  # a missing y (NaN) always has weight 0 and must not poison the sum
-            fitted += w[j] * y[j]
-    return fitted, True
+        centre = first / total
+        spread = second / total - centre * centre
+        if math.sqrt(max(spread, 0.0)) > NEAR * full_range:
+            # line through the weighted centre, evaluated at u = 0
+            slope = (cross / total - centre * mean_y) / spread
+            return mean_y - slope * centre, True
+    return mean_y, True
 
 
 @njit(nogil=True, cache=True)
@@ -114,7 +116,6 @@ def smooth(
     degree: int,
     jump: int,
     ys: np.ndarray,
-    w: np.ndarray,
 ) -> None:
     """Loess smoothing of ``y[:n]`` into ``ys[:n]``, fitted every ``jump``-th point.
 
@@ -129,7 +130,7 @@ def smooth(
     nright = n - 1
     if span >= n:
         for i in range(0, n, step):
-            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright, w)
+            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
             ys[i] = value if ok else y[i]
     elif step == 1:
         half = (span + 1) // 2
@@ -138,7 +139,7 @@ def smooth(
             if i >= half and nright != n - 1:
                 nleft += 1
                 nright += 1
-            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright, w)
+            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
             ys[i] = value if ok else y[i]
     else:
         half = (span + 1) // 2
@@ -152,7 +153,7 @@ def smooth(
             else:
                 nleft = i + 1 - half
                 nright = span + i - half
-            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright, w)
+            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
             ys[i] = value if ok else y[i]
     if step != 1:
         for i in range(0, n - step, step):
@@ -163,7 +164,7 @@ def smooth(
         if last_fit != n - 1:
             # Reference routines: the last point is fitted with the neighbourhood left
             # over from the final jump, then the tail is interpolated.
-            value, ok = fit_at(y, pw, n, span, degree, float(n - 1), nleft, nright, w)
+            value, ok = fit_at(y, pw, n, span, degree, float(n - 1), nleft, nright)
             ys[n - 1] = value if ok else y[n - 1]
             if last_fit != n - 2:
                 delta = (ys[n - 1] - ys[last_fit]) / (n - 1 - last_fit)

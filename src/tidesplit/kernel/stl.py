@@ -58,7 +58,6 @@ def _subseries_smooth(
     sub_y: np.ndarray,
     sub_w: np.ndarray,
     sub_fit: np.ndarray,
-    scratch: np.ndarray,
 ) -> None:
     """Cycle-subseries smoothing (paper, step 2), one point beyond each end of each subseries.
 
@@ -91,12 +90,10 @@ def _subseries_smooth(
             for m in range(k + 2):
                 sub_fit[m] = level
         else:
-            smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:], scratch)
-            value, ok = fit_at(sub_y, sub_w, k, span, degree, -1.0, 0, min(span, k) - 1, scratch)
+            smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:])
+            value, ok = fit_at(sub_y, sub_w, k, span, degree, -1.0, 0, min(span, k) - 1)
             sub_fit[0] = value if ok else sub_fit[1]
-            value, ok = fit_at(
-                sub_y, sub_w, k, span, degree, float(k), max(0, k - span), k - 1, scratch
-            )
+            value, ok = fit_at(sub_y, sub_w, k, span, degree, float(k), max(0, k - span), k - 1)
             sub_fit[k + 1] = value if ok else sub_fit[k]
         for m in range(k + 2):
             cycle[m * period + phase] = sub_fit[m]
@@ -198,7 +195,6 @@ def _stl_one(
                 sub_y,
                 sub_w,
                 sub_fit,
-                scratch,
             )
             # Low-pass filter of the cycle-subseries (paper, step 3): moving averages of
             # length period, period and 3, then a loess fit.
@@ -213,7 +209,6 @@ def _stl_one(
                 settings[COL_LOWPASS_DEGREE],
                 settings[COL_LOWPASS_JUMP],
                 lowpass,
-                scratch,
             )
             for i in range(n):
                 seasonal[i] = cycle[period + i] - lowpass[i]
@@ -226,7 +221,6 @@ def _stl_one(
                 settings[COL_TREND_DEGREE],
                 settings[COL_TREND_JUMP],
                 trend,
-                scratch,
             )
         passes += 1
         if passes > outer:

@@ -29,11 +29,13 @@ WITH __src AS (
            CAST(COLUMNS([value]) AS DOUBLE) AS __value
     FROM query_table(tbl)
 )
+-- No ORDER BY: the lists of one group share one order, and the UDF sorts by time itself,
+-- which is several times cheaper than four sorted aggregates.
 SELECT __key,
-       list(__time_row ORDER BY __time_code, __value) AS __time_rows,
-       list(__value_row ORDER BY __time_code, __value) AS __value_rows,
-       list(__time_code ORDER BY __time_code, __value) AS __time_codes,
-       list(__value ORDER BY __time_code, __value) AS __values
+       list(__time_row) AS __time_rows,
+       list(__value_row) AS __value_rows,
+       list(__time_code) AS __time_codes,
+       list(__value) AS __values
 FROM __src
 GROUP BY __key;
 
