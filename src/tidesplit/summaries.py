@@ -7,9 +7,9 @@ returns plain numpy arrays; the fronts turn them into SQL rows or DataFrames.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from statistics import NormalDist
 
 import numpy as np
-from scipy.stats import norm
 
 from . import calendar, transform
 from .decompose import OK
@@ -255,7 +255,7 @@ def forecast(
     count = offsets.size - 1
     y = result.trend + result.seasonal + result.remainder  # transformed observations
     adjusted = y - result.seasonal
-    z = norm.ppf(0.5 + level / 2)
+    z = NormalDist().inv_cdf(0.5 + level / 2)
     h = np.arange(1, horizon + 1)
     point = np.full((count, horizon), np.nan)
     spread = np.full((count, horizon), np.nan)
