@@ -226,3 +226,11 @@ def test_rows_in_any_order_come_back_aligned(rng):
     one = out[out["k"] == 17].sort_values("t")
     single = tidesplit.split(one["v"].to_numpy(), period=12)
     np.testing.assert_allclose(one["trend"], single.trend, atol=1e-9)
+
+
+def test_arguments_must_be_constants(con):
+    con.execute(
+        "CREATE TABLE t AS SELECT i // 24 AS k, i % 24 AS t, sin(i) AS v FROM range(96) r(i)"
+    )
+    with pytest.raises(duckdb.Error, match="period must be the same for every series"):
+        con.sql("SELECT tide_split_list(list(v ORDER BY t), 4 + k) FROM t GROUP BY k").fetchall()

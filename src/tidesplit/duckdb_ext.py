@@ -67,37 +67,34 @@ RESULT_TYPE = (
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
     "boxcox_lambda DOUBLE, status VARCHAR)"
 )
-_FRONT_ONLY = {"fill_gaps", "on_error"}  # arguments of the call, not of the split
+# DuckDB runs UDF calls (up to 2048 series each) on its own threads, so a call normally
+# uses one thread. A call this large (a few very long series) is likely the only one in
+# flight, so it spreads its series over numba's threads instead.
+PARALLEL_POINTS = 1_000_000
 
 
-def _column_values(col: pa.Array) -> tuple[bool, list[Any] | Any]:
-    """(constant, value): the one value of a constant column, else every row's value."""
+def _column_values(col: pa.Array) -> tuple[bool, Any]:
+    """(constant, value): whether every row holds one value, and that value."""
     if col.null_count == len(col):
         return True, None
     if pa.types.is_list(col.type):
-        rows = [None if v is None else tuple(v) for v in col.to_pylist()]
-        return (True, rows[0]) if len(set(rows)) == 1 else (False, rows)
-    if len(pc.unique(col)) == 1:
-        return True, col[0].as_py()
-    return False, col.to_pylist()
+        rows = {None if v is None else tuple(v) for v in col.to_pylist()}
+        return len(rows) == 1, next(iter(rows))
+    return len(pc.unique(col)) == 1, col[0].as_py()
 
 
-def _param_sets(
-    names: list[str], columns: list[pa.Array]
-) -> tuple[list[dict[str, Any]], np.ndarray]:
-    """The distinct argument sets of a call (usually one) and the set of each row."""
-    count = len(columns[0])
-    found = [_column_values(col) for col in columns]
-    if all(constant for constant, _ in found):
-        return [dict(zip(names, (v for _, v in found), strict=True))], np.zeros(count, np.int64)
-    per_row = [v if not constant else [v] * count for constant, v in found]
-    distinct: dict[tuple[Any, ...], int] = {}
-    groups = np.array(
-        [distinct.setdefault(row, len(distinct)) for row in zip(*per_row, strict=True)],
-        dtype=np.int64,
-    )
-    ordered = sorted(distinct, key=distinct.__getitem__)
-    return [dict(zip(names, row, strict=True)) for row in ordered], groups
+def _constant_arguments(names: list[str], columns: list[pa.Array]) -> dict[str, Any]:
+    """The arguments of a call; every series of one query shares them."""
+    given = {}
+    for name, column in zip(names, columns, strict=True):
+        constant, value = _column_values(column)
+        if not constant:
+            raise ParamError(
+                f"{name} must be the same for every series of one query (one value, not a "
+                "column); split groups with different settings in separate queries"
+            )
+        given[name] = value
+    return given
 
 
 def _describe_values(values: np.ndarray, offsets: np.ndarray, i: int) -> str:
@@ -160,7 +157,7 @@ class _Call:
             label=self.label,
             status=self.status,
             on_error=self.on_error,
-            parallel=False,
+            parallel=self.values.size >= PARALLEL_POINTS,
             fill_gaps=fill,
         )
         if self.order is None:
@@ -220,10 +217,7 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
     zone = zones[0].as_py() if len(zones) else None
 
     names = ["period", *(n for n, _ in SPLIT_ARGS + MULTI_ARGS), *extra_names]
-    sets, _ = _param_sets(names, [columns[n] for n in names])
-    if len(sets) > 1:
-        raise ParamError("arguments must be the same for every series of one query")
-    given = sets[0]
+    given = _constant_arguments(names, [columns[n] for n in names])
     extra = {n: given.pop(n) for n in extra_names}
     on_error = given.pop("on_error") or "raise"
     fill = bool(given.pop("fill_gaps"))

@@ -81,6 +81,7 @@ def _choose_periods(
     index = {w: i for i, w in enumerate(distinct)}
     groups = np.array([index.get(w, 0) for w in wanted], dtype=np.int64)
     if not distinct:
+        # every series already failed; any valid period keeps split_batch's bookkeeping
         return [params.with_period(2)], groups
     sets = [params.with_periods(w) if params.multi else params.with_period(w[0]) for w in distinct]
     return sets, groups

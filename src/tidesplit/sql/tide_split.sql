@@ -52,18 +52,16 @@ CREATE OR REPLACE TEMP MACRO __tide_value_rows(source, value_rows) AS
              ELSE (CASE WHEN false THEN value_rows[1] ELSE row(NULL) END) END);
 
 CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}) AS TABLE
-WITH __split AS MATERIALIZED (
-    SELECT __key, __time_rows, __value_rows,
-           __tide_split_series(CAST(__key AS VARCHAR), __time_codes,
-                               typeof(struct_extract_at(__time_rows[1], 1)),
-                               current_setting('TimeZone'),
-                               __values, period, {split_pass}, {multi_pass}) AS __parts
-    FROM __tide_grouped(tbl, keys, time, value)
-)
--- the input rows as they came
+-- With fill_gaps the rows are those of the regular grid, times rebuilt from their codes and
+-- values picked by their input row; without, the input rows as they came. fill_gaps is a
+-- constant, so DuckDB folds the CASE and keeps one branch (no second pass, no copy).
 SELECT unnest(__key),
-       unnest(__time_rows, recursive := true),
-       unnest(__value_rows, recursive := true),
+       unnest(CASE WHEN coalesce(fill_gaps, false)
+                   THEN __tide_time_rows(__parts.time_codes, __time_rows)
+                   ELSE __time_rows END, recursive := true),
+       unnest(CASE WHEN coalesce(fill_gaps, false)
+                   THEN __tide_value_rows(__parts.source, __value_rows)
+                   ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
        unnest(__parts.seasonal_by_period) AS seasonal_by_period,
@@ -74,25 +72,12 @@ SELECT unnest(__key),
        __parts.period AS period,
        __parts.periods AS periods,
        __parts.status AS status
-FROM __split
-WHERE NOT coalesce(fill_gaps, false)
-UNION ALL
--- with fill_gaps: every point of the regular grid, the inserted ones marked
-SELECT unnest(__key),
-       unnest(__tide_time_rows(__parts.time_codes, __time_rows), recursive := true),
-       unnest(__tide_value_rows(__parts.source, __value_rows), recursive := true),
-       unnest(__parts.trend) AS trend,
-       unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS seasonal_by_period,
-       unnest(__parts.remainder) AS remainder,
-       unnest(__parts.adjusted) AS adjusted,
-       unnest(__parts.weight) AS weight,
-       unnest(__parts.inserted) AS inserted,
-       __parts.period AS period,
-       __parts.periods AS periods,
-       __parts.status AS status
-FROM __split
-WHERE coalesce(fill_gaps, false);
+FROM (SELECT __key, __time_rows, __value_rows,
+             __tide_split_series(CAST(__key AS VARCHAR), __time_codes,
+                                 typeof(struct_extract_at(__time_rows[1], 1)),
+                                 current_setting('TimeZone'),
+                                 __values, period, {split_pass}, {multi_pass}) AS __parts
+      FROM __tide_grouped(tbl, keys, time, value));
 
 -- One key column by name, or a list of them (exact names, not patterns).
 CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {split_args}) AS TABLE
