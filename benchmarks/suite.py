@@ -136,7 +136,9 @@ def best_of(runs: int, fn: Callable[[], object]) -> float:
 
 
 def identity_udf(*columns: Any) -> Any:
-    """The engine floor: our UDF's arguments and result type, the values handed back."""
+    """The engine floor: our UDF's arguments and result, the values handed back as every
+    component, and per series the fields ours returns (a period, a list of periods, a
+    status), so that DuckDB converts and unnests the same shape."""
     import pyarrow as pa
 
     from tidesplit.duckdb_ext import UDF_ARGS
@@ -151,7 +153,10 @@ def identity_udf(*columns: Any) -> Any:
         "inserted": pa.nulls(n, pa.list_(pa.bool_())),
         "time_codes": pa.nulls(n, pa.list_(pa.int64())),
         "source": pa.nulls(n, pa.list_(pa.int64())),
-        "period": pa.nulls(n, pa.int64()), "periods": pa.nulls(n, pa.list_(pa.int64())),
+        "period": pa.array(np.full(n, 12, dtype=np.int64)),
+        "periods": pa.ListArray.from_arrays(
+            pa.array(np.arange(n + 1, dtype=np.int32)), pa.array(np.full(n, 12, np.int64))
+        ),
         "boxcox_lambda": pa.nulls(n, pa.float64()), "status": pa.array(["ok"] * n),
     }
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))

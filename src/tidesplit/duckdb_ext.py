@@ -267,7 +267,11 @@ def _split_handler(call: _Call) -> pa.Array:
     else:
         map_type = pa.list_(pa.map_(pa.int64(), pa.float64()))
         fields["seasonal_by_period"] = pa.nulls(count, map_type)
-    fields["inserted"] = _lists(result.inserted, out_offsets, pa.bool_())
+    if call.fill_gaps:
+        fields["inserted"] = _lists(result.inserted, out_offsets, pa.bool_())
+    else:
+        # every row is an input row: the macro reads NULL as false, and no list is built
+        fields["inserted"] = pa.nulls(count, pa.list_(pa.bool_()))
     if call.fill_gaps and result.codes is not None:
         fields["time_codes"] = _lists(result.codes, out_offsets, pa.int64())
         fields["source"] = _lists(result.source, out_offsets, pa.int64())
@@ -426,11 +430,14 @@ def _macro_sql() -> str:
     )
 
 
-def _has_udf(con: duckdb.DuckDBPyConnection, name: str) -> bool:
+def _registered(con: duckdb.DuckDBPyConnection) -> set[str]:
+    """Which of our UDFs this connection has already."""
     found = con.execute(
-        "SELECT count(*) FROM duckdb_functions() WHERE function_name = ?", [name]
+        "SELECT DISTINCT function_name FROM duckdb_functions() WHERE function_name IN "
+        f"({', '.join('?' * len(UDFS))})",
+        list(UDFS),
     ).fetchall()
-    return bool(found[0][0])
+    return {row[0] for row in found}
 
 
 def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb.DuckDBPyConnection:
@@ -449,8 +456,9 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     >>> con.sql(sql).fetchall()
     [(8,)]
     """
+    registered = _registered(con)
     for name, (handler, extra, result_type) in UDFS.items():
-        present = _has_udf(con, name)
+        present = name in registered
         if present and replace:
             con.remove_function(name)
         if replace or not present:

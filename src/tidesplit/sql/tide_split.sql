@@ -68,7 +68,7 @@ SELECT unnest(__key),
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
-       unnest(__parts.inserted) AS inserted,
+       coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS period,
        __parts.periods AS periods,
        __parts.status AS status
