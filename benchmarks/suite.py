@@ -70,13 +70,27 @@ def cases(quick: bool) -> list[Case]:
             Case(f"monthly {label}", count, 120, (12,)),
             Case(f"monthly {label} robust", count, 120, (12,), robust=True),
             Case(f"monthly {label} 5% missing", count, 120, (12,), missing=0.05, subset=0),
-            Case(f"monthly {label} robust 5% missing", count, 120, (12,), robust=True,
-                 missing=0.05, subset=0),
+            Case(
+                f"monthly {label} robust 5% missing",
+                count,
+                120,
+                (12,),
+                robust=True,
+                missing=0.05,
+                subset=0,
+            ),
         ]
     found += [
         Case("hourly 1k x 2 periods", 1_000, 8_760, (24, 168), subset=5, options=HOURLY),
-        Case("hourly 1k x 2 periods robust", 1_000, 8_760, (24, 168), robust=True, subset=3,
-             options=HOURLY),
+        Case(
+            "hourly 1k x 2 periods robust",
+            1_000,
+            8_760,
+            (24, 168),
+            robust=True,
+            subset=3,
+            options=HOURLY,
+        ),
     ]
     return found
 
@@ -109,20 +123,38 @@ def statsmodels_fit(case: Case, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     r = SplitParams.from_kwargs(**case.params).resolve()
     shared = dict(
-        seasonal_deg=r.season_degree, trend_deg=r.trend_degree, low_pass_deg=r.lowpass_degree,
+        seasonal_deg=r.season_degree,
+        trend_deg=r.trend_degree,
+        low_pass_deg=r.lowpass_degree,
         robust=r.robust,
     )
     if len(case.periods) == 1:
-        fit = STL(y, period=r.period, seasonal=r.season_span, trend=r.trend_span,
-                  low_pass=r.lowpass_span, seasonal_jump=r.season_jump,
-                  trend_jump=r.trend_jump, low_pass_jump=r.lowpass_jump, **shared,
-                  ).fit(inner_iter=r.inner_loops, outer_iter=r.outer_loops)
+        fit = STL(
+            y,
+            period=r.period,
+            seasonal=r.season_span,
+            trend=r.trend_span,
+            low_pass=r.lowpass_span,
+            seasonal_jump=r.season_jump,
+            trend_jump=r.trend_jump,
+            low_pass_jump=r.lowpass_jump,
+            **shared,
+        ).fit(inner_iter=r.inner_loops, outer_iter=r.outer_loops)
         return np.asarray(fit.trend), np.asarray(fit.seasonal)
-    fit = MSTL(y, periods=r.periods, windows=r.season_spans, iterate=r.iterations,
-               stl_kwargs={**shared, "seasonal_jump": HOURLY["season_jump"],
-                           "trend_jump": HOURLY["trend_jump"],
-                           "low_pass_jump": HOURLY["lowpass_jump"],
-                           "inner_iter": r.inner_loops, "outer_iter": r.outer_loops}).fit()
+    fit = MSTL(
+        y,
+        periods=r.periods,
+        windows=r.season_spans,
+        iterate=r.iterations,
+        stl_kwargs={
+            **shared,
+            "seasonal_jump": HOURLY["season_jump"],
+            "trend_jump": HOURLY["trend_jump"],
+            "low_pass_jump": HOURLY["lowpass_jump"],
+            "inner_iter": r.inner_loops,
+            "outer_iter": r.outer_loops,
+        },
+    ).fit()
     return np.asarray(fit.trend), np.asarray(fit.seasonal).sum(axis=1)
 
 
@@ -148,8 +180,12 @@ def identity_udf(*columns: Any) -> Any:
     n = len(values)
     empty_maps = pa.nulls(n, pa.list_(pa.map_(pa.int64(), pa.float64())))
     fields = {
-        "trend": values, "seasonal": values, "remainder": values, "adjusted": values,
-        "weight": values, "seasonal_by_period": empty_maps,
+        "trend": values,
+        "seasonal": values,
+        "remainder": values,
+        "adjusted": values,
+        "weight": values,
+        "seasonal_by_period": empty_maps,
         "inserted": pa.nulls(n, pa.list_(pa.bool_())),
         "time_codes": pa.nulls(n, pa.list_(pa.int64())),
         "source": pa.nulls(n, pa.list_(pa.int64())),
@@ -157,7 +193,8 @@ def identity_udf(*columns: Any) -> Any:
         "periods": pa.ListArray.from_arrays(
             pa.array(np.arange(n + 1, dtype=np.int32)), pa.array(np.full(n, 12, np.int64))
         ),
-        "boxcox_lambda": pa.nulls(n, pa.float64()), "status": pa.array(["ok"] * n),
+        "boxcox_lambda": pa.nulls(n, pa.float64()),
+        "status": pa.array(["ok"] * n),
     }
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
@@ -182,7 +219,8 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         subset = min(case.subset, case.series)
         y = values[: subset * case.points].reshape(subset, case.points)
         mine = tidesplit.split_batch(
-            values[: subset * case.points], offsets[: subset + 1],
+            values[: subset * case.points],
+            offsets[: subset + 1],
             tidesplit.SplitParams.from_kwargs(**case.params),
         )
         statsmodels_fit(case, y[0])  # imports and first-call costs stay out of the timing
@@ -192,8 +230,11 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         worst = 0.0
         for i, (trend, seasonal) in enumerate(fits):
             sl = slice(i * case.points, (i + 1) * case.points)
-            worst = max(worst, np.abs(mine.trend[sl] - trend).max(),
-                        np.abs(mine.seasonal[sl] - seasonal).max())
+            worst = max(
+                worst,
+                np.abs(mine.trend[sl] - trend).max(),
+                np.abs(mine.seasonal[sl] - seasonal).max(),
+            )
         out.update(seconds=elapsed / subset * case.series, max_difference=worst)
     elif mode == "kernel":
         import tidesplit
@@ -207,11 +248,13 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         import tidesplit
         from tidesplit.duckdb_ext import RESULT_TYPE, UDF_ARGS, UDF_NAME
 
-        table = pa.table({
-            "id": np.repeat(np.arange(case.series), case.points),
-            "t": np.tile(np.arange(case.points), case.series),
-            "v": pa.array(values, from_pandas=True),
-        })
+        table = pa.table(
+            {
+                "id": np.repeat(np.arange(case.series), case.points),
+                "t": np.tile(np.arange(case.points), case.series),
+                "v": pa.array(values, from_pandas=True),
+            }
+        )
         del values
         con = tidesplit.connect()
         if mode == "floor":
@@ -221,8 +264,14 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
                 [inspect.Parameter(n, inspect.Parameter.POSITIONAL_ONLY) for n, _ in UDF_ARGS]
             )
             con.remove_function(UDF_NAME)
-            con.create_function(UDF_NAME, identity_udf, [t for _, t in UDF_ARGS], RESULT_TYPE,
-                                type="arrow", null_handling="special")
+            con.create_function(
+                UDF_NAME,
+                identity_udf,
+                [t for _, t in UDF_ARGS],
+                RESULT_TYPE,
+                type="arrow",
+                null_handling="special",
+            )
         con.register("series_src", table)
         con.execute("CREATE TABLE series AS SELECT * FROM series_src")
         con.unregister("series_src")
@@ -252,15 +301,20 @@ def measure_on_disk(case: Case, runs: int) -> dict[str, Any]:
         rows = con.sql("SELECT count(*) FROM out").fetchall()[0][0]
         assert rows == case.series * case.points, rows
         con.close()
-    return {"seconds": seconds,
-            "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}
+    return {
+        "seconds": seconds,
+        "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+    }
 
 
 def in_child(case: Case, mode: str, runs: int, env: dict[str, str] | None = None) -> dict:
     spec = json.dumps({**case.__dict__, "mode": mode, "runs": runs})
     done = subprocess.run(
-        [sys.executable, __file__, "--child", spec], capture_output=True, text=True,
-        env=env, check=False,
+        [sys.executable, __file__, "--child", spec],
+        capture_output=True,
+        text=True,
+        env=env,
+        check=False,
     )
     if done.returncode != 0:
         raise RuntimeError(f"{case.name} / {mode} failed:\n{done.stderr[-3000:]}")
@@ -270,12 +324,16 @@ def in_child(case: Case, mode: str, runs: int, env: dict[str, str] | None = None
 def cold_start(env_extra: dict[str, str]) -> float:
     code = (
         "import time; t0 = time.perf_counter(); import tidesplit; con = tidesplit.connect(); "
-        "con.sql(\"SELECT tide_split_list(list(v), 12) FROM (SELECT (i % 12)::DOUBLE + i / 10 "
-        "AS v FROM range(48) r(i))\").fetchall(); print(time.perf_counter() - t0)"
+        'con.sql("SELECT tide_split_list(list(v), 12) FROM (SELECT (i % 12)::DOUBLE + i / 10 '
+        'AS v FROM range(48) r(i))").fetchall(); print(time.perf_counter() - t0)'
     )
     started = time.perf_counter()
-    subprocess.run([sys.executable, "-c", code], env={**os.environ, **env_extra}, check=True,
-                   capture_output=True)
+    subprocess.run(
+        [sys.executable, "-c", code],
+        env={**os.environ, **env_extra},
+        check=True,
+        capture_output=True,
+    )
     return time.perf_counter() - started
 
 
@@ -294,11 +352,15 @@ def main() -> None:
         print(json.dumps(measure(Case(**spec), mode, runs)))
         return
 
-    print(f"tidesplit benchmark suite, {os.cpu_count()} cores; seconds are the best of "
-          f"{args.runs} runs; statsmodels is timed per series on a subset and scaled.\n")
-    header = (f"{'case':<34}{'points':>12}{'kernel s':>10}{'SQL s':>9}{'floor s':>9}"
-              f"{'statsm. s':>11}{'kernel pts/s':>14}{'x statsm.':>10}{'SQL/floor':>10}"
-              f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}")
+    print(
+        f"tidesplit benchmark suite, {os.cpu_count()} cores; seconds are the best of "
+        f"{args.runs} runs; statsmodels is timed per series on a subset and scaled.\n"
+    )
+    header = (
+        f"{'case':<34}{'points':>12}{'kernel s':>10}{'SQL s':>9}{'floor s':>9}"
+        f"{'statsm. s':>11}{'kernel pts/s':>14}{'x statsm.':>10}{'SQL/floor':>10}"
+        f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}"
+    )
     print(header)
     for case in cases(args.quick):
         kernel = in_child(case, "kernel", args.runs)
@@ -311,22 +373,28 @@ def main() -> None:
         diff = f"{reference['max_difference']:.0e}" if reference else "-"
         if reference:
             assert reference["max_difference"] < 1e-8, (case.name, reference)
-        print(f"{case.name:<34}{points:>12,}{kernel['seconds']:>10.2f}{sql['seconds']:>9.2f}"
-              f"{floor['seconds']:>9.2f}{ref_s:>11}{points / kernel['seconds']:>14,.0f}"
-              f"{ratio:>10}{sql['seconds'] / floor['seconds']:>10.2f}"
-              f"{kernel['peak_mib']:>11.0f}{sql['peak_mib']:>9.0f}{diff:>10}")
+        print(
+            f"{case.name:<34}{points:>12,}{kernel['seconds']:>10.2f}{sql['seconds']:>9.2f}"
+            f"{floor['seconds']:>9.2f}{ref_s:>11}{points / kernel['seconds']:>14,.0f}"
+            f"{ratio:>10}{sql['seconds'] / floor['seconds']:>10.2f}"
+            f"{kernel['peak_mib']:>11.0f}{sql['peak_mib']:>9.0f}{diff:>10}"
+        )
     if args.scale:
         big = Case("monthly 1M (scale run)", 1_000_000, 120, (12,), subset=0, on_disk=True)
         sql = in_child(big, "sql", 1)
-        print(f"\nscale run: {big.series:,} series x {big.points} points end to end in SQL "
-              f"into a database file: {sql['seconds']:.1f} s, peak memory "
-              f"{sql['peak_mib'] / 1024:.2f} GiB")
+        print(
+            f"\nscale run: {big.series:,} series x {big.points} points end to end in SQL "
+            f"into a database file: {sql['seconds']:.1f} s, peak memory "
+            f"{sql['peak_mib'] / 1024:.2f} GiB"
+        )
     if args.start:
         warm = cold_start({})
         with tempfile.TemporaryDirectory() as empty:
             cold = cold_start({"NUMBA_CACHE_DIR": empty})
-        print(f"\nfresh process to first SQL result: {warm:.2f} s with a warm numba cache, "
-              f"{cold:.2f} s with an empty one (the first compile)")
+        print(
+            f"\nfresh process to first SQL result: {warm:.2f} s with a warm numba cache, "
+            f"{cold:.2f} s with an empty one (the first compile)"
+        )
 
 
 if __name__ == "__main__":

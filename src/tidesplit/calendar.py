@@ -34,24 +34,9 @@ UNIT_NUMBER = 0  # integer time: steps in its own units
 UNIT_MICROSECOND = 1
 UNIT_MONTH = 2
 
-KINDS = ("integer", "date", "timestamp", "timestamptz")
-
 # A series may have at most this many grid points per observed point once gaps are filled
 # (common practice guard against a stray time far from the rest).
 MAX_GROWTH = 10
-
-# The period implied by a step when none is given (common practice).
-PERIOD_TABLE = (
-    ("monthly (1 month)", 12),
-    ("quarterly (3 months)", 4),
-    ("weekly (7 days)", 52),
-    ("daily (1 day)", 7),
-    ("hourly (1 hour)", 24),
-    ("k minutes dividing a day", "1440 / k (one day)"),
-    ("k hours dividing a day", "24 / k (one day)"),
-    ("k months dividing a year", "12 / k (one year)"),
-    ("yearly, or any other step", "none: give period"),
-)
 
 
 def time_kind(sql_type: str | None) -> str:
@@ -122,22 +107,6 @@ def _utc_codes(local: np.ndarray, time_zone: str | None) -> np.ndarray:
         time_zone, ambiguous=True, nonexistent="shift_forward"
     )
     return stamps.tz_convert("UTC").tz_localize(None).as_unit("us").asi8
-
-
-def _segment_min(x: np.ndarray, offsets: np.ndarray, empty: int) -> np.ndarray:
-    out = np.full(offsets.size - 1, empty, dtype=np.int64)
-    nonempty = offsets[1:] > offsets[:-1]
-    if x.size:
-        out[nonempty] = np.minimum.reduceat(x, offsets[:-1][nonempty])
-    return out
-
-
-def _segment_max(x: np.ndarray, offsets: np.ndarray, empty: int) -> np.ndarray:
-    out = np.full(offsets.size - 1, empty, dtype=np.int64)
-    nonempty = offsets[1:] > offsets[:-1]
-    if x.size:
-        out[nonempty] = np.maximum.reduceat(x, offsets[:-1][nonempty])
-    return out
 
 
 def regularise(
@@ -275,7 +244,8 @@ def describe_step(unit: int, step: int) -> str:
 
 
 def period_for_step(unit: int, step: int) -> int:
-    """The seasonal period a step implies (PERIOD_TABLE), or 0 when it implies none.
+    """The seasonal period a step implies, or 0 when it implies none (common practice:
+    the table in README, "Time columns").
 
     >>> us = UNIT_MICROSECOND
     >>> [period_for_step(UNIT_MONTH, 1), period_for_step(UNIT_MONTH, 3),

@@ -104,7 +104,7 @@ def split_rows(
     """Split series given as rows sorted by time (``codes``), gaps and calendars included.
 
     Without ``codes`` the rows are taken as consecutive points. A period left out is implied
-    by the step (see ``calendar.PERIOD_TABLE``), or estimated from the data for integer
+    by the step (see ``calendar.period_for_step``), or estimated from the data for integer
     times; ``params.periods == ()`` asks for several periods implied by the step.
 
     >>> out = split_rows(np.array([1.0, 3, 1, 3, 1, 3, 1, 3]), np.array([0, 8]),
