@@ -203,3 +203,9 @@ def test_null_keys_form_a_group_of_their_own(con):
     assert len(out) == 72 and out["k"].isna().sum() == 36 and (out["status"] == "ok").all()
     table = tidesplit.split_table(frame, "k", "t", "v", period=12)
     assert len(table) == 72 and table["k"].isna().sum() == 36
+
+
+def test_split_estimates_a_missing_period():
+    assert tidesplit.split(cycle(96, 12)).period == 12
+    with pytest.raises(tidesplit.SplitError, match="no seasonal cycle found"):
+        tidesplit.split(np.random.default_rng(0).normal(size=96))

@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from . import summaries
-from .decompose import OK, segment_counts, split_batch
+from .decompose import OK, segment_counts
 from .params import SplitParams
 from .rows import RowsResult, split_rows
 
@@ -52,7 +52,8 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     Parameters
     ----------
     values : array-like of numbers; None or NaN marks a missing value.
-    period : points per seasonal cycle (12 for monthly data with a yearly cycle).
+    period : points per seasonal cycle (12 for monthly data with a yearly cycle); left
+        out, it is estimated from the autocorrelation (see ``calendar.estimate_period``).
     **params : season_span, trend_span, lowpass_span, the three degrees and jumps, robust,
         inner_loops, outer_loops, transform ('none', 'log', 'boxcox') and boxcox_lambda
         (None with 'boxcox': chosen by Guerrero's method); or, instead of ``period``,
@@ -70,9 +71,10 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     observed = pd.to_numeric(pd.Series(np.asarray(values, dtype=object)), errors="raise")
     y = observed.to_numpy(dtype=np.float64, na_value=np.nan)
     settings = SplitParams.from_kwargs(period=period, **params)
-    result = split_batch(
+    # split_rows, so that a period left out is estimated from the data (integer positions)
+    result = split_rows(
         y, np.array([0, y.size]), settings, label=lambda i: "(the series)", on_error="raise"
-    )
+    ).batch
     lam = result.lambdas[0]
     parts = None
     if result.seasonal_parts is not None:
