@@ -41,9 +41,9 @@ def test_strengths_of_pure_cycle_and_of_noise(rng):
     noise = 10 + rng.normal(0, 1, 120)
     frame = pd.concat([monthly_frame(cycle, "cycle"), monthly_frame(noise, "noise")])
     out = tidesplit.profile(frame, "k", "month", "v").set_index("k")
-    assert out.loc["cycle", "seasonal_strength"] > 0.99
-    assert out.loc["noise", "seasonal_strength"] < 0.4
-    assert out.loc["noise", "trend_strength"] < 0.4
+    assert out.loc["cycle", "strength_of_season"] > 0.99
+    assert out.loc["noise", "strength_of_season"] < 0.4
+    assert out.loc["noise", "strength_of_trend"] < 0.4
 
 
 def test_strengths_equal_those_of_statsmodels_components():
@@ -63,8 +63,8 @@ def test_strengths_equal_those_of_statsmodels_components():
     expected_s = max(0, 1 - np.var(r, ddof=1) / np.var(fit.seasonal + r, ddof=1))
     expected_t = max(0, 1 - np.var(r, ddof=1) / np.var(fit.trend + r, ddof=1))
     out = tidesplit.profile(monthly_frame(y), "k", "month", "v")
-    assert out["seasonal_strength"].iloc[0] == pytest.approx(expected_s, abs=1e-8)
-    assert out["trend_strength"].iloc[0] == pytest.approx(expected_t, abs=1e-8)
+    assert out["strength_of_season"].iloc[0] == pytest.approx(expected_s, abs=1e-8)
+    assert out["strength_of_trend"].iloc[0] == pytest.approx(expected_t, abs=1e-8)
 
 
 def test_profile_cycle_shape_and_labels(con):
@@ -79,7 +79,7 @@ def test_profile_cycle_shape_and_labels(con):
     assert row["points"] == 72 and row["missing"] == 0 and row["step"] == "1 month"
     assert row["period"] == 12 and row["status"] == "ok"
     python = tidesplit.profile(frame, "k", "month", "v").iloc[0]
-    for name in ("trend_strength", "seasonal_strength", "remainder_sd", "remainder_acf1"):
+    for name in ("strength_of_trend", "strength_of_season", "remainder_sd", "remainder_acf1"):
         assert row[name] == pytest.approx(python[name], abs=1e-10)
 
 
@@ -94,7 +94,7 @@ def test_profile_counts_missing_and_flags_bad_series(con):
     good, bad = out.iloc[0], out.iloc[1]
     assert good["missing"] == 120 - len(frame) and good["points"] == len(frame)
     assert -1 <= good["boxcox_lambda"] <= 2
-    assert bad["status"].startswith("has 10 points") and np.isnan(bad["seasonal_strength"])
+    assert bad["status"].startswith("has 10 points") and np.isnan(bad["strength_of_season"])
 
 
 def test_profile_with_two_periods(con, rng):

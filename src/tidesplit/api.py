@@ -268,7 +268,7 @@ def profile(
     --------
     >>> t = np.arange(48)
     >>> frame = pd.DataFrame({"k": "a", "t": t, "v": 10 + np.sin(2 * np.pi * t / 12)})
-    >>> float(profile(frame, "k", "t", "v", period=12)["seasonal_strength"].iloc[0].round(2))
+    >>> float(profile(frame, "k", "t", "v", period=12)["strength_of_season"].iloc[0].round(2))
     1.0
     """
     table = _Table(data, key, time, value)

@@ -15,12 +15,11 @@ SELECT * FROM tide_split(weekly_units, ['shop', 'product'], 'week', 'units',
 
 STRENGTH_SQL = """
 SELECT product,
-       round(avg(greatest(0, 1 - r_var / sr_var)), 2) AS seasonal_strength,
-       round(avg(greatest(0, 1 - r_var / tr_var)), 2) AS trend_strength
-FROM (SELECT shop, product, var_samp(remainder) AS r_var,
-             var_samp(seasonal + remainder) AS sr_var, var_samp(trend + remainder) AS tr_var
-      FROM weekly_split GROUP BY ALL)
-GROUP BY product ORDER BY seasonal_strength DESC
+       round(avg(strength_of_season), 2) AS strength_of_season,
+       round(avg(strength_of_trend), 2) AS strength_of_trend
+FROM tide_profile(weekly_units, ['shop', 'product'], 'week', 'units',
+                  period := 52, robust := true, transform := 'log')
+GROUP BY product ORDER BY strength_of_season DESC
 """.strip()
 
 
@@ -30,6 +29,11 @@ def _print_rows(title: str, rows: list[tuple], header: Sequence[str]) -> None:
     print("  " + "  ".join(str(h).ljust(w) for h, w in zip(header, widths, strict=True)))
     for row in rows:
         print("  " + "  ".join(str(v).ljust(w) for v, w in zip(row, widths, strict=True)))
+
+
+def _ends(rows: list[tuple], each: int = 3) -> list[tuple]:
+    """The first and last few rows of a ranking."""
+    return rows if len(rows) <= 2 * each else rows[:each] + rows[-each:]
 
 
 def run_demo(database: str | None, shops: int, products: int, years: int) -> None:
@@ -56,8 +60,8 @@ def run_demo(database: str | None, shops: int, products: int, years: int) -> Non
     print(f"\n{series:,} series, {rows_out:,} rows back (one per input row) in {elapsed:.2f} s.")
 
     _print_rows(
-        "Most and least seasonal products (strength 0..1, averaged over shops):",
-        (lambda r: r[:3] + r[-3:])(con.sql(STRENGTH_SQL).fetchall()),
+        "Most and least seasonal products (tide_profile's strengths, 0..1, mean over shops):",
+        _ends(con.sql(STRENGTH_SQL).fetchall()),
         ("product", "seasonal", "trend"),
     )
     slips = con.sql(

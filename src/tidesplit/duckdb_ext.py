@@ -1,8 +1,9 @@
-"""The DuckDB front: one Arrow UDF that splits a batch of series, and the SQL macros over it.
+"""The DuckDB front: Arrow UDFs over batches of series, and the SQL macros over them.
 
-The UDF receives up to 2048 series per call as Arrow list arrays and hands them to the same
-batch path as the Python API; the macros in ``sql/`` group a table into such lists and unnest
-the components back to one row per input row.
+Each UDF (split, profile, outliers, forecast) receives up to 2048 series per call as Arrow
+list arrays, decodes them once (``_decode``) and hands them to the same batch path as the
+Python API; the macros in ``sql/`` group a table into such lists and unnest the answers
+back into rows.
 """
 
 from __future__ import annotations

@@ -17,8 +17,8 @@ from .kernel import summary, threads
 from .rows import RowsResult
 
 PROFILE_COLUMNS = (
-    "trend_strength",
-    "seasonal_strength",
+    "strength_of_trend",
+    "strength_of_season",
     "seasonal_amplitude",
     "remainder_sd",
     "share_down_weighted",
