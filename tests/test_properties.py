@@ -33,12 +33,10 @@ def test_fixed_seasonal_pattern_repeats_exactly(rng, robust):
 
 
 def test_pure_cycle_has_no_remainder():
-    t = np.arange(48)
     y = 5 + np.tile([3.0, -1.0, 0.5, -2.5], 12)
     parts = tidesplit.split(y, period=4, season_span=0)
     np.testing.assert_allclose(parts.trend, 5.0, atol=1e-9)
     np.testing.assert_allclose(parts.remainder, 0.0, atol=1e-9)
-    del t
 
 
 def test_robust_fit_down_weights_a_spike(rng):
