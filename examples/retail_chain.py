@@ -87,7 +87,7 @@ CLOSED_WEEK = 70
 SLIP_SHOP, SLIP_PRODUCT, SLIP_WEEK = 5, 0, 120  # a value typed with an extra zero
 
 
-def weekly_units(shops: int = 12, products: int = 20, years: int = 4, seed: int = 7) -> pa.Table:
+def weekly_units(shops: int = 12, products: int = 20, years: int = 6, seed: int = 7) -> pa.Table:
     """Weekly units per shop and product: columns shop, product, week (0, 1, ...), units.
 
     Units are NULL in the week the closed shop was shut; one row carries a data-entry slip.

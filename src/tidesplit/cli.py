@@ -142,7 +142,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     demo.add_argument("--database", help="DuckDB file to keep the tables in (default: memory)")
     demo.add_argument("--shops", type=int, default=12, help="number of shops (default 12)")
     demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
-    demo.add_argument("--years", type=int, default=4, help="years of weekly data (default 4)")
+    demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")
     args = parser.parse_args(argv)
     if args.command == "demo":
         run_demo(args.database, args.shops, args.products, args.years)
