@@ -62,3 +62,20 @@ def test_concurrent_launches_under_workqueue():
 def test_concurrent_launches_under_the_default_layer():
     done = run_child("default")
     assert done.returncode == 0, done.stderr[-2000:]
+
+
+def test_blas_threads_come_back_after_a_query(con):
+    # the UDF path holds BLAS to one thread while it runs, then gives the setting back
+    import numpy as np
+    import pandas as pd
+    from threadpoolctl import threadpool_info
+
+    before = [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
+    t = np.arange(48)
+    frame = pd.DataFrame({"k": np.repeat(np.arange(300), 48), "t": np.tile(t, 300)})
+    frame["v"] = np.sin(2 * np.pi * frame["t"] / 12) + frame["k"]
+    con.register("frame", frame)
+    out = con.sql("SELECT * FROM tide_split(frame, 'k', 't', 'v', period := 12)").df()
+    assert len(out) == len(frame)
+    after = [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
+    assert after == before

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import transform
-from .kernel import checks, linear
+from .kernel import checks, linear, threads
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import COL_ACTIVE, COL_PERIOD, N_SETTINGS, stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ParamError, ResolvedParams, SplitParams
@@ -152,13 +152,15 @@ def _run_kernel(
             # consecutive series of one length: a reshaped view, no gather
             lo = offsets[members[0]]
             block = y[lo : lo + members.size * n].reshape(members.size, n)
-            t_part, s_part = linear.apply(block, row)
+            with threads.blas_for(parallel):
+                t_part, s_part = linear.apply(block, row)
             trend[lo : lo + members.size * n] = t_part.ravel()
             seasonal[lo : lo + members.size * n] = s_part.ravel()
             weight[lo : lo + members.size * n] = 1.0
         else:
             index = offsets[members][:, None] + np.arange(n)
-            t_part, s_part = linear.apply(y[index], row)
+            with threads.blas_for(parallel):
+                t_part, s_part = linear.apply(y[index], row)
             trend[index] = t_part
             seasonal[index] = s_part
             weight[index] = 1.0
