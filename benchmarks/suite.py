@@ -246,7 +246,7 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         import pyarrow as pa
 
         import tidesplit
-        from tidesplit.duckdb_ext import RESULT_TYPE, UDF_ARGS, UDF_NAME
+        from tidesplit.duckdb_ext import RESULT_TYPE, UDF_ARGS, UDF_NAME, udf_signature
 
         table = pa.table(
             {
@@ -258,10 +258,8 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         del values
         con = tidesplit.connect()
         if mode == "floor":
-            import inspect
-
-            identity_udf.__signature__ = inspect.Signature(  # type: ignore[attr-defined]
-                [inspect.Parameter(n, inspect.Parameter.POSITIONAL_ONLY) for n, _ in UDF_ARGS]
+            identity_udf.__signature__ = udf_signature(  # type: ignore[attr-defined]
+                [n for n, _ in UDF_ARGS]
             )
             con.remove_function(UDF_NAME)
             con.create_function(

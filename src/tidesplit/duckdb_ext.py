@@ -407,10 +407,15 @@ def _as_udf(handler: Any, extra: tuple[tuple[str, str], ...]) -> Any:
         )
         return handler(decoded)
 
-    call.__signature__ = inspect.Signature(  # type: ignore[attr-defined]
+    call.__signature__ = udf_signature(names)  # type: ignore[attr-defined]
+    return call
+
+
+def udf_signature(names: list[str]) -> inspect.Signature:
+    """One positional parameter per SQL argument: DuckDB checks a UDF's arity by it."""
+    return inspect.Signature(
         [inspect.Parameter(n, inspect.Parameter.POSITIONAL_ONLY) for n in names]
     )
-    return call
 
 
 def _macro_sql() -> str:
