@@ -68,7 +68,7 @@ def test_blas_threads_come_back_after_a_query(con):
     # the UDF path holds BLAS to one thread while it runs, then gives the setting back
     import numpy as np
     import pandas as pd
-    from threadpoolctl import threadpool_info
+    from threadpoolctl import threadpool_info, threadpool_limits
 
     def blas_threads() -> dict[str, int]:
         return {
@@ -88,3 +88,8 @@ def test_blas_threads_come_back_after_a_query(con):
     # every BLAS loaded before the query has its own thread count back (libraries loaded
     # during the query, such as scipy's, keep their defaults)
     assert {path: after[path] for path in before} == before
+    # and the caller's own thread can still change them: threadpoolctl 3.8+ lets one thread
+    # at a time control OpenBLAS, and a DuckDB worker must not keep that control
+    with threadpool_limits(limits=1, user_api="blas"):
+        assert set(blas_threads().values()) == {1}
+    assert {path: blas_threads()[path] for path in before} == before
