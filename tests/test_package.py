@@ -16,12 +16,14 @@ import pytest
 import tidesplit
 
 README = Path(__file__).resolve().parents[1] / "README.md"
+# every module, the kernel's and the examples' included (the prefix makes walk_packages
+# import subpackages by their full names, whatever the working directory holds)
 MODULES = sorted(
     {"tidesplit"}
     | {
-        f"tidesplit.{info.name}"
-        for info in pkgutil.walk_packages(tidesplit.__path__)
-        if not info.name.startswith("_")
+        info.name
+        for info in pkgutil.walk_packages(tidesplit.__path__, prefix="tidesplit.")
+        if not info.name.rsplit(".", 1)[-1].startswith("_")
     }
 )
 
