@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import memory
 from .decompose import OK
 from .kernel import grid
 
@@ -136,7 +137,7 @@ def regularise(
     span = np.zeros(count, dtype=np.int64)
     problem = np.zeros(count, dtype=np.int64)
     where = np.full(count, -1, dtype=np.int64)
-    slots = np.zeros(codes.size, dtype=np.int64)
+    slots = memory.full(codes.size, 0, dtype=np.int64)
     anchor = np.zeros(count, dtype=np.int64)
     everyone = np.ones(count, dtype=bool)
     local = np.zeros(count, dtype=bool)

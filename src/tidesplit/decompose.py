@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import transform
+from . import memory, transform
 from .kernel import checks, linear, threads
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import COL_ACTIVE, COL_PERIOD, N_SETTINGS, stl_batch_parallel, stl_batch_serial
@@ -131,10 +131,14 @@ def _run_kernel(
     parallel: bool,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Trend, seasonal and weights of every active series (NaN elsewhere)."""
-    trend = np.full(y.size, np.nan)
-    seasonal = np.full(y.size, np.nan)
-    weight = np.full(y.size, np.nan)
+    trend = memory.empty(y.size)
+    seasonal = memory.empty(y.size)
+    weight = memory.empty(y.size)
     lengths = np.diff(offsets)
+    idle = settings[:, COL_ACTIVE] == 0
+    if idle.any():  # every active series is written below; the others are NaN
+        rows = np.repeat(idle, lengths)
+        trend[rows] = seasonal[rows] = weight[rows] = np.nan
     gaps = np.isnan(y)
     if gaps.any():
         complete = segment_counts(gaps, offsets) == 0
@@ -150,13 +154,16 @@ def _run_kernel(
             continue  # too few series to pay for building the matrices
         if members.size == (members[-1] - members[0] + 1):
             # consecutive series of one length: a reshaped view, no gather
-            lo = offsets[members[0]]
-            block = y[lo : lo + members.size * n].reshape(members.size, n)
+            block = slice(offsets[members[0]], offsets[members[0]] + members.size * n)
+            shape = (members.size, n)
             with threads.blas_for(parallel):
-                t_part, s_part = linear.apply(block, row)
-            trend[lo : lo + members.size * n] = t_part.ravel()
-            seasonal[lo : lo + members.size * n] = s_part.ravel()
-            weight[lo : lo + members.size * n] = 1.0
+                linear.apply(
+                    y[block].reshape(shape),
+                    row,
+                    trend[block].reshape(shape),
+                    seasonal[block].reshape(shape),
+                )
+            weight[block] = 1.0
         else:
             index = offsets[members][:, None] + np.arange(n)
             with threads.blas_for(parallel):
@@ -282,7 +289,7 @@ def split_batch(
     any_transform = bool((transformed & ok).any())
     point_lambda = np.repeat(lambdas, lengths) if any_transform else None
     point_transformed = np.repeat(transformed & ok, lengths) if any_transform else None
-    y = values.copy()
+    y = memory.copy(values)
     if any_transform:
         y[point_transformed] = transform.forward(
             values[point_transformed], point_lambda[point_transformed]
@@ -304,8 +311,9 @@ def split_batch(
                 status[s] = f"ok; dropped period {shown}: not shorter than half the series"
     else:
         trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
-    remainder = y - trend - seasonal
-    adjusted = y - seasonal
+    remainder = np.subtract(y, trend, out=memory.empty(y.size))
+    remainder -= seasonal
+    adjusted = np.subtract(y, seasonal, out=memory.empty(y.size))
     if any_transform:
         adjusted[point_transformed] = transform.inverse(
             adjusted[point_transformed], point_lambda[point_transformed]
@@ -340,9 +348,9 @@ def _run_multi_kernel(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """MSTL over every active series; returns trend, seasonal parts (periods x points), weights."""
     width = settings.shape[1]
-    trend = np.full(y.size, np.nan)
-    parts = np.full((width, y.size), np.nan)
-    weight = np.full(y.size, np.nan)
+    trend = memory.full(y.size, np.nan)
+    parts = memory.full(width * y.size, np.nan).reshape(width, y.size)
+    weight = memory.full(y.size, np.nan)
     run = mstl_batch_parallel if parallel else mstl_batch_serial
     for g, group_params in enumerate(params):
         members = groups == g

@@ -20,6 +20,7 @@ import pyarrow.compute as pc
 
 from . import batch, calendar, summaries
 from .decompose import OK, segment_counts
+from .kernel import grid
 from .params import ParamError, SplitParams
 from .rows import COMPONENTS, RowsResult, split_rows
 
@@ -204,15 +205,13 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
             if status[i] == OK:
                 status[i] = "a time is NULL"
     order = None
-    if codes is not None and codes.size > 1:
-        # DuckDB's list() keeps no order; the lists of one group share one, so we sort
-        # here, once, instead of asking for four sorted aggregates
+    # DuckDB's list() keeps no order; the lists of one group share one, so we sort here,
+    # once, instead of asking for four sorted aggregates
+    if codes is not None and codes.size > 1 and not grid.sorted_within(codes, offsets):
         series = np.repeat(np.arange(offsets.size - 1), np.diff(offsets))
-        step_down = (np.diff(codes) < 0) & (series[1:] == series[:-1])
-        if step_down.any():
-            order = np.lexsort((codes, series))
-            codes = codes[order]
-            flat = flat[order]
+        order = np.lexsort((codes, series))
+        codes = codes[order]
+        flat = flat[order]
     kinds, zones = columns["time_kind"], columns["time_zone"]
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
     zone = zones[0].as_py() if len(zones) else None

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import calendar
+from . import calendar, memory
 from .decompose import OK, BatchResult, split_batch
 from .params import SplitParams
 
@@ -127,7 +127,7 @@ def split_rows(
         grid_offsets = grid.offsets
         if not grid.complete:
             positions = np.repeat(grid.offsets[:-1], lengths) + grid.slots
-            grid_values = np.full(grid.offsets[-1], np.nan)
+            grid_values = memory.full(grid.offsets[-1], np.nan)
             grid_values[positions] = values
     sets, groups = _choose_periods(params, grid_values, grid, kind, status)
     batch = split_batch(
@@ -144,7 +144,7 @@ def split_rows(
     if fill_gaps and positions is not None:
         inserted = np.ones(grid_values.size, dtype=bool)
         inserted[positions] = False
-        source = np.full(grid_values.size, -1, dtype=np.int64)
+        source = memory.full(grid_values.size, -1, dtype=np.int64)
         source[positions] = np.arange(values.size)
         out = {name: getattr(batch, name) for name in COMPONENTS}
         return RowsResult(
@@ -162,13 +162,12 @@ def split_rows(
         parts = None if parts is None else parts[:, positions]
     else:
         out = {name: getattr(batch, name) for name in COMPONENTS}
-    identity = np.arange(values.size, dtype=np.int64)
     return RowsResult(
         batch=batch,
         offsets=offsets,
         seasonal_parts=parts,
         inserted=np.zeros(values.size, dtype=bool),
-        source=identity if fill_gaps else None,
+        source=np.arange(values.size, dtype=np.int64) if fill_gaps else None,
         codes=codes if fill_gaps else None,
         grid=grid,
         **out,

@@ -11,6 +11,20 @@ UNEVEN = 2
 
 
 @njit(nogil=True, cache=True)
+def sorted_within(codes: np.ndarray, offsets: np.ndarray) -> bool:
+    """Whether the codes of every series are in non-decreasing order.
+
+    >>> sorted_within(np.array([1, 2, 0, 5]), np.array([0, 2, 4]))
+    True
+    """
+    for s in range(offsets.shape[0] - 1):
+        for i in range(offsets[s] + 1, offsets[s + 1]):
+            if codes[i] < codes[i - 1]:
+                return False
+    return True
+
+
+@njit(nogil=True, cache=True)
 def fixed_grid(
     codes: np.ndarray,
     offsets: np.ndarray,
@@ -51,14 +65,17 @@ def fixed_grid(
             smallest = 1
         step[s] = smallest
         first[s] = codes[lo]
-        if problem[s] == FINE:
-            for i in range(lo + 1, hi):
-                if (codes[i] - codes[i - 1]) % smallest != 0:
+        # slots step by one for consecutive rows; only gaps need a division
+        slots[lo] = 0
+        for i in range(lo + 1, hi):
+            d = codes[i] - codes[i - 1]
+            if d == smallest:
+                slots[i] = slots[i - 1] + 1
+            else:
+                if d % smallest != 0 and problem[s] == FINE:
                     problem[s] = UNEVEN
                     where[s] = i
-                    break
-        for i in range(lo, hi):
-            slots[i] = (codes[i] - codes[lo]) // smallest
+                slots[i] = slots[i - 1] + d // smallest
         span[s] = slots[hi - 1] + 1
 
 

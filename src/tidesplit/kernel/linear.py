@@ -63,8 +63,14 @@ def operators(n: int, settings: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return found
 
 
-def apply(series: np.ndarray, settings: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Trend and seasonal of each row of ``series`` (``m x n``, complete, non-robust).
+def apply(
+    series: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray | None = None,
+    seasonal: np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Trend and seasonal of each row of ``series`` (``m x n``, complete, non-robust),
+    written into ``trend`` and ``seasonal`` (``m x n`` each) when given.
 
     >>> y = np.tile(np.sin(np.arange(24) * np.pi / 6), (3, 1)) + np.arange(24) * 0.1
     >>> from tidesplit.params import SplitParams
@@ -73,4 +79,8 @@ def apply(series: np.ndarray, settings: np.ndarray) -> tuple[np.ndarray, np.ndar
     True
     """
     t_op, s_op = operators(series.shape[1], settings)
-    return series @ t_op, series @ s_op
+    if trend is None or seasonal is None:
+        return series @ t_op, series @ s_op
+    np.matmul(series, t_op, out=trend)
+    np.matmul(series, s_op, out=seasonal)
+    return trend, seasonal
