@@ -169,23 +169,41 @@ def best_of(runs: int, fn: Callable[[], object]) -> float:
 
 def identity_udf(*columns: Any) -> Any:
     """The engine floor: our UDF's arguments and result, the values handed back as every
-    component, and per series the fields ours returns (a period, a list of periods, a
-    status), so that DuckDB converts and unnests the same shape."""
+    component (and, with several periods, as every period's part), and per series the
+    fields ours returns (a period, a list of periods, a status), so that DuckDB converts
+    and unnests the same shape."""
     import pyarrow as pa
 
-    from tidesplit.duckdb_ext import UDF_ARGS
+    from tidesplit.duckdb_ext import PART_ARROW_TYPE, UDF_ARGS
 
-    values = columns[[n for n, _ in UDF_ARGS].index("values")]
+    names = [n for n, _ in UDF_ARGS]
+    values = columns[names.index("values")]
     values = values.combine_chunks() if isinstance(values, pa.ChunkedArray) else values
     n = len(values)
-    empty_maps = pa.nulls(n, pa.list_(pa.map_(pa.int64(), pa.float64())))
+    periods = columns[names.index("periods")][0].as_py() or []
+    if periods:
+        points = len(values.values)
+        items = pa.StructArray.from_arrays(
+            [
+                pa.array(np.tile(np.array(periods, dtype=np.int64), points)),
+                pa.array(np.repeat(values.values.to_numpy(zero_copy_only=False), len(periods))),
+            ],
+            names=["period", "seasonal"],
+        )
+        rows = pa.ListArray.from_arrays(
+            pa.array(np.arange(0, points * len(periods) + 1, len(periods), dtype=np.int32)),
+            items,
+        )
+        parts = pa.ListArray.from_arrays(values.offsets, rows)
+    else:
+        parts = pa.nulls(n, PART_ARROW_TYPE)
     fields = {
         "trend": values,
         "seasonal": values,
         "remainder": values,
         "adjusted": values,
         "weight": values,
-        "seasonal_by_period": empty_maps,
+        "seasonal_by_period": parts,
         "inserted": pa.nulls(n, pa.list_(pa.bool_())),
         "time_codes": pa.nulls(n, pa.list_(pa.int64())),
         "source": pa.nulls(n, pa.list_(pa.int64())),

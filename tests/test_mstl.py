@@ -111,8 +111,20 @@ def test_sql_multi_with_inferred_periods_and_gaps(con, rng):
     ).df()
     assert len(out) == y.size and out["inserted"].sum() == 3
     assert out["periods"].iloc[0].tolist() == [24, 168]
-    parts = pd.DataFrame(out["seasonal_by_period"].map(dict).tolist())
+    # one (period, seasonal) struct per period on every row, in ascending period
+    assert all([p["period"] for p in row] == [24, 168] for row in out["seasonal_by_period"])
+    parts = pd.DataFrame(
+        out["seasonal_by_period"].map(lambda r: {p["period"]: p["seasonal"] for p in r}).tolist()
+    )
     np.testing.assert_allclose(parts[24] + parts[168], out["seasonal"], atol=1e-12)
+    looked_up = con.sql(
+        "SELECT tide_part(seasonal_by_period, 24) AS day, tide_part(seasonal_by_period, 168) "
+        "AS week, tide_part(seasonal_by_period, 12) AS absent FROM tide_split_multi(meters, "
+        "'meter', 'ts', 'load', fill_gaps := true) ORDER BY ts"
+    ).df()
+    np.testing.assert_array_equal(looked_up["day"], parts[24])
+    np.testing.assert_array_equal(looked_up["week"], parts[168])
+    assert looked_up["absent"].isna().all()
     table = tidesplit.split_table(frame, "meter", "ts", "load", periods=[], fill_gaps=True)
     np.testing.assert_allclose(table["trend"], out["trend"], atol=1e-10)
     # a transform applies before the split, as with one period

@@ -113,8 +113,10 @@ def _hourly_demo(con: object) -> None:
     elapsed = time.perf_counter() - started
     rows = con.sql(
         "SELECT meter, count(*) FILTER (WHERE inserted) AS hours_inserted, "
-        "round(max(seasonal_by_period[24]) - min(seasonal_by_period[24]), 1) AS day_swing, "
-        "round(max(seasonal_by_period[168]) - min(seasonal_by_period[168]), 1) AS week_swing "
+        "round(max(tide_part(seasonal_by_period, 24)) "
+        "- min(tide_part(seasonal_by_period, 24)), 1) AS day_swing, "
+        "round(max(tide_part(seasonal_by_period, 168)) "
+        "- min(tide_part(seasonal_by_period, 168)), 1) AS week_swing "
         "FROM hourly_split GROUP BY meter ORDER BY meter"
     ).fetchall()
     _print_rows(

@@ -152,3 +152,8 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
     (SELECT * EXCLUDE (period) FROM __tide_split_keys(tbl, [key], time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, {split_args}, {multi_args}) AS TABLE
     (SELECT * EXCLUDE (period) FROM __tide_split_keys(tbl, key, time, value, {split_named}, periods := coalesce(periods, []), season_spans := season_spans, iterations := iterations));
+
+-- The seasonal part of one period from a row's seasonal_by_period (NULL if that period was
+-- not used for the series): tide_part(seasonal_by_period, 168).
+CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
+    list_filter(parts, lambda part: part.period = period)[1].seasonal;
