@@ -112,3 +112,24 @@ def test_parallel_and_serial_kernels_agree(rng):
         outs.append(out)
     for a, b in zip(*outs, strict=True):
         np.testing.assert_array_equal(a, b)
+
+
+@pytest.mark.parametrize("gaps", [False, True])
+def test_unsplit_series_are_nan_even_in_reused_memory(rng, gaps):
+    # working arrays come uninitialised from Arrow's pool (tidesplit.memory); dirty it
+    # first so that a series left unsplit could only read NaN if we wrote NaN
+    from tidesplit import memory
+
+    for _ in range(4):
+        memory.full(600 * 120, 7.0)
+    values = np.concatenate([seasonal_series(rng, 120, 12) for _ in range(600)])
+    if gaps:
+        values[5::97] = np.nan
+    values[130 * 120 : 131 * 120] = np.inf  # one bad series in the middle
+    offsets = np.arange(0, values.size + 1, 120)
+    out = tidesplit.split_batch(values, offsets, SplitParams(period=12), on_error="keep")
+    bad = slice(130 * 120, 131 * 120)
+    assert out.status[130].startswith("infinite value")
+    for part in (out.trend, out.seasonal, out.remainder, out.adjusted, out.weight):
+        assert np.isnan(part[bad]).all()
+    assert np.isfinite(out.trend[: 130 * 120]).all() and np.isfinite(out.trend[131 * 120 :]).all()
