@@ -65,8 +65,9 @@ UDF_ARGS = LEAD_ARGS + SPLIT_ARGS + MULTI_ARGS
 
 # One seasonal part per period on every row, as a list of (period, seasonal) structs in
 # ascending period. A MAP(period -> part) read more tersely, but DuckDB checks the keys of
-# every map it takes in: on 1,000 hourly series that cost more than the rest of the engine's
-# work together (benchmarks/suite.py), while a list of structs costs about a plain list.
+# every map it takes in: on 400 hourly series a year long, with the UDF's results cached,
+# that took 1.8 s of the 2.6 s the engine spent on them; a list of structs costs about what
+# a plain list does.
 PART_TYPE = "STRUCT(period BIGINT, seasonal DOUBLE)[]"
 PART_ARROW_TYPE = pa.list_(
     pa.list_(pa.struct([("period", pa.int64()), ("seasonal", pa.float64())]))
