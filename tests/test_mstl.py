@@ -98,6 +98,23 @@ def test_long_periods_are_dropped_with_a_status(rng):
     )
     out = tidesplit.split_table(frame, "k", "t", "v", periods=[])  # implied: 24 and 168
     assert set(out["status"]) == {"ok; dropped period 168: not shorter than half the series"}
+    # beside a longer series that keeps both: one column per period used, NaN where dropped
+    longer = pd.DataFrame(
+        {"k": "z", "t": pd.date_range("2024-01-01", periods=24 * 7 * 4, freq="h")}
+    ).assign(v=two_cycles(rng, 24 * 7 * 4))
+    both = tidesplit.split_table(pd.concat([frame, longer]), "k", "t", "v", periods=[])
+    assert [c for c in both.columns if c.startswith("seasonal_")] == [
+        "seasonal_24",
+        "seasonal_168",
+    ]
+    short, long_ = both[both["k"] == "m"], both[both["k"] == "z"]
+    assert short["seasonal_168"].isna().all()
+    assert all(tuple(p) == (24,) for p in short["periods"])
+    np.testing.assert_allclose(short["seasonal_24"], short["seasonal"], atol=1e-12)
+    np.testing.assert_allclose(
+        long_["seasonal_24"] + long_["seasonal_168"], long_["seasonal"], atol=1e-12
+    )
+    assert all(tuple(p) == (24, 168) for p in long_["periods"])
 
 
 def test_sql_multi_with_inferred_periods_and_gaps(con, rng):

@@ -179,6 +179,26 @@ class _Table:
         return self.first_rows.iloc[series_of_rows].reset_index(drop=True)
 
 
+def _part_columns(
+    parts: np.ndarray, series_periods: list[tuple[int, ...]], lengths: np.ndarray
+) -> dict[str, np.ndarray]:
+    """``seasonal_<period>`` columns, one per period any series used (NaN where a series
+    did not use it). Plain columns rather than a dict per row: pandas handles them
+    natively, and building millions of dicts took as long as the split itself."""
+    columns = {}
+    for period in sorted({p for periods in series_periods for p in periods}):
+        part_of = np.array(
+            [periods.index(period) if period in periods else -1 for periods in series_periods],
+            dtype=np.int64,
+        )
+        row_part = np.repeat(part_of, lengths)
+        rows = np.flatnonzero(row_part >= 0)
+        column = np.full(row_part.size, np.nan)
+        column[rows] = parts[row_part[rows], rows]
+        columns[f"seasonal_{period}"] = column
+    return columns
+
+
 def split_table(
     data: Any,
     key: str | Sequence[str],
@@ -197,9 +217,10 @@ def split_table(
     inserted and status (``'ok'``, or why the series was left unsplit under
     ``on_error='keep'``). With ``fill_gaps=True`` there is also a row for every time
     missing inside a series (``inserted`` true, value NaN). With ``periods=[...]`` (or
-    ``periods=[]`` for those the step implies) the split has several seasonal periods and a
-    ``seasonal_by_period`` column holds a dict of the parts. NULL keys form a group of
-    their own.
+    ``periods=[]`` for those the step implies) the split has several seasonal periods, one
+    ``seasonal_<period>`` column each (``seasonal_24``, ``seasonal_168``; NaN for a series
+    that did not use that period) and a ``periods`` column. NULL keys form a group of their
+    own.
 
     Examples
     --------
@@ -234,15 +255,13 @@ def split_table(
     for name in COMPONENTS:
         out[name] = getattr(result, name)
     if result.seasonal_parts is not None:
-        series_of = np.repeat(np.arange(lengths.size), lengths)
-        periods = [result.batch.series_periods[s] for s in series_of]
-        parts = result.seasonal_parts
-        out["seasonal_by_period"] = [
-            {p: float(parts[k, r]) for k, p in enumerate(ps)} for r, ps in enumerate(periods)
-        ]
+        parts = _part_columns(result.seasonal_parts, result.batch.series_periods, lengths)
+        out = out.assign(**parts)
     out["inserted"] = result.inserted
     if result.seasonal_parts is not None:
-        out["periods"] = periods
+        per_series = np.empty(lengths.size, dtype=object)
+        per_series[:] = result.batch.series_periods
+        out["periods"] = np.repeat(per_series, lengths)
     else:
         used = result.batch.periods.astype(float)
         out["period"] = np.repeat(np.where(used > 0, used, np.nan), lengths)
