@@ -241,6 +241,33 @@ def test_damped_trend_recursion_matches_statsmodels():
     assert sse == pytest.approx(model.sse, rel=1e-10)
 
 
+def test_grid_fit_is_the_best_damped_path(rng):
+    # the grid fit runs every path side by side; it must pick what a plain search over the
+    # tested recursion (damped_path) picks, with the same final state, missing points too
+    alphas, betas, phis = np.linspace(0.1, 0.9, 5), np.array([0.01, 0.1, 0.3]), np.array([0.8, 0.9])
+    series = [np.cumsum(rng.normal(0.2, 1.0, 60)) for _ in range(4)]
+    series[1][[5, 6, 30]] = np.nan
+    series[2][0] = np.nan  # starts one point later
+    values = np.concatenate(series)
+    offsets = np.arange(0, values.size + 1, 60)
+    out = np.empty((4, 6))
+    summary.damped_fit_serial(values, offsets, np.ones(4, bool), alphas, betas, phis, out)
+    for s, a in enumerate(series):
+        seen = np.flatnonzero(~np.isnan(a))
+        first, second = seen[0], seen[1]
+        start = (a[first], (a[second] - a[first]) / (second - first))
+        best = None
+        for alpha in alphas:
+            for beta in betas[betas <= alpha]:
+                for phi in phis:
+                    level, slope, sse, count = summary.damped_path(
+                        a[first + 1 :], alpha, beta, phi, *start
+                    )
+                    if best is None or sse < best[0]:
+                        best = (sse, alpha, beta, phi, level, slope, sse / max(count - 3, 1))
+        assert out[s].tolist() == list(best[1:])
+
+
 def mase(actual, forecast, train, period):
     # Hyndman & Koehler (2006): MAE scaled by the in-sample seasonal naive MAE
     scale = np.mean(np.abs(train[period:] - train[:-period]))
@@ -284,3 +311,25 @@ def test_future_times_follow_the_step(con):
     expected = [weeks[-1] + pd.Timedelta(days=7 * h) for h in (1, 2, 3)]
     assert pd.to_datetime(out["week"]).dt.date.tolist() == expected
     assert out["step"].tolist() == [1, 2, 3]
+
+
+def test_future_times_per_series_in_one_query(con, rng):
+    # month ends, mid-month and daily series in one batch: each continues on its own grid
+    month_ends = pd.date_range("2020-02-29", periods=48, freq="ME").date  # ends 2024-01-31
+    mid_month = pd.date_range("2020-03-15", periods=48, freq="MS").date + pd.Timedelta(days=14)
+    days = pd.date_range("2024-01-01", periods=60, freq="D").date
+    frames = [
+        pd.DataFrame({"k": name, "day": when, "v": 20 + rng.normal(0, 1, len(when))})
+        for name, when in (("ends", month_ends), ("mid", mid_month), ("daily", days))
+    ]
+    con.register("frame", pd.concat(frames, ignore_index=True))
+    out = con.sql(
+        "SELECT k, day, step FROM tide_forecast(frame, 'k', 'day', 'v', horizon := 3) "
+        "ORDER BY k, step"
+    ).df()
+    ahead = {k: pd.to_datetime(g["day"]).dt.date.tolist() for k, g in out.groupby("k")}
+    date = pd.Timestamp
+    assert ahead["ends"] == [date(d).date() for d in ("2024-02-29", "2024-03-31", "2024-04-30")]
+    last_mid = pd.Timestamp(mid_month[-1])
+    assert ahead["mid"] == [(last_mid + pd.DateOffset(months=h)).date() for h in (1, 2, 3)]
+    assert ahead["daily"] == [date(d).date() for d in ("2024-03-01", "2024-03-02", "2024-03-03")]

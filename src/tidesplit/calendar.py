@@ -286,38 +286,41 @@ def periods_for_step(unit: int, step: int) -> tuple[int, ...]:
 def grid_codes(grid: Grid, kind: str, time_zone: str | None = None) -> np.ndarray:
     """The time code of every grid point (for rows inserted into gaps)."""
     lengths = np.diff(grid.offsets)
+    series = np.repeat(np.arange(lengths.size), lengths)
     position = np.arange(grid.offsets[-1]) - np.repeat(grid.offsets[:-1], lengths)
-    unit = np.repeat(grid.unit, lengths)
-    step = np.repeat(grid.step, lengths)
-    first = np.repeat(grid.first, lengths)
-    out = first + position * step
+    return _codes_at(grid, series, position, kind, time_zone)
+
+
+def future_codes(
+    grid: Grid, series: np.ndarray, horizon: int, kind: str, time_zone: str | None
+) -> np.ndarray:
+    """The time codes of the ``horizon`` grid points after the end of each of ``series``,
+    series after series."""
+    series = np.asarray(series, dtype=np.int64)
+    lengths = np.diff(grid.offsets)[series]
+    position = np.repeat(lengths, horizon) + np.tile(np.arange(horizon), series.size)
+    return _codes_at(grid, np.repeat(series, horizon), position, kind, time_zone)
+
+
+def _codes_at(
+    grid: Grid, series: np.ndarray, position: np.ndarray, kind: str, time_zone: str | None
+) -> np.ndarray:
+    """Time codes of grid positions ``position`` of the series ``series`` (one per row)."""
+    unit = grid.unit[series]
+    first = grid.first[series]
+    out = first + position * grid.step[series]
     monthly = unit == UNIT_MONTH
     if monthly.any():
-        month = (first + position * step)[monthly].astype("datetime64[M]")
-        anchor = np.repeat(grid.anchor, lengths)[monthly]
+        month = out[monthly].astype("datetime64[M]")
+        anchor = grid.anchor[series][monthly]
         start = month.astype("datetime64[us]").astype(np.int64)
         following = (month + 1).astype("datetime64[us]").astype(np.int64)
         end_of_month = following - US_PER_DAY + (-1 - anchor)
         out[monthly] = np.where(anchor >= 0, start + anchor, end_of_month)
     if kind == "timestamptz" and grid.local.any():
-        rows = np.repeat(grid.local, lengths)
+        rows = grid.local[series]
         out[rows] = _utc_codes(out[rows], time_zone)
     return out
-
-
-def future_codes(grid: Grid, s: int, horizon: int, kind: str, time_zone: str | None) -> np.ndarray:
-    """The time codes of the ``horizon`` grid points after the end of series ``s``."""
-    length = int(grid.offsets[s + 1] - grid.offsets[s])
-    ahead = Grid(
-        unit=grid.unit[s : s + 1],
-        step=grid.step[s : s + 1],
-        slots=np.empty(0, np.int64),
-        offsets=np.array([0, length + horizon], dtype=np.int64),
-        first=grid.first[s : s + 1],
-        anchor=grid.anchor[s : s + 1],
-        local=grid.local[s : s + 1],
-    )
-    return grid_codes(ahead, kind, time_zone)[length:]
 
 
 def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:

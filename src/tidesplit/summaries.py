@@ -317,10 +317,7 @@ def forecast(
     chosen = np.flatnonzero(ok)
     future_codes = None
     if result.grid is not None:
-        ahead = [
-            calendar.future_codes(result.grid, int(s), horizon, kind, time_zone) for s in chosen
-        ]
-        future_codes = np.concatenate(ahead) if ahead else np.empty(0, np.int64)
+        future_codes = calendar.future_codes(result.grid, chosen, horizon, kind, time_zone)
     out_offsets = np.arange(chosen.size + 1) * horizon
     return Forecast(
         offsets=out_offsets,

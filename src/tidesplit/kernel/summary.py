@@ -187,6 +187,32 @@ def damped_path(
 
 
 @njit(nogil=True, cache=True)
+def _damped_grid(
+    alphas: np.ndarray, betas: np.ndarray, phis: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Every (alpha, beta <= alpha, phi) of the grid, in the order the fit searches them."""
+    size = 0
+    for alpha in alphas:
+        for beta in betas:
+            if beta <= alpha:
+                size += phis.shape[0]
+    grid_alpha = np.empty(size)
+    grid_beta = np.empty(size)
+    grid_phi = np.empty(size)
+    c = 0
+    for alpha in alphas:
+        for beta in betas:
+            if beta > alpha:
+                continue
+            for phi in phis:
+                grid_alpha[c] = alpha
+                grid_beta[c] = beta
+                grid_phi[c] = phi
+                c += 1
+    return grid_alpha, grid_beta, grid_phi
+
+
+@njit(nogil=True, cache=True)
 def damped_fit_serial(
     adjusted: np.ndarray,
     offsets: np.ndarray,
@@ -197,8 +223,9 @@ def damped_fit_serial(
     out: np.ndarray,
 ) -> None:
     """``damped_fit_batch`` on the calling thread (for callers with threads of their own)."""
+    grid_alpha, grid_beta, grid_phi = _damped_grid(alphas, betas, phis)
     for s in range(offsets.shape[0] - 1):
-        _damped_fit_one(adjusted, offsets, active, alphas, betas, phis, out, s)
+        _damped_fit_one(adjusted, offsets, active, grid_alpha, grid_beta, grid_phi, out, s)
 
 
 @njit(nogil=True, parallel=True, cache=True)
@@ -216,8 +243,9 @@ def damped_fit_batch(
 
     ``out`` columns: alpha, beta, phi, final level, final slope, residual variance.
     """
+    grid_alpha, grid_beta, grid_phi = _damped_grid(alphas, betas, phis)
     for s in prange(offsets.shape[0] - 1):
-        _damped_fit_one(adjusted, offsets, active, alphas, betas, phis, out, s)
+        _damped_fit_one(adjusted, offsets, active, grid_alpha, grid_beta, grid_phi, out, s)
 
 
 @njit(nogil=True, cache=True)
@@ -225,13 +253,19 @@ def _damped_fit_one(
     adjusted: np.ndarray,
     offsets: np.ndarray,
     active: np.ndarray,
-    alphas: np.ndarray,
-    betas: np.ndarray,
-    phis: np.ndarray,
+    grid_alpha: np.ndarray,
+    grid_beta: np.ndarray,
+    grid_phi: np.ndarray,
     out: np.ndarray,
     s: int,
 ) -> None:
-    """Grid fit of one series (see ``damped_fit_batch``)."""
+    """Grid fit of one series (see ``damped_fit_batch``).
+
+    Every grid point runs ``damped_path``'s recursion, but all of them advance together,
+    one time step at a time: the inner loop over grid points has no branches and runs on
+    the CPU's vector units (several times faster than one path after another). Each
+    path's arithmetic, and so its result, is the same as ``damped_path``'s.
+    """
     for c in range(6):
         out[s, c] = math.nan
     if not active[s]:
@@ -248,21 +282,36 @@ def _damped_fit_one(
                 break
     if second < 0:
         return
-    level0 = a[first]
-    slope0 = (a[second] - a[first]) / (second - first)
-    tail = a[first + 1 :]
-    best = math.inf
-    for alpha in alphas:
-        for beta in betas:
-            if beta > alpha:
-                continue
-            for phi in phis:
-                level, slope, sse, count = damped_path(tail, alpha, beta, phi, level0, slope0)
-                if sse < best:
-                    best = sse
-                    out[s, 0] = alpha
-                    out[s, 1] = beta
-                    out[s, 2] = phi
-                    out[s, 3] = level
-                    out[s, 4] = slope
-                    out[s, 5] = sse / max(count - 3, 1)
+    size = grid_alpha.shape[0]
+    level = np.full(size, a[first])
+    slope = np.full(size, (a[second] - a[first]) / (second - first))
+    sse = np.zeros(size)
+    count = 0
+    for i in range(first + 1, a.shape[0]):
+        value = a[i]
+        if math.isnan(value):
+            for c in range(size):
+                level[c] = level[c] + grid_phi[c] * slope[c]
+                slope[c] = grid_phi[c] * slope[c]
+            continue
+        count += 1
+        for c in range(size):
+            forecast = level[c] + grid_phi[c] * slope[c]
+            error = value - forecast
+            sse[c] += error * error
+            level[c] = forecast + grid_alpha[c] * error
+            slope[c] = grid_phi[c] * slope[c] + grid_beta[c] * error
+    best = -1
+    smallest = math.inf
+    for c in range(size):
+        if sse[c] < smallest:  # the first of equal errors wins, as in the grid's order
+            best = c
+            smallest = sse[c]
+    if best < 0:
+        return
+    out[s, 0] = grid_alpha[best]
+    out[s, 1] = grid_beta[best]
+    out[s, 2] = grid_phi[best]
+    out[s, 3] = level[best]
+    out[s, 4] = slope[best]
+    out[s, 5] = sse[best] / max(count - 3, 1)
