@@ -103,16 +103,16 @@ def test_long_periods_are_dropped_with_a_status(rng):
         {"k": "z", "t": pd.date_range("2024-01-01", periods=24 * 7 * 4, freq="h")}
     ).assign(v=two_cycles(rng, 24 * 7 * 4))
     both = tidesplit.split_table(pd.concat([frame, longer]), "k", "t", "v", periods=[])
-    assert [c for c in both.columns if c.startswith("seasonal_")] == [
-        "seasonal_24",
-        "seasonal_168",
+    assert [c for c in both.columns if c.startswith("seasonal_period_")] == [
+        "seasonal_period_24",
+        "seasonal_period_168",
     ]
     short, long_ = both[both["k"] == "m"], both[both["k"] == "z"]
-    assert short["seasonal_168"].isna().all()
+    assert short["seasonal_period_168"].isna().all()
     assert all(tuple(p) == (24,) for p in short["periods"])
-    np.testing.assert_allclose(short["seasonal_24"], short["seasonal"], atol=1e-12)
+    np.testing.assert_allclose(short["seasonal_period_24"], short["seasonal"], atol=1e-12)
     np.testing.assert_allclose(
-        long_["seasonal_24"] + long_["seasonal_168"], long_["seasonal"], atol=1e-12
+        long_["seasonal_period_24"] + long_["seasonal_period_168"], long_["seasonal"], atol=1e-12
     )
     assert all(tuple(p) == (24, 168) for p in long_["periods"])
 

@@ -182,8 +182,8 @@ class _Table:
 def _part_columns(
     parts: np.ndarray, series_periods: list[tuple[int, ...]], lengths: np.ndarray
 ) -> dict[str, np.ndarray]:
-    """``seasonal_<period>`` columns, one per period any series used (NaN where a series
-    did not use it). Plain columns rather than a dict per row: pandas handles them
+    """``seasonal_period_<period>`` columns, one per period any series used (NaN where a
+    series did not use it). Plain columns rather than a dict per row: pandas handles them
     natively, and building millions of dicts took as long as the split itself."""
     columns = {}
     for period in sorted({p for periods in series_periods for p in periods}):
@@ -195,7 +195,7 @@ def _part_columns(
         rows = np.flatnonzero(row_part >= 0)
         column = np.full(row_part.size, np.nan)
         column[rows] = parts[row_part[rows], rows]
-        columns[f"seasonal_{period}"] = column
+        columns[f"seasonal_period_{period}"] = column
     return columns
 
 
@@ -218,9 +218,9 @@ def split_table(
     ``on_error='keep'``). With ``fill_gaps=True`` there is also a row for every time
     missing inside a series (``inserted`` true, value NaN). With ``periods=[...]`` (or
     ``periods=[]`` for those the step implies) the split has several seasonal periods, one
-    ``seasonal_<period>`` column each (``seasonal_24``, ``seasonal_168``; NaN for a series
-    that did not use that period) and a ``periods`` column. NULL keys form a group of their
-    own.
+    ``seasonal_period_<period>`` column each (``seasonal_period_24``,
+    ``seasonal_period_168``; NaN for a series that did not use that period) and a
+    ``periods`` column. NULL keys form a group of their own.
 
     Examples
     --------
