@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from datasets import AIRLINE_PASSENGERS, co2_monthly, elec_equip_monthly, elnino_monthly
+from datasets import AIRLINE_PASSENGERS, co2_monthly, elec_equip_monthly
 from statsmodels.tsa.arima.model import ARIMA
 from statsmodels.tsa.forecasting.stl import STLForecast
 from statsmodels.tsa.holtwinters import ExponentialSmoothing
@@ -121,13 +121,6 @@ def test_profile_with_two_periods(con, rng):
 
 # ---- outliers ---------------------------------------------------------------------------
 
-OPEN_SERIES = {
-    "elec_equip": elec_equip_monthly,
-    "co2": lambda: pd.Series(co2_monthly()).interpolate().to_numpy(),
-    "elnino": elnino_monthly,
-    "airline (log)": lambda: np.log(AIRLINE_PASSENGERS),
-}
-
 
 def inject_spikes(y, rng, count=5, size=6.0):
     """Spikes of `size` standard deviations of the plain fit's remainder, distinct places."""
@@ -136,44 +129,6 @@ def inject_spikes(y, rng, count=5, size=6.0):
     spiked = y.copy()
     spiked[places] += size * scale * rng.choice([-1, 1], count)
     return spiked, set(places.tolist())
-
-
-def spike_scores(name, robust, trials=5):
-    rng = np.random.default_rng(3)
-    recalls, false_rates = [], []
-    for _ in range(trials):
-        y, places = inject_spikes(OPEN_SERIES[name](), rng)
-        frame = pd.DataFrame({"k": name, "t": np.arange(y.size), "v": y})
-        found = set(tidesplit.outliers(frame, "k", "t", "v", period=12, robust=robust)["t"])
-        recalls.append(len(found & places) / len(places))
-        false_rates.append(len(found - places) / y.size)
-    return np.mean(recalls), np.mean(false_rates)
-
-
-@pytest.mark.parametrize("name", sorted(OPEN_SERIES))
-def test_injected_spikes_are_found(name):
-    # 5 spikes of 6 sd in each of 5 trials per open dataset (shipped with statsmodels, and
-    # the airline series). "False" flags include the datasets' own unusual months (the 2008
-    # fall in elec_equip, say), so their rate is an upper bound.
-    recall, false_rate = spike_scores(name, robust=True)
-    assert recall >= 0.9, (recall, false_rate)
-    assert false_rate <= 0.06, (recall, false_rate)
-    # the robust default is there because a plain fit bends towards the spikes it should find
-    plain_recall, _ = spike_scores(name, robust=False)
-    assert recall > plain_recall
-
-
-def test_clean_series_flag_few(rng):
-    # Gaussian noise around a cycle: 3-IQR fences (common practice) should flag well under 1%
-    flagged = 0
-    total = 0
-    for _ in range(20):
-        t = np.arange(240)
-        y = 10 + 0.01 * t + np.sin(2 * np.pi * t / 12) + rng.normal(0, 0.2, t.size)
-        frame = pd.DataFrame({"k": "x", "t": t, "v": y})
-        flagged += len(tidesplit.outliers(frame, "k", "t", "v", period=12))
-        total += t.size
-    assert flagged / total < 0.01
 
 
 def test_outliers_in_sql_match_python_and_join_back(con, rng):

@@ -319,15 +319,22 @@ def outliers(
     value: str,
     period: int | None = None,
     *,
-    method: str = "iqr",
-    threshold: float = 3.0,
+    method: str = "stepwise",
+    threshold: float | None = None,
+    significance: float | None = None,
     all_rows: bool = False,
     robust: bool = True,
     on_error: str = "raise",
     **params: Any,
 ) -> pd.DataFrame:
-    """Rows whose remainder lies outside fences, with a score, the direction and the
+    """Rows whose remainder is too far out to be noise, with a score, the direction and the
     expected value (trend + seasonal, on the original scale); all rows with ``all_rows``.
+
+    ``method='stepwise'`` (default) tests the most extreme remainders one after another
+    (Rosner's 1983 generalized extreme Studentized deviate procedure) at ``significance``
+    (default 0.05, the chance of any flag on a series of pure noise); ``method='mad'``
+    flags robust z-scores beyond ``threshold`` (default 3.5). See
+    ``summaries.unusual_points``.
 
     The split is robust by default, so that the points being judged do not pull the fit
     towards themselves.
@@ -344,12 +351,15 @@ def outliers(
     """
     table = _Table(data, key, time, value)
     params = {"robust": robust, **params}
+    if robust:  # one robustness pass (see summaries.unusual_points)
+        params = {"inner_loops": 2, "outer_loops": 1, **params}
     result = table.split(period, params, on_error, fill_gaps=True)
-    found = summaries.unusual_points(result, method, threshold)
+    settings = SplitParams.from_kwargs(period=period, **params)
+    found = summaries.unusual_points(result, method, threshold, significance, settings)
     rows = result.source >= 0
     out = table.frame[[*table.keys, table.time, table.value]].copy()
     out["expected"] = found.expected[rows]
-    out["remainder"] = result.remainder[rows]
+    out["remainder"] = found.remainder[rows]
     out["score"] = found.score[rows]
     out["direction"] = np.array(found.direction, dtype=object)[rows]
     out["weight"] = result.weight[rows]

@@ -62,6 +62,8 @@ LEAD_ARGS: tuple[tuple[str, str], ...] = (
     ("period", "DOUBLE"),
 )
 UDF_ARGS = LEAD_ARGS + SPLIT_ARGS + MULTI_ARGS
+# tide_outliers splits robustly, with one robustness pass (see summaries.unusual_points).
+OUTLIER_DEFAULTS = {"robust": "true", "inner_loops": "2", "outer_loops": "1"}
 
 # One seasonal part per period on every row, as a list of (period, seasonal) structs in
 # ascending period. A MAP(period -> part) read more tersely, but DuckDB checks the keys of
@@ -338,14 +340,21 @@ def _profile_handler(call: _Call) -> pa.Array:
 
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    method = call.extra["method"] or "iqr"
-    threshold = 3.0 if call.extra["threshold"] is None else float(call.extra["threshold"])
-    found = summaries.unusual_points(result, method, threshold)
+    method = call.extra["method"] or "stepwise"
+    threshold = call.extra["threshold"]
+    significance = call.extra["significance"]
+    found = summaries.unusual_points(
+        result,
+        method,
+        None if threshold is None else float(threshold),
+        None if significance is None else float(significance),
+        call.params,
+    )
     # back to the input rows (the grid's inserted times have no value to judge)
     offsets = call.offsets
     direction = np.array(found.direction, dtype=object)
     fields = {
-        "remainder": _lists(call.at_input_rows(result, result.remainder), offsets, pa.float64()),
+        "remainder": _lists(call.at_input_rows(result, found.remainder), offsets, pa.float64()),
         "expected": _lists(call.at_input_rows(result, found.expected), offsets, pa.float64()),
         "score": _lists(call.at_input_rows(result, found.score), offsets, pa.float64()),
         "is_outlier": _lists(call.at_input_rows(result, found.flagged), offsets, pa.bool_()),
@@ -393,7 +402,7 @@ UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
     ),
     "__tide_outlier_series": (
         _outlier_handler,
-        (("method", "VARCHAR"), ("threshold", "DOUBLE")),
+        (("method", "VARCHAR"), ("threshold", "DOUBLE"), ("significance", "DOUBLE")),
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
@@ -437,7 +446,7 @@ def _macro_sql() -> str:
         .replace(
             "{outlier_args}",
             ", ".join(
-                f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in SPLIT_ARGS
+                f"{name} := {OUTLIER_DEFAULTS.get(name, 'NULL')}" for name, _ in SPLIT_ARGS
             ),
         )
         .replace("{multi_args}", ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS))

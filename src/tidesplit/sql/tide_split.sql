@@ -101,7 +101,7 @@ CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value 
     (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}));
 
 -- Points whose remainder lies outside the fences (all rows with all_rows := true).
-CREATE OR REPLACE TEMP MACRO __tide_outlier_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_outlier_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}, method := NULL, threshold := NULL, significance := NULL, all_rows := false) AS TABLE
 SELECT * FROM (
     SELECT unnest(__key),
            unnest(__time_rows, recursive := true),
@@ -117,14 +117,14 @@ SELECT * FROM (
                  __tide_outlier_series(CAST(__key AS VARCHAR), __time_codes,
                                        typeof(struct_extract_at(__time_rows[1], 1)),
                                        current_setting('TimeZone'), __values, period,
-                                       {split_pass}, {multi_pass}, method, threshold) AS __o
+                                       {split_pass}, {multi_pass}, method, threshold, significance) AS __o
           FROM __tide_grouped(tbl, keys, time, value)))
 WHERE is_outlier OR coalesce(all_rows, false) OR NOT starts_with(status, 'ok');
 
-CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
-    (SELECT * FROM __tide_outlier_keys(tbl, [key], time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, all_rows := all_rows)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, all_rows := false) AS TABLE
-    (SELECT * FROM __tide_outlier_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, all_rows := all_rows));
+CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, significance := NULL, all_rows := false) AS TABLE
+    (SELECT * FROM __tide_outlier_keys(tbl, [key], time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, significance := significance, all_rows := all_rows)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, period := NULL, {outlier_args}, {multi_args}, method := NULL, threshold := NULL, significance := NULL, all_rows := false) AS TABLE
+    (SELECT * FROM __tide_outlier_keys(tbl, key, time, value, period := period, {split_named}, {multi_named}, method := method, threshold := threshold, significance := significance, all_rows := all_rows));
 
 -- Future rows per key up to a horizon, with prediction intervals.
 CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, {split_args}, {multi_args}, horizon := NULL, level := NULL, method := NULL) AS TABLE
