@@ -243,6 +243,7 @@ def split_batch(
     periods = np.zeros(count, dtype=np.int64)
     transformed = np.zeros(count, dtype=bool)
     auto_lambda = np.zeros(count, dtype=bool)
+    lambda_bounds = np.zeros((count, 2))
     transform_names: dict[int, str] = {}
     dropped: dict[int, tuple[int, ...]] = {}
     for g, resolved in resolved_groups.items():
@@ -265,6 +266,7 @@ def split_batch(
             transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
             if resolved.boxcox_lambda is None:
                 auto_lambda[members] = True
+                lambda_bounds[members] = resolved.boxcox_bounds
             else:
                 lambdas[members] = resolved.boxcox_lambda
     _check_series(
@@ -273,11 +275,16 @@ def split_batch(
 
     ok = np.array([s == OK for s in status], dtype=bool)
     if auto_lambda.any():
-        chosen = transform.guerrero_lambdas(values, offsets, periods, auto_lambda & ok)
+        chosen = transform.guerrero_lambdas(
+            values, offsets, periods, auto_lambda & ok, lambda_bounds
+        )
         lambdas[auto_lambda] = chosen[auto_lambda]
         for s in np.flatnonzero(auto_lambda & ok & np.isnan(lambdas)):
             status[s] = "Box-Cox lambda cannot be chosen: fewer than two cycles with spread"
             ok[s] = False
+        for s, note in enumerate(transform.bound_notes(chosen, lambda_bounds)):
+            if note and ok[s]:
+                status[s] = f"{OK}; {note}"
 
     bad = np.flatnonzero(~ok)
     if on_error == "raise" and bad.size:
@@ -308,7 +315,7 @@ def split_batch(
         for s, gone in dropped.items():
             if ok[s]:
                 shown = ", ".join(str(p) for p in gone)
-                status[s] = f"ok; dropped period {shown}: not shorter than half the series"
+                status[s] = f"{status[s]}; dropped period {shown}: not shorter than half the series"
     else:
         trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
     remainder = np.subtract(y, trend, out=memory.empty(y.size))

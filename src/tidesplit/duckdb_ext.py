@@ -45,6 +45,7 @@ SPLIT_ARGS: tuple[tuple[str, str], ...] = (
     ("boxcox_lambda", "DOUBLE"),
     ("fill_gaps", "BOOLEAN"),
     ("on_error", "VARCHAR"),
+    ("boxcox_bounds", "DOUBLE[]"),
 )
 # Arguments of several seasonal periods (tide_split_multi only).
 MULTI_ARGS: tuple[tuple[str, str], ...] = (
