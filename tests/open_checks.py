@@ -87,3 +87,84 @@ def spike_recall(series: Sequence[OpenSeries], seed: int = 5) -> tuple[int, int]
     found = flags(spiked)
     hits = sum(len(places[k] & set(np.flatnonzero(f).tolist())) for k, f in found.items())
     return hits, sum(len(p) for p in places.values())
+
+
+def holdout_forecasts(
+    series: Sequence[OpenSeries],
+    cycles: int = 2,
+    levels: Sequence[float] = (0.8, 0.95),
+    windows: int = 1,
+    **options: object,
+) -> pd.DataFrame:
+    """Hold out the last ``cycles`` cycles of every series long enough (at least twice as
+    many cycles left to fit on), forecast them, and score; with ``windows`` > 1, also the
+    ``cycles`` cycles before those (the series cut short there), and so on: one row per
+    series and window with the
+    MASE of the forecast and of the seasonal naive forecast (Hyndman & Koehler 2006: mean
+    absolute error over the in-sample mean absolute seasonal difference), and per level the
+    held-out points inside the interval and the points counted."""
+    rows = []
+    cut = [
+        OpenSeries(
+            s.collection, s.name, s.values[: s.values.size - w * cycles * s.period], s.period
+        )
+        for w in range(windows)
+        for s in series
+    ]
+    for w in range(windows):
+        rows += _holdout_rows(
+            cut[w * len(series) : (w + 1) * len(series)], cycles, levels, w, options
+        )
+    return pd.DataFrame(rows)
+
+
+def _holdout_rows(
+    series: Sequence[OpenSeries],
+    cycles: int,
+    levels: Sequence[float],
+    window: int,
+    options: dict[str, object],
+) -> list[dict[str, object]]:
+    rows = []
+    for period, group in by_period(series).items():
+        horizon = cycles * period
+        usable = [s for s in group if s.values.size >= 3 * horizon]
+        if not usable:
+            continue
+        train = [OpenSeries(s.collection, s.name, s.values[:-horizon], period) for s in usable]
+        outputs = {
+            level: tidesplit.forecast(
+                as_frame(train),
+                "k",
+                "t",
+                "v",
+                period=period,
+                horizon=horizon,
+                level=level,
+                **options,
+            )
+            for level in levels
+        }
+        for s, fit in zip(usable, train, strict=True):
+            actual = s.values[-horizon:]
+            y = fit.values
+            scale = np.nanmean(np.abs(y[period:] - y[:-period]))
+            naive = np.tile(y[-period:], cycles)
+            seen = ~np.isnan(actual)
+            row = {
+                "collection": s.collection,
+                "series": s.name,
+                "window": window,
+                "points": int(seen.sum()),
+            }
+            for level, out in outputs.items():
+                mine = out[out["k"] == s.name]
+                lower, upper = mine["lower"].to_numpy(), mine["upper"].to_numpy()
+                inside = (actual >= lower) & (actual <= upper)
+                row["inside_" + str(level).replace(".", "_")] = int(inside[seen].sum())
+                row["forecast_mase"] = float(
+                    np.mean(np.abs(actual - mine["forecast"].to_numpy())[seen]) / scale
+                )
+            row["naive_mase"] = float(np.mean(np.abs(actual - naive)[seen]) / scale)
+            rows.append(row)
+    return rows

@@ -399,7 +399,10 @@ def forecast(
     """
     table = _Table(data, key, time, value)
     result = table.split(period, params, on_error, fill_gaps=True)
-    ahead = summaries.forecast(result, table.kind, table.zone, horizon, level, method)
+    settings = SplitParams.from_kwargs(period=period, **params)
+    ahead = summaries.forecast(
+        result, table.kind, table.zone, horizon, level, method, params=settings
+    )
     ok = np.flatnonzero([s.startswith(OK) for s in result.status])
     out = table.key_frame(np.repeat(ok, horizon))
     out[table.time] = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()

@@ -370,8 +370,10 @@ def _forecast_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     horizon = 12 if call.extra["horizon"] is None else int(call.extra["horizon"])
     level = 0.95 if call.extra["level"] is None else float(call.extra["level"])
-    method = call.extra["method"] or "damped"
-    ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method, parallel=False)
+    method = call.extra["method"] or summaries.DEFAULT_FORECAST_METHOD
+    ahead = summaries.forecast(
+        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
+    )
     ok = np.array([s.startswith(OK) for s in result.status], dtype=bool)
     # one list per series: empty for a series that could not be split
     counts = np.where(ok, horizon, 0)

@@ -38,7 +38,12 @@ CANDIDATE_SHARE = 0.1
 SET_ASIDE_WEIGHT = 0.01
 NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
 DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score (Iglewicz & Hoaglin 1993 suggest 3.5)
-FORECAST_METHODS = ("damped", "drift")
+FORECAST_METHODS = ("damped", "drift", "level", "select")
+SELECTABLE = ("damped", "drift", "level")  # what 'select' chooses from, per series
+DEFAULT_FORECAST_METHOD = "damped"
+# Earlier ends each series is forecast from, half a cycle apart, to choose a method and
+# to check its intervals on the series' own past.
+ROLLING_ORIGINS = 24
 
 _MONTHS = (
     "January",
@@ -359,42 +364,47 @@ class Forecast:
     point: np.ndarray
     lower: np.ndarray
     upper: np.ndarray
+    method: list[str]  # per forecast series, the method used
 
 
-def _seasonal_ahead(part: np.ndarray, lo: int, hi: int, period: int, horizon: int) -> np.ndarray:
-    """The seasonal part carried forward from the last cycle."""
-    last = part[hi - period : hi]
-    return last[np.arange(horizon) % period]
-
-
-def forecast(
-    result: RowsResult,
-    kind: str,
-    time_zone: str | None,
-    horizon: int = 12,
-    level: float = 0.95,
-    method: str = "damped",
-    parallel: bool = True,
-) -> Forecast:
-    """Decomposition forecast: seasonal part carried forward from the last cycle, the
-    seasonally adjusted series (trend + remainder) forecast by a damped trend or drift, added
-    back and inverse-transformed; intervals from the adjusted series' forecast errors.
-    """
-    if method not in FORECAST_METHODS:
-        raise ValueError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
-    if horizon < 1:
-        raise ValueError(f"horizon must be at least 1, got {horizon}")
-    if not 0 < level < 1:
-        raise ValueError(f"level must be between 0 and 1, got {level}")
-    offsets = result.offsets
-    ok = _ok(result)
+def _seasonal_ahead(
+    seasonal: np.ndarray,
+    parts: np.ndarray | None,
+    offsets: np.ndarray,
+    ok: np.ndarray,
+    periods: np.ndarray,
+    series_periods: list[tuple[int, ...]] | None,
+    horizon: int,
+) -> np.ndarray:
+    """The seasonal part (each period's, with several) carried forward from its last cycle."""
     count = offsets.size - 1
-    y = result.trend + result.seasonal + result.remainder  # transformed observations
-    adjusted = y - result.seasonal
-    z = NormalDist().inv_cdf(0.5 + level / 2)
+    ahead = np.zeros((count, horizon))
+    steps = np.arange(horizon)
+    if parts is None:
+        chosen = np.flatnonzero(ok)
+        p = periods[chosen][:, None]
+        where = offsets[chosen + 1][:, None] - p + steps[None, :] % p
+        ahead[chosen] = seasonal[where]
+        return ahead
+    for s in np.flatnonzero(ok):
+        hi = int(offsets[s + 1])
+        for k, p in enumerate(series_periods[s]):
+            ahead[s] += parts[k, hi - p + steps % p]
+    return ahead
+
+
+def _adjusted_ahead(
+    adjusted: np.ndarray,
+    offsets: np.ndarray,
+    ok: np.ndarray,
+    horizon: int,
+    method: str,
+    parallel: bool,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Point forecasts and their standard deviations, series x horizon, of the seasonally
+    adjusted series (transformed scale) by one method; NaN where it cannot be fitted."""
+    count = offsets.size - 1
     h = np.arange(1, horizon + 1)
-    point = np.full((count, horizon), np.nan)
-    spread = np.full((count, horizon), np.nan)
     if method == "damped":
         fitted = np.empty((count, 6))
         launch = (
@@ -419,31 +429,211 @@ def forecast(
         spread = np.sqrt(
             var * (1 + np.concatenate((np.zeros((count, 1)), np.cumsum(c**2, axis=1)), axis=1))
         )
-    else:
-        for s in np.flatnonzero(ok):
-            a = adjusted[offsets[s] : offsets[s + 1]]
-            seen = np.flatnonzero(~np.isnan(a))
-            first, last = seen[0], seen[-1]
-            drift = (a[last] - a[first]) / (last - first)
-            steps = np.diff(a)
-            sigma = np.nanstd(steps - drift, ddof=1)
-            n = seen.size
-            point[s] = a[last] + (h + (a.size - 1 - last)) * drift
-            # random walk with drift: sigma_h = sigma sqrt(h (1 + h / T))
-            spread[s] = sigma * np.sqrt(h * (1 + h / n))
-    seasonal_future = np.zeros((count, horizon))
+        return point, spread
+    fitted = np.empty((count, 6))
+    summary.walk_fit(adjusted, offsets, ok, fitted)
+    last, behind, drift, sd_drift, sd_level, seen = (fitted[:, c : c + 1] for c in range(6))
+    if method == "drift":
+        point = last + (h[None, :] + behind) * drift
+        # random walk with drift: sigma_h = sigma sqrt(h (1 + h / T))
+        return point, sd_drift * np.sqrt(h[None, :] * (1 + h[None, :] / seen))
+    # level: a random walk without drift, sigma_h = sigma sqrt(h)
+    return np.repeat(last, horizon, axis=1), sd_level * np.sqrt(h[None, :] + behind)
+
+
+def _series_periods(result_batch: object, ok: np.ndarray) -> list[tuple[int, ...]]:
+    """Each series' periods (one, or several with MSTL); () for a series not split."""
+    series_periods = getattr(result_batch, "series_periods", None)
+    periods = result_batch.periods  # type: ignore[attr-defined]
+    return [
+        (tuple(series_periods[s]) if series_periods is not None else (int(periods[s]),))
+        if ok[s]
+        else ()
+        for s in range(ok.size)
+    ]
+
+
+@dataclass
+class _Past:
+    """Rolling-origin errors of one batch: per origin row its series, and per method the
+    errors (origin rows x horizon, NaN where no value was held out) and their
+    standardised versions (error / the method's own standard deviation)."""
+
+    series: np.ndarray
+    errors: dict[str, np.ndarray]
+    standardised: dict[str, np.ndarray]
+
+
+def _rolling_origins(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    ok: np.ndarray,
+    wanted: list[tuple[int, ...]],
+    params: SplitParams,
+    horizon: int,
+    methods: tuple[str, ...],
+    parallel: bool,
+) -> _Past:
+    """Forecast each series from ``ROLLING_ORIGINS`` earlier ends of its own past, half a
+    (shortest) cycle apart, with the same split and each method, and compare with what
+    followed. An origin needs at least three cycles before it."""
+    lengths = np.diff(offsets)
+    rows_series, rows_end = [], []
     for s in np.flatnonzero(ok):
-        lo, hi = int(offsets[s]), int(offsets[s + 1])
-        if result.seasonal_parts is not None:
-            for k, p in enumerate(result.batch.series_periods[s]):
-                seasonal_future[s] += _seasonal_ahead(result.seasonal_parts[k], lo, hi, p, horizon)
+        shortest, longest = min(wanted[s]), max(wanted[s])
+        gap = max(1, shortest // 2)
+        for j in range(ROLLING_ORIGINS):
+            end = int(lengths[s]) - horizon - j * gap
+            if end < 3 * longest:
+                break
+            rows_series.append(s)
+            rows_end.append(end)
+    series = np.array(rows_series, dtype=np.int64)
+    ends = np.array(rows_end, dtype=np.int64)
+    empty = np.empty((0, horizon))
+    if series.size == 0:
+        return _Past(series, dict.fromkeys(methods, empty), dict.fromkeys(methods, empty))
+    starts = offsets[series]
+    cut_offsets = np.concatenate(([0], np.cumsum(ends))).astype(np.int64)
+    take = np.repeat(starts - cut_offsets[:-1], ends) + np.arange(cut_offsets[-1])
+    values = y[take]
+    kinds = sorted({wanted[s] for s in series})
+    groups = np.array([kinds.index(wanted[s]) for s in series], dtype=np.int64)
+    plain = replace(params, transform="none", boxcox_lambda=None, boxcox_bounds=None)
+    group_params = [
+        replace(plain, period=None, periods=w) if params.multi else replace(plain, period=w[0])
+        for w in kinds
+    ]
+    cut = split_batch(
+        values,
+        cut_offsets,
+        group_params,
+        groups,
+        status=[OK] * series.size,
+        on_error="keep",
+        parallel=parallel,
+    )
+    cut_ok = np.array([st.startswith(OK) for st in cut.status], dtype=bool)
+    seasonal = _seasonal_ahead(
+        cut.seasonal,
+        cut.seasonal_parts,
+        cut_offsets,
+        cut_ok,
+        cut.periods,
+        cut.series_periods,
+        horizon,
+    )
+    adjusted = values - cut.seasonal
+    steps = np.arange(horizon)
+    place = ends[:, None] + steps[None, :]
+    inside = place < lengths[series][:, None]
+    actual = np.full((series.size, horizon), np.nan)
+    actual[inside] = y[(starts[:, None] + place)[inside]]
+    errors, standardised = {}, {}
+    for method in methods:
+        point, spread = _adjusted_ahead(adjusted, cut_offsets, cut_ok, horizon, method, parallel)
+        error = actual - (point + seasonal)
+        error[~cut_ok] = np.nan
+        errors[method] = error
+        with np.errstate(invalid="ignore", divide="ignore"):
+            standardised[method] = error / spread
+    return _Past(series, errors, standardised)
+
+
+def _per_series(values: np.ndarray, series: np.ndarray, count: int, reduce: str) -> np.ndarray:
+    """A reduction of each series' finite values over its origin rows (NaN for none): the
+    mean, or a level's quantile taken as split conformal prediction does (Vovk, Gammerman
+    & Shafer 2005; Lei et al. 2018): the ceil((m + 1) level)-th smallest of m values, so
+    that a new value exchangeable with them falls below it with at least that chance
+    (the largest when there are too few)."""
+    out = np.full(count, np.nan)
+    for s in np.unique(series):
+        chosen = values[series == s]
+        chosen = chosen[np.isfinite(chosen)]
+        if not chosen.size:
+            continue
+        if reduce == "mean":
+            out[s] = np.mean(chosen)
         else:
-            seasonal_future[s] = _seasonal_ahead(
-                result.seasonal, lo, hi, int(result.batch.periods[s]), horizon
-            )
+            rank = min(int(np.ceil((chosen.size + 1) * float(reduce))), chosen.size)
+            out[s] = np.partition(chosen, rank - 1)[rank - 1]
+    return out
+
+
+def forecast(
+    result: RowsResult,
+    kind: str,
+    time_zone: str | None,
+    horizon: int = 12,
+    level: float = 0.95,
+    method: str = DEFAULT_FORECAST_METHOD,
+    parallel: bool = True,
+    params: SplitParams | None = None,
+) -> Forecast:
+    """Decomposition forecast: seasonal part carried forward from the last cycle, the
+    seasonally adjusted series (trend + remainder) forecast by a damped trend, a random walk
+    with drift or one without (``'damped'``, ``'drift'``, ``'level'``), added back and
+    inverse-transformed. ``'select'`` (the default) takes, per series, the one of the three
+    with the smallest mean absolute error on its own past (rolling origins, see
+    ``_rolling_origins``).
+
+    Intervals: the method's own standard deviations, widened by the series' own past where
+    that shows them too narrow: the factor is the ``level`` quantile of the rolling-origin
+    errors in those standard deviations, over the normal quantile, never below 1. Where the
+    past is too short for rolling origins (fewer than three cycles before the end), the
+    method's own intervals stand.
+    """
+    if method not in FORECAST_METHODS:
+        raise ValueError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
+    if horizon < 1:
+        raise ValueError(f"horizon must be at least 1, got {horizon}")
+    if not 0 < level < 1:
+        raise ValueError(f"level must be between 0 and 1, got {level}")
+    offsets = result.offsets
+    ok = _ok(result)
+    count = offsets.size - 1
+    y = result.trend + result.seasonal + result.remainder  # transformed observations
+    adjusted = y - result.seasonal
+    z = NormalDist().inv_cdf(0.5 + level / 2)
+    methods = SELECTABLE if method == "select" else (method,)
+    wanted = _series_periods(result.batch, ok)
+    past = _rolling_origins(
+        y, offsets, ok, wanted, params or SplitParams(), horizon, methods, parallel
+    )
+    chosen_method = np.zeros(count, dtype=np.int64)
+    if len(methods) > 1:
+        scores = np.column_stack(
+            [_per_series(np.abs(past.errors[m]), past.series, count, "mean") for m in methods]
+        )
+        scored = ~np.isnan(scores).any(axis=1)
+        chosen_method[scored] = np.argmin(scores[scored], axis=1)
+    point = np.full((count, horizon), np.nan)
+    spread = np.full((count, horizon), np.nan)
+    widen = np.ones(count)
+    for k, m in enumerate(methods):
+        members = ok & (chosen_method == k)
+        if not members.any():
+            continue
+        p, sd = _adjusted_ahead(adjusted, offsets, members, horizon, m, parallel)
+        point[members], spread[members] = p[members], sd[members]
+        mine = members[past.series]
+        quantile = _per_series(
+            np.abs(past.standardised[m][mine]), past.series[mine], count, str(level)
+        )
+        found = members & ~np.isnan(quantile)
+        widen[found] = quantile[found] / z
+    seasonal_future = _seasonal_ahead(
+        result.seasonal,
+        result.seasonal_parts,
+        offsets,
+        ok,
+        result.batch.periods,
+        result.batch.series_periods,
+        horizon,
+    )
     centre = point + seasonal_future
-    lower = centre - z * spread
-    upper = centre + z * spread
+    lower = centre - widen[:, None] * z * spread
+    upper = centre + widen[:, None] * z * spread
     lambdas = result.batch.lambdas
     for s in np.flatnonzero(ok & ~np.isnan(lambdas)):
         lam = np.full(horizon, lambdas[s])
@@ -455,6 +645,7 @@ def forecast(
     if result.grid is not None:
         future_codes = calendar.future_codes(result.grid, chosen, horizon, kind, time_zone)
     out_offsets = np.arange(chosen.size + 1) * horizon
+    h = np.arange(1, horizon + 1)
     return Forecast(
         offsets=out_offsets,
         step=np.tile(h, chosen.size),
@@ -462,4 +653,5 @@ def forecast(
         point=centre[chosen].ravel(),
         lower=lower[chosen].ravel(),
         upper=upper[chosen].ravel(),
+        method=[methods[chosen_method[s]] for s in chosen],
     )

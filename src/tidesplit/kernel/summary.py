@@ -431,3 +431,49 @@ def departure_from_neighbours(
             ordered = np.sort(window[:k])
             middle = ordered[k // 2] if k % 2 else 0.5 * (ordered[k // 2 - 1] + ordered[k // 2])
             out[i] = remainder[i] - middle
+
+
+@njit(nogil=True, cache=True)
+def walk_fit(
+    adjusted: np.ndarray, offsets: np.ndarray, active: np.ndarray, out: np.ndarray
+) -> None:
+    """Random walks of the seasonally adjusted series, per active series, into ``out``
+    columns: last observed value, steps from it to the series' end, drift (mean step
+    between the first and last observed values), sd of the steps about the drift, sd of
+    the steps about zero, number of observed values. NaN with fewer than three observed.
+    """
+    for s in range(offsets.shape[0] - 1):
+        for c in range(out.shape[1]):
+            out[s, c] = math.nan
+        if not active[s]:
+            continue
+        a = adjusted[offsets[s] : offsets[s + 1]]
+        first = -1
+        last = -1
+        seen = 0
+        for i in range(a.shape[0]):
+            if not math.isnan(a[i]):
+                if first < 0:
+                    first = i
+                last = i
+                seen += 1
+        if seen < 3:
+            continue
+        drift = (a[last] - a[first]) / (last - first)
+        steps = 0
+        about_drift = 0.0
+        about_zero = 0.0
+        for i in range(1, a.shape[0]):
+            if not (math.isnan(a[i]) or math.isnan(a[i - 1])):
+                d = a[i] - a[i - 1]
+                about_drift += (d - drift) ** 2
+                about_zero += d * d
+                steps += 1
+        if steps < 2:
+            continue
+        out[s, 0] = a[last]
+        out[s, 1] = a.shape[0] - 1 - last
+        out[s, 2] = drift
+        out[s, 3] = math.sqrt(about_drift / (steps - 1))
+        out[s, 4] = math.sqrt(about_zero / steps)
+        out[s, 5] = seen
