@@ -94,7 +94,7 @@ def test_new_rule_flags_fewer_than_the_old_one_on_every_dataset(open_flags):
 
 def test_injected_spikes_are_found():
     # one spike of 5 remainder standard deviations per 50 points of every open series.
-    # Target 0.9 overall; measured 0.89 (long, unevenly noisy sunspot series miss most),
+    # Target 0.9 overall; measured 0.86 (long, unevenly noisy sunspot series miss most),
     # so the check holds 0.85 and benchmarks/accuracy.py prints the figure per dataset.
     hits = total = 0
     for series in open_collections().values():

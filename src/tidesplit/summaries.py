@@ -400,27 +400,40 @@ def _adjusted_ahead(
     horizon: int,
     method: str,
     parallel: bool,
-) -> tuple[np.ndarray, np.ndarray]:
+    given: np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
     """Point forecasts and their standard deviations, series x horizon, of the seasonally
-    adjusted series (transformed scale) by one method; NaN where it cannot be fitted."""
+    adjusted series (transformed scale) by one method, and the damped trend's parameters
+    (series x 3: alpha, beta, phi; None for the other methods); NaN where it cannot be
+    fitted. ``given``: the damped trend's parameters per series, run rather than
+    searched."""
     count = offsets.size - 1
     h = np.arange(1, horizon + 1)
     if method == "damped":
         fitted = np.empty((count, 6))
-        launch = (
-            (lambda *a: threads.launch(summary.damped_fit_batch, *a))
-            if parallel
-            else summary.damped_fit_serial
-        )
-        launch(
-            adjusted,
-            offsets,
-            ok,
-            np.linspace(0.05, 0.95, 19),
-            np.array([0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.5]),
-            np.array([0.8, 0.85, 0.9, 0.95, 0.98]),
-            fitted,
-        )
+        if given is not None:
+            summary.damped_run_serial(
+                adjusted,
+                offsets,
+                ok,
+                *(np.ascontiguousarray(given[:, c]) for c in range(3)),
+                fitted,
+            )
+        else:
+            launch = (
+                (lambda *a: threads.launch(summary.damped_fit_batch, *a))
+                if parallel
+                else summary.damped_fit_serial
+            )
+            launch(
+                adjusted,
+                offsets,
+                ok,
+                np.linspace(0.05, 0.95, 19),
+                np.array([0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.5]),
+                np.array([0.8, 0.85, 0.9, 0.95, 0.98]),
+                fitted,
+            )
         alpha, beta, phi, lvl, slope, var = (fitted[:, c : c + 1] for c in range(6))
         damp = np.cumsum(phi ** h[None, :], axis=1)  # phi + ... + phi^h
         point = lvl + damp * slope
@@ -429,16 +442,16 @@ def _adjusted_ahead(
         spread = np.sqrt(
             var * (1 + np.concatenate((np.zeros((count, 1)), np.cumsum(c**2, axis=1)), axis=1))
         )
-        return point, spread
+        return point, spread, fitted[:, :3]
     fitted = np.empty((count, 6))
     summary.walk_fit(adjusted, offsets, ok, fitted)
     last, behind, drift, sd_drift, sd_level, seen = (fitted[:, c : c + 1] for c in range(6))
     if method == "drift":
         point = last + (h[None, :] + behind) * drift
         # random walk with drift: sigma_h = sigma sqrt(h (1 + h / T))
-        return point, sd_drift * np.sqrt(h[None, :] * (1 + h[None, :] / seen))
+        return point, sd_drift * np.sqrt(h[None, :] * (1 + h[None, :] / seen)), None
     # level: a random walk without drift, sigma_h = sigma sqrt(h)
-    return np.repeat(last, horizon, axis=1), sd_level * np.sqrt(h[None, :] + behind)
+    return np.repeat(last, horizon, axis=1), sd_level * np.sqrt(h[None, :] + behind), None
 
 
 def _series_periods(result_batch: object, ok: np.ndarray) -> list[tuple[int, ...]]:
@@ -473,6 +486,7 @@ def _rolling_origins(
     horizon: int,
     methods: tuple[str, ...],
     parallel: bool,
+    fitted: dict[str, np.ndarray | None],
 ) -> _Past:
     """Forecast each series from ``ROLLING_ORIGINS`` earlier ends of its own past, half a
     (shortest) cycle apart, with the same split and each method, and compare with what
@@ -531,7 +545,16 @@ def _rolling_origins(
     actual[inside] = y[(starts[:, None] + place)[inside]]
     errors, standardised = {}, {}
     for method in methods:
-        point, spread = _adjusted_ahead(adjusted, cut_offsets, cut_ok, horizon, method, parallel)
+        given = fitted[method]
+        point, spread, _ = _adjusted_ahead(
+            adjusted,
+            cut_offsets,
+            cut_ok,
+            horizon,
+            method,
+            parallel,
+            None if given is None else given[series],
+        )
         error = actual - (point + seasonal)
         error[~cut_ok] = np.nan
         errors[method] = error
@@ -541,22 +564,16 @@ def _rolling_origins(
 
 
 def _per_series(values: np.ndarray, series: np.ndarray, count: int, reduce: str) -> np.ndarray:
-    """A reduction of each series' finite values over its origin rows (NaN for none): the
-    mean, or a level's quantile taken as split conformal prediction does (Vovk, Gammerman
-    & Shafer 2005; Lei et al. 2018): the ceil((m + 1) level)-th smallest of m values, so
-    that a new value exchangeable with them falls below it with at least that chance
-    (the largest when there are too few)."""
+    """A reduction of each series' finite values over its origin rows (``series``, sorted),
+    NaN for none: the mean, or a level's quantile taken as split conformal prediction does
+    (Vovk, Gammerman & Shafer 2005; Lei et al. 2018): the ceil((m + 1) level)-th smallest
+    of m values, so that a new value exchangeable with them falls below it with at least
+    that chance (the largest when there are too few)."""
     out = np.full(count, np.nan)
-    for s in np.unique(series):
-        chosen = values[series == s]
-        chosen = chosen[np.isfinite(chosen)]
-        if not chosen.size:
-            continue
-        if reduce == "mean":
-            out[s] = np.mean(chosen)
-        else:
-            rank = min(int(np.ceil((chosen.size + 1) * float(reduce))), chosen.size)
-            out[s] = np.partition(chosen, rank - 1)[rank - 1]
+    if series.size == 0:
+        return out
+    rows = np.ascontiguousarray(values, dtype=np.float64).reshape(series.size, -1)
+    summary.rows_by_series(rows, series, -1.0 if reduce == "mean" else float(reduce), out)
     return out
 
 
@@ -597,8 +614,17 @@ def forecast(
     z = NormalDist().inv_cdf(0.5 + level / 2)
     methods = SELECTABLE if method == "select" else (method,)
     wanted = _series_periods(result.batch, ok)
+    fits = {m: _adjusted_ahead(adjusted, offsets, ok, horizon, m, parallel) for m in methods}
     past = _rolling_origins(
-        y, offsets, ok, wanted, params or SplitParams(), horizon, methods, parallel
+        y,
+        offsets,
+        ok,
+        wanted,
+        params or SplitParams(),
+        horizon,
+        methods,
+        parallel,
+        {m: fit[2] for m, fit in fits.items()},
     )
     chosen_method = np.zeros(count, dtype=np.int64)
     if len(methods) > 1:
@@ -614,8 +640,7 @@ def forecast(
         members = ok & (chosen_method == k)
         if not members.any():
             continue
-        p, sd = _adjusted_ahead(adjusted, offsets, members, horizon, m, parallel)
-        point[members], spread[members] = p[members], sd[members]
+        point[members], spread[members] = fits[m][0][members], fits[m][1][members]
         mine = members[past.series]
         quantile = _per_series(
             np.abs(past.standardised[m][mine]), past.series[mine], count, str(level)

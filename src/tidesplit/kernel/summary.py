@@ -477,3 +477,47 @@ def walk_fit(
         out[s, 3] = math.sqrt(about_drift / (steps - 1))
         out[s, 4] = math.sqrt(about_zero / steps)
         out[s, 5] = seen
+
+
+@njit(nogil=True, cache=True)
+def rows_by_series(values: np.ndarray, series: np.ndarray, level: float, out: np.ndarray) -> None:
+    """Per series, over the finite entries of its rows of ``values`` (rows x columns; rows
+    sorted by ``series``): their mean when ``level`` is negative, else the
+    ceil((m + 1) level)-th smallest of the m entries (the largest when there are too few),
+    the quantile split conformal prediction takes. NaN for a series with no entry."""
+    for s in range(out.shape[0]):
+        out[s] = math.nan
+    start = 0
+    rows = series.shape[0]
+    while start < rows:
+        stop = start
+        while stop < rows and series[stop] == series[start]:
+            stop += 1
+        chosen = values[start:stop].ravel()
+        chosen = chosen[np.isfinite(chosen)]
+        m = chosen.shape[0]
+        if m > 0:
+            if level < 0:
+                out[series[start]] = chosen.mean()
+            else:
+                rank = min(math.ceil((m + 1) * level), m)
+                out[series[start]] = np.sort(chosen)[rank - 1]
+        start = stop
+
+
+@njit(nogil=True, cache=True)
+def damped_run_serial(
+    adjusted: np.ndarray,
+    offsets: np.ndarray,
+    active: np.ndarray,
+    alpha: np.ndarray,
+    beta: np.ndarray,
+    phi: np.ndarray,
+    out: np.ndarray,
+) -> None:
+    """``damped_fit_serial`` with the parameters given per series instead of searched:
+    the same start, recursion and ``out`` columns."""
+    for s in range(offsets.shape[0] - 1):
+        _damped_fit_one(
+            adjusted, offsets, active, alpha[s : s + 1], beta[s : s + 1], phi[s : s + 1], out, s
+        )
