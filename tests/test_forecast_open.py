@@ -83,3 +83,35 @@ def test_select_takes_each_series_its_best_method_on_the_past(rng):
     ahead = summaries.forecast(result, "integer", None, 12, 0.95, "select")
     assert ahead.method[0] in ("drift", "damped") and ahead.method[1] in ("level", "damped")
     assert ahead.method[0] != ahead.method[1]
+
+
+def test_sql_and_python_agree_over_many_keys(con, rng):
+    # more keys than one UDF call takes (2,048): the refit of tide_outliers and the
+    # rolling origins of tide_forecast run per call, and must not mix series across calls
+    keys = 2100
+    t = np.arange(60)
+    values = 20 + np.sin(2 * np.pi * t / 12)[None, :] * rng.uniform(1, 3, (keys, 1))
+    values = values + rng.normal(0, 0.3, (keys, 60)) + rng.uniform(0, 0.1, (keys, 1)) * t
+    values[::50, 30] += 6.0  # a spike in every fiftieth series
+    frame = pd.DataFrame(
+        {"k": np.repeat(np.arange(keys), 60), "t": np.tile(t, keys), "v": values.ravel()}
+    )
+    con.register("frame", frame)
+    sql = con.sql(
+        "SELECT k, t, score, is_outlier FROM tide_outliers(frame, 'k', 't', 'v', period := 12, "
+        "all_rows := true) ORDER BY k, t"
+    ).df()
+    python = tidesplit.outliers(frame, "k", "t", "v", period=12, all_rows=True)
+    python = python.sort_values(["k", "t"]).reset_index(drop=True)
+    np.testing.assert_allclose(sql["score"], python["score"], atol=1e-9)
+    assert (sql["is_outlier"].to_numpy() == python["is_outlier"].to_numpy()).all()
+    assert sql.loc[sql["t"] == 30, "is_outlier"].to_numpy()[::50].mean() > 0.9
+    ahead = con.sql(
+        "SELECT k, step, forecast, lower, upper FROM tide_forecast(frame, 'k', 't', 'v', "
+        "period := 12, horizon := 6) ORDER BY k, step"
+    ).df()
+    mine = tidesplit.forecast(frame, "k", "t", "v", period=12, horizon=6)
+    mine = mine.sort_values(["k", "step"]).reset_index(drop=True)
+    assert len(ahead) == keys * 6
+    for column in ("forecast", "lower", "upper"):
+        np.testing.assert_allclose(ahead[column], mine[column], rtol=1e-9)

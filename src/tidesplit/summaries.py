@@ -492,18 +492,14 @@ def _rolling_origins(
     (shortest) cycle apart, with the same split and each method, and compare with what
     followed. An origin needs at least three cycles before it."""
     lengths = np.diff(offsets)
-    rows_series, rows_end = [], []
-    for s in np.flatnonzero(ok):
-        shortest, longest = min(wanted[s]), max(wanted[s])
-        gap = max(1, shortest // 2)
-        for j in range(ROLLING_ORIGINS):
-            end = int(lengths[s]) - horizon - j * gap
-            if end < 3 * longest:
-                break
-            rows_series.append(s)
-            rows_end.append(end)
-    series = np.array(rows_series, dtype=np.int64)
-    ends = np.array(rows_end, dtype=np.int64)
+    shortest = np.array([min(w) if w else 1 for w in wanted], dtype=np.int64)
+    longest = np.array([max(w) if w else 1 for w in wanted], dtype=np.int64)
+    gap = np.maximum(1, shortest // 2)
+    room = lengths - horizon - 3 * longest  # how far back the earliest end may go
+    origins = np.where(ok & (room >= 0), np.minimum(ROLLING_ORIGINS, room // gap + 1), 0)
+    series = np.repeat(np.arange(lengths.size), origins)
+    back = np.arange(series.size) - np.repeat(np.cumsum(origins) - origins, origins)
+    ends = lengths[series] - horizon - back * gap[series]
     empty = np.empty((0, horizon))
     if series.size == 0:
         return _Past(series, dict.fromkeys(methods, empty), dict.fromkeys(methods, empty))
@@ -511,8 +507,9 @@ def _rolling_origins(
     cut_offsets = np.concatenate(([0], np.cumsum(ends))).astype(np.int64)
     take = np.repeat(starts - cut_offsets[:-1], ends) + np.arange(cut_offsets[-1])
     values = y[take]
-    kinds = sorted({wanted[s] for s in series})
-    groups = np.array([kinds.index(wanted[s]) for s in series], dtype=np.int64)
+    kinds = sorted({wanted[s] for s in np.unique(series)})
+    group_of = np.array([kinds.index(w) if w in kinds else 0 for w in wanted], dtype=np.int64)
+    groups = group_of[series]
     plain = replace(params, transform="none", boxcox_lambda=None, boxcox_bounds=None)
     group_params = [
         replace(plain, period=None, periods=w) if params.multi else replace(plain, period=w[0])
@@ -523,7 +520,6 @@ def _rolling_origins(
         cut_offsets,
         group_params,
         groups,
-        status=[OK] * series.size,
         on_error="keep",
         parallel=parallel,
     )
