@@ -350,6 +350,7 @@ def _outlier_handler(call: _Call) -> pa.Array:
         None if threshold is None else float(threshold),
         None if significance is None else float(significance),
         call.params,
+        parallel=False,
     )
     # back to the input rows (the grid's inserted times have no value to judge)
     offsets = call.offsets

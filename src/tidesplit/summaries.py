@@ -36,6 +36,9 @@ CANDIDATE_SHARE = 0.1
 # beyond about 0.95 of the bisquare's cut-off of 6 MAD (near 3.8 standard deviations
 # under Gaussian noise, so about one point in 7,000 of pure noise).
 SET_ASIDE_WEIGHT = 0.01
+# Refits at most: points are set aside again by the weights of each refit's remainder
+# until the set stops changing.
+SET_ASIDE_ROUNDS = 4
 NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
 DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score (Iglewicz & Hoaglin 1993 suggest 3.5)
 FORECAST_METHODS = ("damped", "drift", "level", "select")
@@ -191,7 +194,7 @@ class Unusual:
     flagged: np.ndarray
     direction: list[str | None]
     expected: np.ndarray  # trend + seasonal, original scale
-    remainder: np.ndarray  # transformed value - (trend + seasonal) of the fit judged by
+    remainder: np.ndarray  # transformed value - (trend + seasonal) of the fit the rule reads
 
 
 def stepwise_critical_values(
@@ -222,7 +225,9 @@ def stepwise_critical_values(
     return out
 
 
-def _refit_without(result: RowsResult, params: SplitParams, set_aside: np.ndarray) -> np.ndarray:
+def _refit_without(
+    result: RowsResult, params: SplitParams, set_aside: np.ndarray, parallel: bool
+) -> np.ndarray:
     """trend + seasonal of a plain (non-robust) fit of the transformed series with the
     ``set_aside`` points left out (as missing), same spans and periods; where a series
     cannot be fitted so (a cycle position left empty), its own fit."""
@@ -232,20 +237,11 @@ def _refit_without(result: RowsResult, params: SplitParams, set_aside: np.ndarra
         return fit
     values[set_aside] = np.nan
     ok = _ok(result)
-    batch = result.batch
-    wanted = [
-        (
-            tuple(batch.series_periods[s])
-            if batch.series_periods is not None
-            else (int(batch.periods[s]),)
-        )
-        if ok[s]
-        else ()
-        for s in range(ok.size)
-    ]
+    wanted = _series_periods(result.batch, ok)
     kinds = sorted({w for w in wanted if w})
     if not kinds:
         return fit
+    # the values are already transformed: the refit takes them as they are
     plain = replace(
         params,
         robust=False,
@@ -253,6 +249,7 @@ def _refit_without(result: RowsResult, params: SplitParams, set_aside: np.ndarra
         outer_loops=None,
         transform="none",
         boxcox_lambda=None,
+        boxcox_bounds=None,
     )
     groups = np.array([kinds.index(w) if w else 0 for w in wanted], dtype=np.int64)
     group_params = [
@@ -264,11 +261,12 @@ def _refit_without(result: RowsResult, params: SplitParams, set_aside: np.ndarra
         result.offsets,
         group_params,
         groups,
-        status=[OK if k else "inactive" for k in ok],
+        status=[OK if k else "not split" for k in ok],
         on_error="keep",
+        parallel=parallel,
     )
     lengths = np.diff(result.offsets)
-    fitted = np.repeat([st == OK or st.startswith(OK + ";") for st in refit.status], lengths)
+    fitted = np.repeat([st.startswith(OK) for st in refit.status], lengths)
     fit[fitted] = (refit.trend + refit.seasonal)[fitted]
     return fit
 
@@ -279,6 +277,7 @@ def unusual_points(
     threshold: float | None = None,
     significance: float | None = None,
     params: SplitParams | None = None,
+    parallel: bool = True,
 ) -> Unusual:
     """Points too far out to be ordinary noise.
 
@@ -312,9 +311,18 @@ def unusual_points(
         alpha = DEFAULT_SIGNIFICANCE if significance is None else float(significance)
         if not 0 < alpha < 1:
             raise ValueError(f"significance must be between 0 and 1, got {alpha}")
+        values = result.trend + result.seasonal + result.remainder
         set_aside = result.weight < SET_ASIDE_WEIGHT  # NaN weights (missing) compare False
-        fit = _refit_without(result, params or SplitParams(), set_aside)
-        r = result.trend + result.seasonal + result.remainder - fit
+        for _ in range(SET_ASIDE_ROUNDS):
+            fit = _refit_without(result, params or SplitParams(), set_aside, parallel)
+            r = values - fit
+            # judged again against the refit: a big outlier bends the first fit, and the
+            # points it bent away are set aside with it until a refit without it
+            again = np.empty(r.size, dtype=bool)
+            summary.set_aside_points(r, offsets, SET_ASIDE_WEIGHT, again)
+            if np.array_equal(again, set_aside):
+                break
+            set_aside = again
         departure = np.empty(r.size)
         summary.departure_from_neighbours(r, offsets, NEIGHBOUR_REACH, departure)
         observed = (

@@ -521,3 +521,27 @@ def damped_run_serial(
         _damped_fit_one(
             adjusted, offsets, active, alpha[s : s + 1], beta[s : s + 1], phi[s : s + 1], out, s
         )
+
+
+@njit(nogil=True, cache=True)
+def set_aside_points(
+    remainder: np.ndarray, offsets: np.ndarray, below: float, out: np.ndarray
+) -> None:
+    """Per series, mark the points whose bisquare robustness weight, (1 - u^2)^2 with
+    u = |remainder| / (6 median |remainder|) as in STL's robustness passes (Cleveland et
+    al. 1990), is below ``below`` (missing remainders are not marked)."""
+    for s in range(offsets.shape[0] - 1):
+        lo = offsets[s]
+        hi = offsets[s + 1]
+        r = remainder[lo:hi]
+        seen = np.abs(r[~np.isnan(r)])
+        for i in range(lo, hi):
+            out[i] = False
+        if seen.shape[0] == 0:
+            continue
+        cut = 6.0 * np.median(seen)
+        # weight < below  <=>  u^2 > 1 - sqrt(below)
+        limit = cut * math.sqrt(1.0 - math.sqrt(below))
+        for i in range(lo, hi):
+            if not math.isnan(remainder[i]) and abs(remainder[i]) > limit:
+                out[i] = True
