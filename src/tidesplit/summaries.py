@@ -44,7 +44,7 @@ DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score (Iglewicz & Hoaglin 1993 suggest 3
 FORECAST_METHODS = ("damped", "drift", "level", "select")
 SELECTABLE = ("damped", "drift", "level")  # what 'select' chooses from, per series
 DEFAULT_FORECAST_METHOD = "damped"
-# Earlier ends each series is forecast from, half a cycle apart, to choose a method and
+# Earlier ends each series is forecast from, a cycle apart, to choose a method and
 # to check its intervals on the series' own past.
 ROLLING_ORIGINS = 24
 
@@ -496,13 +496,13 @@ def _rolling_origins(
     parallel: bool,
     fitted: dict[str, np.ndarray | None],
 ) -> _Past:
-    """Forecast each series from ``ROLLING_ORIGINS`` earlier ends of its own past, half a
+    """Forecast each series from ``ROLLING_ORIGINS`` earlier ends of its own past, a
     (shortest) cycle apart, with the same split and each method, and compare with what
     followed. An origin needs at least three cycles before it."""
     lengths = np.diff(offsets)
     shortest = np.array([min(w) if w else 1 for w in wanted], dtype=np.int64)
     longest = np.array([max(w) if w else 1 for w in wanted], dtype=np.int64)
-    gap = np.maximum(1, shortest // 2)
+    gap = np.maximum(1, shortest)
     room = lengths - horizon - 3 * longest  # how far back the earliest end may go
     origins = np.where(ok & (room >= 0), np.minimum(ROLLING_ORIGINS, room // gap + 1), 0)
     series = np.repeat(np.arange(lengths.size), origins)
