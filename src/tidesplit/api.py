@@ -9,9 +9,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from . import summaries
+from . import answers, summaries
 from .decompose import OK, segment_counts
-from .params import SplitParams
+from .params import ParamError, SplitParams
 from .rows import RowsResult, split_rows
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
@@ -127,15 +127,35 @@ def _codes_to_times(codes: np.ndarray, kind: str, zone: str | None) -> pd.Series
     return stamps
 
 
+def _with_gaps(times: pd.Series, size: int) -> pd.Series:
+    """Times placed at their rows of ``size`` rows (index), missing elsewhere; integer times
+    stay integers (nullable)."""
+    placed = times.reindex(np.arange(size))
+    return placed.astype("Int64") if pd.api.types.is_integer_dtype(times) else placed
+
+
 class _Table:
     """A keyed table sorted into series: the common first step of the table functions."""
 
-    def __init__(self, data: Any, key: str | Sequence[str], time: str, value: str) -> None:
+    def __init__(
+        self,
+        data: Any,
+        key: str | Sequence[str],
+        time: str,
+        value: str,
+        answer: tuple[str, ...],
+    ) -> None:
         keys = [key] if isinstance(key, str) else list(key)
         frame = data if isinstance(data, pd.DataFrame) else data.to_pandas()
         missing = [c for c in [*keys, time, value] if c not in frame.columns]
         if missing:
-            raise KeyError(f"no column(s) named {', '.join(missing)}")
+            raise KeyError(
+                f"no column(s) named {', '.join(missing)}; the table has "
+                f"{', '.join(map(str, frame.columns))}"
+            )
+        clashes = answers.name_clashes(keys, time, value, answer)
+        if clashes:
+            raise ParamError("; ".join(clashes))
         frame = frame[[*keys, time, value]].copy()
         codes, time_nulls, self.kind, self.zone = _time_codes(frame[time])
         frame["__code"] = codes
@@ -229,7 +249,8 @@ def split_table(
     >>> split_table(frame, "shop", "t", "units", period=2).shape
     (16, 11)
     """
-    table = _Table(data, key, time, value)
+    multi = params.get("periods") is not None
+    table = _Table(data, key, time, value, answers.SPLIT_MULTI if multi else answers.SPLIT)
     frame, keys, starts, first_rows, kind, zone = (
         table.frame,
         table.keys,
@@ -246,7 +267,12 @@ def split_table(
         out = taken[keys].copy()
         series_of = np.repeat(np.arange(starts.size), lengths)
         out[keys] = first_rows.iloc[series_of].to_numpy()
-        out[time] = _codes_to_times(result.codes, kind, zone).to_numpy()
+        # input rows keep their own time (a series left unsplit keeps even a NULL or a
+        # repeated one); inserted rows take the grid's
+        grid_times = _codes_to_times(result.codes, kind, zone)
+        out[time] = grid_times.where(source < 0, taken[time])
+        if kind == "integer":
+            out[time] = out[time].astype("Int64")
         out[value] = np.where(
             source >= 0, taken[value].to_numpy(dtype=float, na_value=np.nan), np.nan
         )
@@ -290,7 +316,7 @@ def profile(
     >>> float(profile(frame, "k", "t", "v", period=12)["strength_of_season"].iloc[0].round(2))
     1.0
     """
-    table = _Table(data, key, time, value)
+    table = _Table(data, key, time, value, answers.PROFILE)
     result = table.split(period, params, on_error, fill_gaps=True)
     found = summaries.profile(result, table.kind)
     out = table.key_frame(np.arange(table.starts.size))
@@ -342,7 +368,7 @@ def outliers(
     >>> row["direction"], float(row["expected"].round(1))
     ('high', 10.0)
     """
-    table = _Table(data, key, time, value)
+    table = _Table(data, key, time, value, answers.OUTLIERS)
     params = {"robust": robust, **params}
     result = table.split(period, params, on_error, fill_gaps=True)
     found = summaries.unusual_points(result, method, threshold)
@@ -387,14 +413,26 @@ def forecast(
     >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
     [48, 49, 50]
     """
-    table = _Table(data, key, time, value)
+    summaries.check_forecast_arguments(horizon, level, method)
+    table = _Table(data, key, time, value, answers.FORECAST)
     result = table.split(period, params, on_error, fill_gaps=True)
     ahead = summaries.forecast(result, table.kind, table.zone, horizon, level, method)
-    ok = np.flatnonzero([s.startswith(OK) for s in result.status])
-    out = table.key_frame(np.repeat(ok, horizon))
-    out[table.time] = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
-    out["step"] = ahead.step
-    out["forecast"] = ahead.point
-    out["lower"] = ahead.lower
-    out["upper"] = ahead.upper
+    ok = summaries.settle_forecast(result, ahead, on_error, table.label)
+    # horizon rows per series; one row beside the status of a series left unsplit
+    counts = np.where(ok, horizon, 1)
+    present = np.repeat(ok, counts)
+    out = table.key_frame(np.repeat(np.arange(ok.size), counts))
+    times = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
+    out[table.time] = _with_gaps(pd.Series(times, index=np.flatnonzero(present)), present.size)
+    for name, values in (
+        ("step", ahead.step),
+        ("forecast", ahead.point),
+        ("lower", ahead.lower),
+        ("upper", ahead.upper),
+    ):
+        column = np.full(present.size, np.nan)
+        column[present] = values
+        out[name] = column
+    out["step"] = out["step"].astype("Int64")
+    out["status"] = np.repeat(np.array(result.status, dtype=object), counts)
     return out

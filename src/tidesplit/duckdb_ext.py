@@ -18,10 +18,10 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import batch, calendar, summaries
+from . import answers, batch, calendar, summaries
 from .decompose import OK, segment_counts
 from .kernel import grid
-from .params import ParamError, SplitParams
+from .params import ParamError, SplitParams, as_int
 from .rows import COMPONENTS, RowsResult, split_rows
 
 UDF_NAME = "__tide_split_series"
@@ -285,7 +285,9 @@ def _split_handler(call: _Call) -> pa.Array:
         fields["inserted"] = pa.nulls(count, pa.list_(pa.bool_()))
     if call.fill_gaps and result.codes is not None:
         fields["time_codes"] = _lists(result.codes, out_offsets, pa.int64())
-        fields["source"] = _lists(result.source, out_offsets, pa.int64())
+        # the macro picks each grid row's input row from its series' own list
+        own = result.source - np.repeat(call.offsets[:-1], np.diff(out_offsets))
+        fields["source"] = _lists(np.where(result.source >= 0, own, -1), out_offsets, pa.int64())
     else:
         fields["time_codes"] = pa.nulls(count, pa.list_(pa.int64()))
         fields["source"] = pa.nulls(count, pa.list_(pa.int64()))
@@ -357,23 +359,33 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
-    result = call.split(fill_gaps=True)
-    horizon = 12 if call.extra["horizon"] is None else int(call.extra["horizon"])
+    horizon = 12 if call.extra["horizon"] is None else as_int("horizon", call.extra["horizon"])
     level = 0.95 if call.extra["level"] is None else float(call.extra["level"])
     method = call.extra["method"] or "damped"
+    summaries.check_forecast_arguments(horizon, level, method)
+    result = call.split(fill_gaps=True)
     ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method, parallel=False)
-    ok = np.array([s.startswith(OK) for s in result.status], dtype=bool)
-    # one list per series: empty for a series that could not be split
-    counts = np.where(ok, horizon, 0)
+    ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
+    # horizon rows per series; one row of NULLs beside the status of a series left unsplit
+    counts = np.where(ok, horizon, 1)
     offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
+    present = np.repeat(ok, counts)
+
+    def rows(values: np.ndarray | None, arrow_type: pa.DataType) -> pa.Array:
+        if values is None:
+            return pa.nulls(len(ok), pa.list_(arrow_type))
+        out = np.zeros(present.size, dtype=values.dtype)
+        out[present] = values
+        missing = ~present | np.isnan(out) if out.dtype.kind == "f" else ~present
+        child = pa.array(out, arrow_type, mask=missing)
+        return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
+
     fields = {
-        "step": _lists(ahead.step, offsets, pa.int64()),
-        "time_codes": _lists(ahead.codes, offsets, pa.int64())
-        if ahead.codes is not None
-        else pa.nulls(len(ok), pa.list_(pa.int64())),
-        "forecast": _lists(ahead.point, offsets, pa.float64()),
-        "lower": _lists(ahead.lower, offsets, pa.float64()),
-        "upper": _lists(ahead.upper, offsets, pa.float64()),
+        "step": rows(ahead.step, pa.int64()),
+        "time_codes": rows(ahead.codes, pa.int64()),
+        "forecast": rows(ahead.point, pa.float64()),
+        "lower": rows(ahead.lower, pa.float64()),
+        "upper": rows(ahead.upper, pa.float64()),
     }
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
@@ -428,22 +440,67 @@ def udf_signature(names: list[str]) -> inspect.Signature:
     )
 
 
-def _macro_sql() -> str:
-    text = resources.files("tidesplit").joinpath("sql/tide_split.sql").read_text()
-    return (
-        text.replace("{split_args}", ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS))
-        .replace("{split_pass}", ", ".join(name for name, _ in SPLIT_ARGS))
-        .replace("{split_named}", ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS))
-        .replace(
-            "{outlier_args}",
-            ", ".join(
-                f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in SPLIT_ARGS
-            ),
+# What an argument of each SQL type may be given as (DuckDB's typeof); the UDF's declared
+# types would cast 'yes' to true or '12' to 12 without a word.
+_NUMBER = r"U?(TINYINT|SMALLINT|INTEGER|BIGINT|HUGEINT)|FLOAT|DOUBLE|DECIMAL\(\d+,\d+\)"
+_ACCEPTED_TYPES = {
+    "DOUBLE": (f'^({_NUMBER}|"NULL")$', "a number"),
+    "BOOLEAN": ('^(BOOLEAN|"NULL")$', "true or false"),
+    "VARCHAR": ('^(VARCHAR|"NULL")$', "a string"),
+    "DOUBLE[]": (f'^((({_NUMBER})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
+}
+
+
+def _type_checks(args: tuple[tuple[str, str], ...]) -> str:
+    """One SQL expression per argument: NULL, or why its type is refused."""
+    checks = []
+    for name, sql_type in args:
+        pattern, wanted = _ACCEPTED_TYPES[sql_type]
+        checks.append(
+            f"CASE WHEN NOT regexp_full_match(typeof({name}), '{pattern}') "
+            f"THEN '{name} must be {wanted}, got ' || typeof({name}) || ' ' "
+            f"|| CAST({name} AS VARCHAR) END"
         )
-        .replace("{multi_args}", ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS))
-        .replace("{multi_pass}", ", ".join(name for name, _ in MULTI_ARGS))
-        .replace("{multi_named}", ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS))
-    )
+    return ", ".join(checks)
+
+
+def _sql_list(names: tuple[str, ...]) -> str:
+    return "[" + ", ".join(f"'{n}'" for n in names) + "]"
+
+
+def _macro_sql() -> str:
+    """The macros with the argument and column lists written in (see the SQL file's head)."""
+    answer_args = tuple(a for a in SPLIT_ARGS if a[0] != "fill_gaps")
+    extra = {name: args for name, (_, args, _) in UDFS.items()}
+    lists = {
+        "split_args": ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS),
+        "split_pass": ", ".join(name for name, _ in SPLIT_ARGS),
+        "split_named": ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS),
+        "answer_args": ", ".join(f"{name} := NULL" for name, _ in answer_args),
+        # the answers always work on the grid; the UDF's fill_gaps stays NULL
+        "answer_pass": ", ".join("NULL" if name == "fill_gaps" else name for name, _ in SPLIT_ARGS),
+        "answer_named": ", ".join(f"{name} := {name}" for name, _ in answer_args),
+        "outlier_args": ", ".join(
+            f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in answer_args
+        ),
+        "multi_args": ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS),
+        "multi_pass": ", ".join(name for name, _ in MULTI_ARGS),
+        "multi_named": ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS),
+        "split_checks": _type_checks((("period", "DOUBLE"), *SPLIT_ARGS)),
+        "answer_checks": _type_checks((("period", "DOUBLE"), *answer_args)),
+        "multi_checks": _type_checks(MULTI_ARGS),
+        "outlier_checks": _type_checks((*extra["__tide_outlier_series"], ("all_rows", "BOOLEAN"))),
+        "forecast_checks": _type_checks(extra["__tide_forecast_series"]),
+        "split_columns": _sql_list(answers.SPLIT),
+        "multi_columns": _sql_list(answers.SPLIT_MULTI),
+        "profile_columns": _sql_list(answers.PROFILE),
+        "outlier_columns": _sql_list(answers.OUTLIERS),
+        "forecast_columns": _sql_list(answers.FORECAST),
+    }
+    text = resources.files("tidesplit").joinpath("sql/tide_split.sql").read_text()
+    for name, written in lists.items():
+        text = text.replace("{" + name + "}", written)
+    return text
 
 
 def _registered(con: duckdb.DuckDBPyConnection) -> set[str]:

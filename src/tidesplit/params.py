@@ -72,7 +72,12 @@ def default_loops(robust: bool) -> tuple[int, int]:
     return (1, 10) if robust else (2, 0)
 
 
-def _as_int(name: str, value: Any) -> int | None:
+def as_int(name: str, value: Any) -> int | None:
+    """A whole number given as any numeric type (None stays None); ``ParamError`` otherwise.
+
+    >>> as_int("horizon", 12.0), as_int("horizon", None)
+    (12, None)
+    """
     if value is None:
         return None
     if isinstance(value, bool):
@@ -144,16 +149,35 @@ class SplitParams:
         """Whether several seasonal periods were asked for (MSTL)."""
         return self.periods is not None
 
+    def check(self) -> None:
+        """Refuse any setting that no series could be split with, before any series runs.
+
+        Periods left to each series (implied by its step, or estimated) are stood in for by
+        the smallest ones, so that every other setting is checked now; raises ``ParamError``.
+
+        >>> SplitParams(trend_span=4).check()
+        Traceback (most recent call last):
+        ...
+        tidesplit.params.ParamError: trend_span must be an odd integer of at least 3, got 4
+        """
+        probe = self
+        if self.multi and not self.periods:
+            count = len(self.season_spans) if self.season_spans is not None else 1
+            probe = replace(self, periods=tuple(range(2, 2 + count)))
+        elif not self.multi and self.period is None:
+            probe = replace(self, period=2)
+        probe.resolve()
+
     def resolve(self) -> ResolvedParams:
         """Check every setting and fill in the defaults; raises ``ParamError``."""
         if self.periods is not None and self.period is not None:
             raise ParamError("give period or periods, not both")
         if self.periods is not None:
-            periods = [_as_int("periods", p) for p in self.periods]
+            periods = [as_int("periods", p) for p in self.periods]
             if not periods:
                 raise ParamError("periods is empty")
         else:
-            periods = [_as_int("period", self.period)]
+            periods = [as_int("period", self.period)]
         if periods[0] is None:
             raise ParamError("period is required")
         for period in periods:
@@ -162,11 +186,11 @@ class SplitParams:
         if len(set(periods)) < len(periods):
             raise ParamError(f"periods must differ, got {list(periods)}")
         if self.season_spans is not None:
-            spans = [_as_int("season_spans", v) for v in self.season_spans]
+            spans = [as_int("season_spans", v) for v in self.season_spans]
             if len(spans) != len(periods):
                 raise ParamError(f"season_spans has {len(spans)} values for {len(periods)} periods")
         elif self.season_span is not None:
-            spans = [_as_int("season_span", self.season_span)] * len(periods)
+            spans = [as_int("season_span", self.season_span)] * len(periods)
         elif self.periods is not None:
             # MSTL's published default: 7 + 4 i for the i-th period (Bandara et al. 2021)
             spans = [7 + 4 * (i + 1) for i in range(len(periods))]
@@ -178,23 +202,23 @@ class SplitParams:
         for span in spans:
             if span != 0:
                 _check_span("season_span", span)
-        iterations = _as_int("iterations", self.iterations)
+        iterations = as_int("iterations", self.iterations)
         iterations = 2 if iterations is None else iterations  # Bandara et al. (2021)
         if iterations < 1:
             raise ParamError(f"iterations must be at least 1, got {iterations}")
         period, season_span = periods[0], spans[0]
-        trend_span = _as_int("trend_span", self.trend_span)
+        trend_span = as_int("trend_span", self.trend_span)
         given_trend = trend_span
         trend_span = default_trend_span(period, season_span) if trend_span is None else trend_span
         _check_span("trend_span", trend_span)
-        lowpass_span = _as_int("lowpass_span", self.lowpass_span)
+        lowpass_span = as_int("lowpass_span", self.lowpass_span)
         given_lowpass = lowpass_span
         lowpass_span = default_lowpass_span(period) if lowpass_span is None else lowpass_span
         _check_span("lowpass_span", lowpass_span)
 
         degrees = []
         for name in ("season_degree", "trend_degree", "lowpass_degree"):
-            degree = _as_int(name, getattr(self, name))
+            degree = as_int(name, getattr(self, name))
             degree = 1 if degree is None else degree
             if degree not in (0, 1):
                 raise ParamError(f"{name} must be 0 or 1, got {degree}")
@@ -206,7 +230,7 @@ class SplitParams:
             ("trend_jump", trend_span),
             ("lowpass_jump", lowpass_span),
         ):
-            jump = _as_int(name, getattr(self, name))
+            jump = as_int(name, getattr(self, name))
             jump = default_jump(span) if jump is None else jump
             if jump < 1:
                 raise ParamError(f"{name} must be at least 1, got {jump}")
@@ -216,11 +240,11 @@ class SplitParams:
             raise ParamError(f"robust must be true or false, got {self.robust!r}")
         robust = bool(self.robust)
         inner_default, outer_default = default_loops(robust)
-        inner = _as_int("inner_loops", self.inner_loops)
+        inner = as_int("inner_loops", self.inner_loops)
         inner = inner_default if inner is None else inner
         if inner < 1:
             raise ParamError(f"inner_loops must be at least 1, got {inner}")
-        outer = _as_int("outer_loops", self.outer_loops)
+        outer = as_int("outer_loops", self.outer_loops)
         outer = outer_default if outer is None else outer
         if outer < 0:
             raise ParamError(f"outer_loops must be at least 0, got {outer}")
@@ -242,7 +266,7 @@ class SplitParams:
         elif transform == "none":
             lam = None
         given_jumps = [
-            _as_int(name, getattr(self, name))
+            as_int(name, getattr(self, name))
             for name in ("season_jump", "trend_jump", "lowpass_jump")
         ]
         cycles = []

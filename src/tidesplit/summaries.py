@@ -6,14 +6,17 @@ returns plain numpy arrays; the fronts turn them into SQL rows or DataFrames.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from statistics import NormalDist
 
 import numpy as np
 
 from . import calendar, transform
-from .decompose import OK
+from .calendar import cycle_label
+from .decompose import OK, SplitError
 from .kernel import summary, threads
+from .params import ParamError
 from .rows import RowsResult
 
 PROFILE_COLUMNS = (
@@ -27,52 +30,9 @@ PROFILE_COLUMNS = (
 OUTLIER_METHODS = ("iqr", "mad")
 FORECAST_METHODS = ("damped", "drift")
 
-_MONTHS = (
-    "January",
-    "February",
-    "March",
-    "April",
-    "May",
-    "June",
-    "July",
-    "August",
-    "September",
-    "October",
-    "November",
-    "December",
-)
-_WEEKDAYS = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
-
 
 def _ok(result: RowsResult) -> np.ndarray:
     return np.array([s.startswith(OK) for s in result.status], dtype=bool)
-
-
-def cycle_label(code: int, unit: int, step: int, period: int, kind: str) -> str | None:
-    """A readable name for the cycle position of a time: month, weekday, hour or quarter.
-
-    >>> cycle_label(0, calendar.UNIT_MONTH, 1, 12, "date")
-    'January'
-    >>> day = calendar.US_PER_DAY
-    >>> cycle_label(4 * day, calendar.UNIT_MICROSECOND, day, 7, "date")
-    'Monday'
-    """
-    if kind == "integer":
-        return None
-    stamp = np.datetime64(int(code), "us")
-    if unit == calendar.UNIT_MONTH and step == 1 and period == 12:
-        return _MONTHS[int(stamp.astype("datetime64[M]").astype(np.int64) % 12)]
-    if unit == calendar.UNIT_MONTH and step == 3 and period == 4:
-        return f"Q{int(stamp.astype('datetime64[M]').astype(np.int64) % 12) // 3 + 1}"
-    if unit == calendar.UNIT_MICROSECOND and step == calendar.US_PER_DAY and period == 7:
-        return _WEEKDAYS[(int(stamp.astype("datetime64[D]").astype(np.int64)) + 3) % 7]
-    if unit == calendar.UNIT_MICROSECOND and step == calendar.US_PER_WEEK and period == 52:
-        day = stamp.astype("datetime64[D]").astype(object)
-        return f"week {day.isocalendar()[1]}"
-    if unit == calendar.UNIT_MICROSECOND and period * step == calendar.US_PER_DAY:
-        minutes = int(code // calendar.US_PER_MINUTE) % (24 * 60)
-        return f"{minutes // 60:02d}:{minutes % 60:02d}"
-    return None
 
 
 @dataclass
@@ -327,3 +287,54 @@ def forecast(
         lower=lower[chosen].ravel(),
         upper=upper[chosen].ravel(),
     )
+
+
+def check_forecast_arguments(horizon: int, level: float, method: str) -> None:
+    """Refuse forecast arguments before any series runs (``ParamError`` names the argument).
+
+    >>> check_forecast_arguments(0, 0.95, "damped")
+    Traceback (most recent call last):
+    ...
+    tidesplit.params.ParamError: horizon must be at least 1, got 0
+    """
+    if isinstance(horizon, bool) or not isinstance(horizon, (int, np.integer)):
+        raise ParamError(f"horizon must be a whole number of steps, got {horizon!r}")
+    if horizon < 1:
+        raise ParamError(f"horizon must be at least 1, got {horizon!r}")
+    if not isinstance(level, (int, float, np.floating)) or not 0 < level < 1:
+        raise ParamError(f"level must be between 0 and 1, got {level!r}")
+    if method not in FORECAST_METHODS:
+        raise ParamError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
+
+
+def settle_forecast(
+    result: RowsResult, ahead: Forecast, on_error: str, label: Callable[[int], str]
+) -> np.ndarray:
+    """Which series have a forecast. One whose forecast came out non-finite (a
+    back-transform that overflows far ahead, say) gets a status saying so, or fails the
+    call under ``on_error='raise'``; no series reports ``ok`` with a missing forecast."""
+    ok = _ok(result)
+    chosen = np.flatnonzero(ok)
+    horizon = np.diff(ahead.offsets)
+    bad_rows = ~(np.isfinite(ahead.point) & np.isfinite(ahead.lower) & np.isfinite(ahead.upper))
+    if not bad_rows.any():
+        return ok
+    keep_rows = np.ones(bad_rows.size, dtype=bool)
+    for k in np.flatnonzero(np.add.reduceat(bad_rows, ahead.offsets[:-1]) > 0):
+        s = int(chosen[k])
+        first = int(np.flatnonzero(bad_rows[ahead.offsets[k] : ahead.offsets[k + 1]])[0]) + 1
+        result.status[s] = (
+            f"the forecast is not finite from step {first} of {int(horizon[k])} on "
+            "(too large for a float after the back-transform)"
+        )
+        if on_error == "raise":
+            raise SplitError(f"series {label(s)}: {result.status[s]}")
+        keep_rows[ahead.offsets[k] : ahead.offsets[k + 1]] = False
+        ok[s] = False
+    kept = np.flatnonzero(ok)
+    ahead.offsets = np.arange(kept.size + 1) * int(horizon[0])
+    for name in ("step", "point", "lower", "upper"):
+        setattr(ahead, name, getattr(ahead, name)[keep_rows])
+    if ahead.codes is not None:
+        ahead.codes = ahead.codes[keep_rows]
+    return ok
