@@ -102,7 +102,7 @@ def test_keep_goes_on_and_accounts_for_every_row(con, case):
         ("period := 12, trend_span := 1", "trend_span must be an odd integer"),
         ("period := 12, trend_degree := 2", "trend_degree must be 0 or 1, got 2"),
         ("period := 12, transform := 'cube'", "transform must be one of none, log, boxcox"),
-        ("period := 12.5", "period must be an integer"),
+        ("period := 12.5", "period must be a whole number"),
         ("period := 12, season_jump := 0", "season_jump must be at least 1"),
     ],
 )

@@ -413,7 +413,7 @@ def forecast(
     >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
     [48, 49, 50]
     """
-    summaries.check_forecast_arguments(horizon, level, method)
+    horizon, level, method = summaries.forecast_arguments(horizon, level, method)
     table = _Table(data, key, time, value, answers.FORECAST)
     result = table.split(period, params, on_error, fill_gaps=True)
     ahead = summaries.forecast(result, table.kind, table.zone, horizon, level, method)

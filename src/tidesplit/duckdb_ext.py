@@ -21,7 +21,7 @@ import pyarrow.compute as pc
 from . import answers, batch, calendar, summaries
 from .decompose import OK, segment_counts
 from .kernel import grid
-from .params import ParamError, SplitParams, as_int
+from .params import ParamError, SplitParams
 from .rows import COMPONENTS, RowsResult, split_rows
 
 UDF_NAME = "__tide_split_series"
@@ -359,10 +359,8 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
-    horizon = 12 if call.extra["horizon"] is None else as_int("horizon", call.extra["horizon"])
-    level = 0.95 if call.extra["level"] is None else float(call.extra["level"])
-    method = call.extra["method"] or "damped"
-    summaries.check_forecast_arguments(horizon, level, method)
+    given = {k: v for k, v in call.extra.items() if v is not None}
+    horizon, level, method = summaries.forecast_arguments(**given)
     result = call.split(fill_gaps=True)
     ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method, parallel=False)
     ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
@@ -474,17 +472,21 @@ def _macro_sql() -> str:
     extra = {name: args for name, (_, args, _) in UDFS.items()}
     lists = {
         "split_args": ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS),
-        "split_pass": ", ".join(name for name, _ in SPLIT_ARGS),
+        # cast for the UDF's signature, so that a wrongly typed argument reaches the type
+        # checks (which refuse it by name) instead of failing DuckDB's binder
+        "split_pass": ", ".join(f"TRY_CAST({name} AS {t})" for name, t in SPLIT_ARGS),
         "split_named": ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS),
         "answer_args": ", ".join(f"{name} := NULL" for name, _ in answer_args),
         # the answers always work on the grid; the UDF's fill_gaps stays NULL
-        "answer_pass": ", ".join("NULL" if name == "fill_gaps" else name for name, _ in SPLIT_ARGS),
+        "answer_pass": ", ".join(
+            "NULL" if name == "fill_gaps" else f"TRY_CAST({name} AS {t})" for name, t in SPLIT_ARGS
+        ),
         "answer_named": ", ".join(f"{name} := {name}" for name, _ in answer_args),
         "outlier_args": ", ".join(
             f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in answer_args
         ),
         "multi_args": ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS),
-        "multi_pass": ", ".join(name for name, _ in MULTI_ARGS),
+        "multi_pass": ", ".join(f"TRY_CAST({name} AS {t})" for name, t in MULTI_ARGS),
         "multi_named": ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS),
         "split_checks": _type_checks((("period", "DOUBLE"), *SPLIT_ARGS)),
         "answer_checks": _type_checks((("period", "DOUBLE"), *answer_args)),

@@ -81,13 +81,13 @@ def as_int(name: str, value: Any) -> int | None:
     if value is None:
         return None
     if isinstance(value, bool):
-        raise ParamError(f"{name} must be an integer, got {value!r}")
+        raise ParamError(f"{name} must be a whole number, got {value!r}")
     try:
         as_float = float(value)
     except (TypeError, ValueError):
-        raise ParamError(f"{name} must be an integer, got {value!r}") from None
+        raise ParamError(f"{name} must be a whole number, got {value!r}") from None
     if not math.isfinite(as_float) or as_float != int(as_float):
-        raise ParamError(f"{name} must be an integer, got {value!r}")
+        raise ParamError(f"{name} must be a whole number, got {value!r}")
     return int(as_float)
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 from statistics import NormalDist
+from typing import Any
 
 import numpy as np
 
@@ -16,7 +17,7 @@ from . import calendar, transform
 from .calendar import cycle_label
 from .decompose import OK, SplitError
 from .kernel import summary, threads
-from .params import ParamError
+from .params import ParamError, as_int
 from .rows import RowsResult
 
 PROFILE_COLUMNS = (
@@ -289,22 +290,29 @@ def forecast(
     )
 
 
-def check_forecast_arguments(horizon: int, level: float, method: str) -> None:
-    """Refuse forecast arguments before any series runs (``ParamError`` names the argument).
+def forecast_arguments(
+    horizon: Any = 12, level: Any = 0.95, method: Any = "damped"
+) -> tuple[int, float, str]:
+    """The forecast's arguments checked before any series runs (``ParamError`` names the
+    argument), a whole number of any numeric type taken as the horizon.
 
-    >>> check_forecast_arguments(0, 0.95, "damped")
+    >>> forecast_arguments(horizon=6.0)
+    (6, 0.95, 'damped')
+    >>> forecast_arguments(horizon=2.5)
     Traceback (most recent call last):
     ...
-    tidesplit.params.ParamError: horizon must be at least 1, got 0
+    tidesplit.params.ParamError: horizon must be a whole number, got 2.5
     """
-    if isinstance(horizon, bool) or not isinstance(horizon, (int, np.integer)):
-        raise ParamError(f"horizon must be a whole number of steps, got {horizon!r}")
-    if horizon < 1:
+    steps = as_int("horizon", horizon)
+    if steps is None or steps < 1:
         raise ParamError(f"horizon must be at least 1, got {horizon!r}")
-    if not isinstance(level, (int, float, np.floating)) or not 0 < level < 1:
+    if isinstance(level, bool) or not isinstance(level, (int, float, np.number)):
+        raise ParamError(f"level must be a number between 0 and 1, got {level!r}")
+    if not 0 < level < 1:
         raise ParamError(f"level must be between 0 and 1, got {level!r}")
     if method not in FORECAST_METHODS:
         raise ParamError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
+    return steps, float(level), method
 
 
 def settle_forecast(

@@ -39,7 +39,7 @@ CREATE OR REPLACE TEMP MACRO __tide_name_clashes(keys, time, value, answer) AS
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, {split_args}) AS
     CASE WHEN __tide_refuse([{split_checks}])
-         THEN __tide_split_series(NULL, NULL, NULL, NULL, values, period, {split_pass}, NULL, NULL, NULL)
+         THEN __tide_split_series(NULL, NULL, NULL, NULL, values, TRY_CAST(period AS DOUBLE), {split_pass}, NULL, NULL, NULL)
     END;
 
 -- Every series of a table as lists, one row per key.
@@ -113,7 +113,7 @@ FROM (SELECT __key, __time_rows, __value_rows,
              __tide_split_series(CAST(__key AS VARCHAR), __time_codes,
                                  typeof(struct_extract_at(__time_rows[1], 1)),
                                  current_setting('TimeZone'),
-                                 __values, period, {split_pass}, {multi_pass}) AS __parts
+                                 __values, TRY_CAST(period AS DOUBLE), {split_pass}, {multi_pass}) AS __parts
       FROM __tide_grouped(tbl, keys, time, value),
            (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, answer)
                           || [{split_checks}, {multi_checks}]) AS __ok) AS __checked
@@ -142,7 +142,7 @@ SELECT unnest(__key), unnest(__p)
 FROM (SELECT __key,
              __tide_profile_series(CAST(__key AS VARCHAR), __time_codes,
                                    typeof(struct_extract_at(__time_rows[1], 1)),
-                                   current_setting('TimeZone'), __values, period,
+                                   current_setting('TimeZone'), __values, TRY_CAST(period AS DOUBLE),
                                    {answer_pass}, {multi_pass}) AS __p
       FROM __tide_grouped(tbl, keys, time, value),
            (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, {profile_columns})
@@ -171,7 +171,7 @@ SELECT * FROM (
     FROM (SELECT __key, __time_rows, __value_rows,
                  __tide_outlier_series(CAST(__key AS VARCHAR), __time_codes,
                                        typeof(struct_extract_at(__time_rows[1], 1)),
-                                       current_setting('TimeZone'), __values, period,
+                                       current_setting('TimeZone'), __values, TRY_CAST(period AS DOUBLE),
                                        {answer_pass}, {multi_pass}, method, threshold) AS __o
           FROM __tide_grouped(tbl, keys, time, value),
                (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, {outlier_columns})
@@ -199,7 +199,7 @@ SELECT unnest(__key),
 FROM (SELECT __key, __time_rows,
              __tide_forecast_series(CAST(__key AS VARCHAR), __time_codes,
                                     typeof(struct_extract_at(__time_rows[1], 1)),
-                                    current_setting('TimeZone'), __values, period,
+                                    current_setting('TimeZone'), __values, TRY_CAST(period AS DOUBLE),
                                     {answer_pass}, {multi_pass}, horizon, level, method) AS __f
       FROM __tide_grouped(tbl, keys, time, value),
            (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, {forecast_columns})
