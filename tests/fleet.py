@@ -200,6 +200,8 @@ def check_split(
     observed = good["v"].notna()
     assert good.loc[observed, "remainder"].notna().all()
     assert good.loc[~observed, "remainder"].isna().all()
+    noted = good["status"].str.contains("adjusted is NULL")  # said in the status
+    assert good.loc[observed & ~noted, "adjusted"].notna().all()
     total = good["trend"] + good["seasonal"] + good["remainder"]
     np.testing.assert_allclose(
         total[observed], transform(good.loc[observed, "v"].to_numpy()), rtol=1e-9

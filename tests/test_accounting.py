@@ -325,6 +325,23 @@ def test_a_forecast_that_overflows_after_the_back_transform_is_said(con):
     assert row[:2] == (1, 0) and row[2].startswith("the forecast is not finite from step")
 
 
+def test_an_adjusted_value_no_number_reaches_is_said():
+    # a low value in the high season: without its seasonal part it lies below -1 / lambda,
+    # which the Box-Cox back-transform reaches from no positive number
+    t = np.arange(48)
+    values = np.where(t % 4 == 0, 50.0, 0.2) + 0.01 * t
+    values[20] = 0.01
+    frame = pd.DataFrame({"k": "a", "t": t, "v": values})
+    out = tidesplit.split_table(
+        frame, "k", "t", "v", period=4, transform="boxcox", boxcox_lambda=0.5
+    )
+    assert out["adjusted"].isna().sum() == 1 and np.isnan(out["adjusted"][20])
+    assert out["status"][0] == (
+        "ok; adjusted is NULL at 1 point(s), first at time 20: without its seasonal part the "
+        "value lies outside what the Box-Cox transform with lambda 0.5 reaches"
+    )
+
+
 def test_an_argument_no_series_can_use_fails_the_query_under_keep_too(con):
     con.execute("CREATE TABLE f AS SELECT 'a' k, i t, 5.0 + sin(i) v FROM range(40) r(i)")
     with pytest.raises(duckdb.Error, match="period must be at least 2, got 0"):

@@ -186,6 +186,35 @@ def _check_output(
     return failed
 
 
+def _note_unreachable(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    adjusted: np.ndarray,
+    lambdas: np.ndarray,
+    back: np.ndarray,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> None:
+    """Say where the seasonally adjusted value has no value on the original scale.
+
+    With a Box-Cox lambda above 0, transformed values below -1 / lambda (and with one below
+    0, above it) are reached by no number; a low value in a high season can fall there once
+    its seasonal part is taken away. Such a point's adjusted value stays NULL and the
+    series' status says where, so no number goes missing with a plain ``ok``.
+    """
+    unreachable = back & np.isnan(adjusted) & ~np.isnan(values)
+    if not unreachable.any():
+        return
+    for s in np.flatnonzero(segment_counts(unreachable, offsets)):
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        where = np.flatnonzero(unreachable[lo:hi])
+        status[s] = (
+            f"{status[s]}; adjusted is NULL at {where.size} point(s), first at "
+            f"{_point_text(describe_point, s, int(where[0]))}: without its seasonal part the "
+            f"value lies outside what the Box-Cox transform with lambda {lambdas[s]:g} reaches"
+        )
+
+
 def _settle(status: list[str], on_error: str, label: Callable[[int], str]) -> np.ndarray:
     """Which series may go on (status ``ok``); raises on the first bad one unless keeping."""
     ok = np.array([s.startswith(OK) for s in status], dtype=bool)
@@ -437,6 +466,7 @@ def split_batch(
     if any_transform:
         back = point_transformed & np.repeat(ok, lengths)
         adjusted[back] = transform.inverse(adjusted[back], point_lambda[back])
+        _note_unreachable(values, offsets, adjusted, lambdas, back, status, describe_point)
     missing = np.isnan(values)
     weight[missing] = np.nan
     lambdas[~ok] = np.nan
