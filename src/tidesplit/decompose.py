@@ -164,10 +164,14 @@ def _check_output(
     The checks before the split rule out what can be foreseen; this is the net under them,
     so that no series reports ``ok`` with a missing trend or seasonal value.
     """
-    broken = ~np.isfinite(trend) | ~np.isfinite(seasonal)
-    failed = np.flatnonzero(
-        (segment_counts(broken, offsets) > 0) & (settings[:, 0, COL_ACTIVE] == 1)
-    )
+    # a non-finite point makes its series' sum non-finite: one pass, no mask per point
+    # (the values' bound keeps finite sums from overflowing)
+    lengths = np.diff(offsets)
+    filled = np.flatnonzero(lengths > 0)
+    sums = np.add.reduceat(np.add(trend, seasonal), offsets[filled]) if filled.size else []
+    broken = np.zeros(lengths.size, dtype=bool)
+    broken[filled] = ~np.isfinite(sums)
+    failed = np.flatnonzero(broken & (settings[:, 0, COL_ACTIVE] == 1))
     for s in failed:
         lo, hi = int(offsets[s]), int(offsets[s + 1])
         period = int(settings[s, 0, COL_PERIOD])
