@@ -46,7 +46,8 @@ def test_public_functions_have_examples():
 def test_import_is_light():
     code = (
         "import sys, tidesplit; "
-        "print(sorted(m for m in ('duckdb', 'pandas', 'pyarrow', 'matplotlib', 'pyspark') "
+        "print(sorted(m for m in ('duckdb', 'pandas', 'pyarrow', 'numba', 'llvmlite', "
+        "'statsmodels', 'scipy', 'matplotlib', 'pyspark') "
         "if m in sys.modules))"
     )
     loaded = subprocess.run(

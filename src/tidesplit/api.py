@@ -10,9 +10,11 @@ import numpy as np
 import pandas as pd
 
 from . import answers, summaries
-from .decompose import OK, segment_counts
-from .params import ParamError, SplitParams
+from .decompose import segment_counts
+from .errors import ParamError
+from .params import SplitParams
 from .rows import RowsResult, split_rows
+from .status import OK, split_mask
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
@@ -383,7 +385,7 @@ def outliers(
     out["status"] = np.repeat(np.array(result.status, dtype=object), np.diff(table.offsets))
     if all_rows:
         return out
-    keep = out["is_outlier"] | ~out["status"].str.startswith(OK)
+    keep = out["is_outlier"] | ~split_mask(out["status"].tolist())
     return out[keep].reset_index(drop=True)
 
 

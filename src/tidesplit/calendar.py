@@ -23,8 +23,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import memory
-from .decompose import OK
 from .kernel import grid
+from .status import OK
 
 US_PER_MINUTE = 60_000_000
 US_PER_HOUR = 60 * US_PER_MINUTE

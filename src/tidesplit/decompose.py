@@ -12,23 +12,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import memory, transform
+from .errors import ParamError, SplitError
 from .kernel import checks, linear, threads
+from .kernel.layout import COL_ACTIVE, COL_OUTER, COL_PERIOD, N_SETTINGS
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
-from .kernel.stl import (
-    COL_ACTIVE,
-    COL_OUTER,
-    COL_PERIOD,
-    N_SETTINGS,
-    stl_batch_parallel,
-    stl_batch_serial,
-)
-from .params import ON_ERROR, ParamError, ResolvedParams, SplitParams
-
-OK = "ok"
-
-
-class SplitError(ValueError):
-    """A series that cannot be split; the message names the series and the reason."""
+from .kernel.stl import stl_batch_parallel, stl_batch_serial
+from .params import ON_ERROR, ResolvedParams, SplitParams
+from .status import OK, split_mask, with_note
 
 
 @dataclass
@@ -212,16 +202,17 @@ def _note_unreachable(
     for s in np.flatnonzero(segment_counts(unreachable, offsets)):
         lo, hi = int(offsets[s]), int(offsets[s + 1])
         where = np.flatnonzero(unreachable[lo:hi])
-        status[s] = (
-            f"{status[s]}; adjusted is NULL at {where.size} point(s), first at "
+        status[s] = with_note(
+            status[s],
+            f"adjusted is NULL at {where.size} point(s), first at "
             f"{_point_text(describe_point, s, int(where[0]))}: without its seasonal part the "
-            f"value lies outside what the Box-Cox transform with lambda {lambdas[s]:g} reaches"
+            f"value lies outside what the Box-Cox transform with lambda {lambdas[s]:g} reaches",
         )
 
 
 def _settle(status: list[str], on_error: str, label: Callable[[int], str]) -> np.ndarray:
     """Which series may go on (status ``ok``); raises on the first bad one unless keeping."""
-    ok = np.array([s.startswith(OK) for s in status], dtype=bool)
+    ok = split_mask(status)
     bad = np.flatnonzero(~ok)
     if on_error == "raise" and bad.size:
         first = int(bad[0])
@@ -463,7 +454,9 @@ def split_batch(
         for s, gone in dropped.items():
             if ok[s]:
                 shown = ", ".join(str(p) for p in gone)
-                status[s] = f"ok; dropped period {shown}: not shorter than half the series"
+                status[s] = with_note(
+                    status[s], f"dropped period {shown}: not shorter than half the series"
+                )
     remainder = np.subtract(y, trend, out=memory.empty(y.size))
     remainder -= seasonal
     adjusted = np.subtract(y, seasonal, out=memory.empty(y.size))

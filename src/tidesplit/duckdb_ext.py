@@ -19,10 +19,12 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from . import answers, batch, calendar, summaries
-from .decompose import OK, segment_counts
+from .decompose import segment_counts
+from .errors import ParamError
 from .kernel import grid
-from .params import ParamError, SplitParams
+from .params import SplitParams
 from .rows import COMPONENTS, RowsResult, split_rows
+from .status import OK
 
 UDF_NAME = "__tide_split_series"
 

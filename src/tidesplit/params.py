@@ -11,17 +11,15 @@ from typing import Any
 
 import numpy as np
 
-from .kernel import stl as _k
+from . import arguments
+from .errors import ParamError
+from .kernel import layout as _k
 
-TRANSFORMS = ("none", "log", "boxcox")
-ON_ERROR = ("raise", "keep")
+TRANSFORMS = next(a.choices for a in arguments.REGISTRY if a.name == "transform")
+ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
 
 # Common practice (the paper asks only for an odd number of at least 7).
 DEFAULT_SEASON_SPAN = 13
-
-
-class ParamError(ValueError):
-    """A parameter that no series could be split with."""
 
 
 def smallest_odd_at_least(x: float) -> int:
@@ -72,23 +70,7 @@ def default_loops(robust: bool) -> tuple[int, int]:
     return (1, 10) if robust else (2, 0)
 
 
-def as_int(name: str, value: Any) -> int | None:
-    """A whole number given as any numeric type (None stays None); ``ParamError`` otherwise.
-
-    >>> as_int("horizon", 12.0), as_int("horizon", None)
-    (12, None)
-    """
-    if value is None:
-        return None
-    if isinstance(value, bool):
-        raise ParamError(f"{name} must be a whole number, got {value!r}")
-    try:
-        as_float = float(value)
-    except (TypeError, ValueError):
-        raise ParamError(f"{name} must be a whole number, got {value!r}") from None
-    if not math.isfinite(as_float) or as_float != int(as_float):
-        raise ParamError(f"{name} must be a whole number, got {value!r}")
-    return int(as_float)
+as_int = arguments.whole_number
 
 
 @dataclass(frozen=True)
@@ -109,10 +91,10 @@ class SplitParams:
     season_jump: int | None = None
     trend_jump: int | None = None
     lowpass_jump: int | None = None
-    robust: bool = False
+    robust: bool = arguments.default_of("robust")
     inner_loops: int | None = None
     outer_loops: int | None = None
-    transform: str = "none"
+    transform: str = arguments.default_of("transform")
     boxcox_lambda: float | None = None
     periods: tuple[int, ...] | None = None
     season_spans: tuple[int, ...] | None = None
@@ -136,6 +118,16 @@ class SplitParams:
                 kwargs[name] = tuple(kwargs[name])
         return cls(**kwargs)
 
+    @classmethod
+    def from_settings(cls, settings: dict[str, Any]) -> SplitParams:
+        """The decomposition's part of a function's settings (``arguments.accept``).
+
+        >>> SplitParams.from_settings(arguments.accept("split", {"period": 12})).period
+        12
+        """
+        known = {f.name for f in fields(cls)}
+        return cls(**{k: v for k, v in settings.items() if k in known and v is not None})
+
     def with_period(self, period: int) -> SplitParams:
         """The same settings for another (single) period."""
         return replace(self, period=period)
@@ -158,7 +150,7 @@ class SplitParams:
         >>> SplitParams(trend_span=4).check()
         Traceback (most recent call last):
         ...
-        tidesplit.params.ParamError: trend_span must be an odd integer of at least 3, got 4
+        tidesplit.errors.ParamError: trend_span must be an odd integer of at least 3, got 4
         """
         probe = self
         if self.multi and not self.periods:

@@ -13,8 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import calendar, memory
-from .decompose import OK, BatchResult, split_batch
+from .decompose import BatchResult, split_batch
 from .params import SplitParams
+from .status import OK
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 

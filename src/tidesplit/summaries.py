@@ -14,11 +14,12 @@ from typing import Any
 import numpy as np
 
 from . import calendar, transform
+from .arguments import whole_number
 from .calendar import cycle_label
-from .decompose import OK, SplitError
+from .errors import ParamError, SplitError
 from .kernel import summary, threads
-from .params import ParamError, as_int
 from .rows import RowsResult
+from .status import split_mask
 
 PROFILE_COLUMNS = (
     "strength_of_trend",
@@ -33,7 +34,7 @@ FORECAST_METHODS = ("damped", "drift")
 
 
 def _ok(result: RowsResult) -> np.ndarray:
-    return np.array([s.startswith(OK) for s in result.status], dtype=bool)
+    return split_mask(result.status)
 
 
 @dataclass
@@ -301,9 +302,9 @@ def forecast_arguments(
     >>> forecast_arguments(horizon=2.5)
     Traceback (most recent call last):
     ...
-    tidesplit.params.ParamError: horizon must be a whole number, got 2.5
+    tidesplit.errors.ParamError: horizon must be a whole number, got 2.5
     """
-    steps = as_int("horizon", horizon)
+    steps = whole_number("horizon", horizon)
     if steps is None or steps < 1:
         raise ParamError(f"horizon must be at least 1, got {horizon!r}")
     if isinstance(level, bool) or not isinstance(level, (int, float, np.number)):
