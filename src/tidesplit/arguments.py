@@ -359,15 +359,18 @@ season_span?
     return settings
 
 
-def signature(function: str, lead: list[inspect.Parameter]) -> inspect.Signature:
-    """The Python signature of a function: its ``lead`` parameters, then every argument of
-    the registry as a keyword with its default."""
-    named = [
-        inspect.Parameter(a.name, inspect.Parameter.KEYWORD_ONLY, default=a.default_in(function))
-        for a in of(function)
-        if a.name not in {p.name for p in lead}
-    ]
-    return inspect.Signature([*lead, *named])
+def signature(functions: tuple[str, ...], lead: list[inspect.Parameter]) -> inspect.Signature:
+    """The Python signature of a front serving ``functions``: its ``lead`` parameters, then
+    every argument of theirs as a keyword with its default (the first function's)."""
+    named: dict[str, inspect.Parameter] = {}
+    for function in functions:
+        for a in of(function):
+            if a.name not in named and a.name not in {p.name for p in lead}:
+                default = a.default_in(function)
+                named[a.name] = inspect.Parameter(
+                    a.name, inspect.Parameter.KEYWORD_ONLY, default=default
+                )
+    return inspect.Signature([*lead, *named.values()])
 
 
 def _default_words(argument: Argument) -> str:
@@ -397,3 +400,7 @@ def markdown_table() -> str:
             meaning += f" ({', '.join(repr(c) for c in argument.choices)})"
         lines.append(f"| `{argument.name}` | {_default_words(argument)} | {takers} | {meaning} |")
     return "\n".join(lines)
+
+
+if __name__ == "__main__":
+    print(markdown_table())

@@ -18,7 +18,8 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import answers, batch, calendar, summaries
+from . import arguments, batch, calendar, sql_build, summaries
+from .arguments import SQL_TYPES
 from .decompose import segment_counts
 from .errors import ParamError
 from .kernel import grid
@@ -28,42 +29,14 @@ from .status import OK
 
 UDF_NAME = "__tide_split_series"
 
-# Every decomposition argument after ``period``, in the order the UDF takes them, with its
-# SQL type. The macros are written from this list.
-SPLIT_ARGS: tuple[tuple[str, str], ...] = (
-    ("season_span", "DOUBLE"),
-    ("trend_span", "DOUBLE"),
-    ("lowpass_span", "DOUBLE"),
-    ("season_degree", "DOUBLE"),
-    ("trend_degree", "DOUBLE"),
-    ("lowpass_degree", "DOUBLE"),
-    ("season_jump", "DOUBLE"),
-    ("trend_jump", "DOUBLE"),
-    ("lowpass_jump", "DOUBLE"),
-    ("robust", "BOOLEAN"),
-    ("inner_loops", "DOUBLE"),
-    ("outer_loops", "DOUBLE"),
-    ("transform", "VARCHAR"),
-    ("boxcox_lambda", "DOUBLE"),
-    ("fill_gaps", "BOOLEAN"),
-    ("on_error", "VARCHAR"),
-)
-# Arguments of several seasonal periods (tide_split_multi only).
-MULTI_ARGS: tuple[tuple[str, str], ...] = (
-    ("periods", "DOUBLE[]"),
-    ("season_spans", "DOUBLE[]"),
-    ("iterations", "DOUBLE"),
-)
-# What the UDF takes before the decomposition arguments.
-LEAD_ARGS: tuple[tuple[str, str], ...] = (
-    ("label", "VARCHAR"),
-    ("time_codes", "BIGINT[]"),
-    ("time_kind", "VARCHAR"),
-    ("time_zone", "VARCHAR"),
-    ("values", "DOUBLE[]"),
-    ("period", "DOUBLE"),
-)
-UDF_ARGS = LEAD_ARGS + SPLIT_ARGS + MULTI_ARGS
+
+def udf_types(udf: str) -> list[tuple[str, str]]:
+    """Every parameter of a UDF, with its SQL type: the lead ones, then its arguments."""
+    named = [(a.name, SQL_TYPES[a.kind]) for a in sql_build.udf_arguments(udf)]
+    return [*sql_build.LEAD, *named]
+
+
+UDF_ARGS = udf_types(UDF_NAME)  # the split UDF's, which the benchmarks' floor takes too
 
 # One seasonal part per period on every row, as a list of (period, seasonal) structs in
 # ascending period. A MAP(period -> part) read more tersely, but DuckDB checks the keys of
@@ -156,7 +129,7 @@ class _Call:
     fill_gaps: bool
     status: list[str]
     label: Any
-    extra: dict[str, Any]
+    settings: dict[str, Any]  # every argument of the function, defaults filled in
     order: np.ndarray | None = None  # input row of each time-sorted row, when not sorted
 
     def split(self, fill_gaps: bool | None = None) -> RowsResult:
@@ -200,7 +173,7 @@ class _Call:
         return out
 
 
-def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call:
+def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     labels = columns["label"]
     offsets, child, null_rows = batch.list_layout(columns["values"])
     flat = batch.float_values(child)
@@ -230,14 +203,15 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
     zone = zones[0].as_py() if len(zones) else None
 
-    names = ["period", *(n for n, _ in SPLIT_ARGS + MULTI_ARGS), *extra_names]
+    names = [a.name for a in sql_build.udf_arguments(udf)]
     given = _constant_arguments(names, [columns[n] for n in names])
-    extra = {n: given.pop(n) for n in extra_names}
-    on_error = given.pop("on_error") or "raise"
-    fill = bool(given.pop("fill_gaps"))
-    chosen = {k: v for k, v in given.items() if v is not None}
-    if given.get("periods") == ():
-        chosen["periods"] = ()
+    functions = sql_build.UDFS[udf]
+    # the split UDF serves one period and several; a list of periods says which
+    function = arguments.SPLIT_MULTI if given.get("periods") is not None else functions[0]
+    taken = {a.name for a in arguments.of(function)}
+    settings = arguments.accept(
+        function, {k: v for k, v in given.items() if v is not None and k in taken}
+    )
 
     def label(i: int) -> str:
         text = labels[i].as_py() if len(labels) else None
@@ -250,12 +224,12 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
         codes,
         kind,
         zone,
-        SplitParams.from_kwargs(**chosen),
-        on_error,
-        fill,
+        SplitParams.from_settings(settings),
+        settings["on_error"],
+        bool(settings.get("fill_gaps")),
         status,
         label,
-        extra,
+        settings,
         order,
     )
 
@@ -342,9 +316,7 @@ def _profile_handler(call: _Call) -> pa.Array:
 
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    method = call.extra["method"] or "iqr"
-    threshold = 3.0 if call.extra["threshold"] is None else float(call.extra["threshold"])
-    found = summaries.unusual_points(result, method, threshold)
+    found = summaries.unusual_points(result, call.settings["method"], call.settings["threshold"])
     # back to the input rows (the grid's inserted times have no value to judge)
     offsets = call.offsets
     direction = np.array(found.direction, dtype=object)
@@ -361,8 +333,9 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
-    given = {k: v for k, v in call.extra.items() if v is not None}
-    horizon, level, method = summaries.forecast_arguments(**given)
+    horizon, level, method = summaries.forecast_arguments(
+        call.settings["horizon"], call.settings["level"], call.settings["method"]
+    )
     result = call.split(fill_gaps=True)
     ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method, parallel=False)
     ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
@@ -392,11 +365,10 @@ def _forecast_handler(call: _Call) -> pa.Array:
 
 
 _SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
-UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
-    UDF_NAME: (_split_handler, (), RESULT_TYPE),
+UDFS: dict[str, tuple[Any, str]] = {
+    UDF_NAME: (_split_handler, RESULT_TYPE),
     "__tide_profile_series": (
         _profile_handler,
-        (),
         "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
         + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
         + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
@@ -405,28 +377,23 @@ UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
     ),
     "__tide_outlier_series": (
         _outlier_handler,
-        (("method", "VARCHAR"), ("threshold", "DOUBLE")),
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
     "__tide_forecast_series": (
         _forecast_handler,
-        (("horizon", "DOUBLE"), ("level", "DOUBLE"), ("method", "VARCHAR")),
         "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "
         f"upper DOUBLE[], {_SERIES_TYPES})",
     ),
 }
 
 
-def _as_udf(handler: Any, extra: tuple[tuple[str, str], ...]) -> Any:
+def _as_udf(udf: str, handler: Any) -> Any:
     """A Python function of one positional argument per SQL parameter, for DuckDB."""
-    names = [n for n, _ in UDF_ARGS + extra]
-    extra_names = tuple(n for n, _ in extra)
+    names = [n for n, _ in udf_types(udf)]
 
     def call(*columns: Any) -> pa.Array:
-        decoded = _decode(
-            {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)}, extra_names
-        )
+        decoded = _decode(udf, {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)})
         return handler(decoded)
 
     call.__signature__ = udf_signature(names)  # type: ignore[attr-defined]
@@ -440,71 +407,9 @@ def udf_signature(names: list[str]) -> inspect.Signature:
     )
 
 
-# What an argument of each SQL type may be given as (DuckDB's typeof); the UDF's declared
-# types would cast 'yes' to true or '12' to 12 without a word.
-_NUMBER = r"U?(TINYINT|SMALLINT|INTEGER|BIGINT|HUGEINT)|FLOAT|DOUBLE|DECIMAL\(\d+,\d+\)"
-_ACCEPTED_TYPES = {
-    "DOUBLE": (f'^({_NUMBER}|"NULL")$', "a number"),
-    "BOOLEAN": ('^(BOOLEAN|"NULL")$', "true or false"),
-    "VARCHAR": ('^(VARCHAR|"NULL")$', "a string"),
-    "DOUBLE[]": (f'^((({_NUMBER})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
-}
-
-
-def _type_checks(args: tuple[tuple[str, str], ...]) -> str:
-    """One SQL expression per argument: NULL, or why its type is refused."""
-    checks = []
-    for name, sql_type in args:
-        pattern, wanted = _ACCEPTED_TYPES[sql_type]
-        checks.append(
-            f"CASE WHEN NOT regexp_full_match(typeof({name}), '{pattern}') "
-            f"THEN '{name} must be {wanted}, got ' || typeof({name}) || ' ' "
-            f"|| CAST({name} AS VARCHAR) END"
-        )
-    return ", ".join(checks)
-
-
-def _sql_list(names: tuple[str, ...]) -> str:
-    return "[" + ", ".join(f"'{n}'" for n in names) + "]"
-
-
-def _macro_sql() -> str:
-    """The macros with the argument and column lists written in (see the SQL file's head)."""
-    answer_args = tuple(a for a in SPLIT_ARGS if a[0] != "fill_gaps")
-    extra = {name: args for name, (_, args, _) in UDFS.items()}
-    lists = {
-        "split_args": ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS),
-        # cast for the UDF's signature, so that a wrongly typed argument reaches the type
-        # checks (which refuse it by name) instead of failing DuckDB's binder
-        "split_pass": ", ".join(f"TRY_CAST({name} AS {t})" for name, t in SPLIT_ARGS),
-        "split_named": ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS),
-        "answer_args": ", ".join(f"{name} := NULL" for name, _ in answer_args),
-        # the answers always work on the grid; the UDF's fill_gaps stays NULL
-        "answer_pass": ", ".join(
-            "NULL" if name == "fill_gaps" else f"TRY_CAST({name} AS {t})" for name, t in SPLIT_ARGS
-        ),
-        "answer_named": ", ".join(f"{name} := {name}" for name, _ in answer_args),
-        "outlier_args": ", ".join(
-            f"{name} := {'true' if name == 'robust' else 'NULL'}" for name, _ in answer_args
-        ),
-        "multi_args": ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS),
-        "multi_pass": ", ".join(f"TRY_CAST({name} AS {t})" for name, t in MULTI_ARGS),
-        "multi_named": ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS),
-        "split_checks": _type_checks((("period", "DOUBLE"), *SPLIT_ARGS)),
-        "answer_checks": _type_checks((("period", "DOUBLE"), *answer_args)),
-        "multi_checks": _type_checks(MULTI_ARGS),
-        "outlier_checks": _type_checks((*extra["__tide_outlier_series"], ("all_rows", "BOOLEAN"))),
-        "forecast_checks": _type_checks(extra["__tide_forecast_series"]),
-        "split_columns": _sql_list(answers.SPLIT),
-        "multi_columns": _sql_list(answers.SPLIT_MULTI),
-        "profile_columns": _sql_list(answers.PROFILE),
-        "outlier_columns": _sql_list(answers.OUTLIERS),
-        "forecast_columns": _sql_list(answers.FORECAST),
-    }
-    text = resources.files("tidesplit").joinpath("sql/tide_split.sql").read_text()
-    for name, written in lists.items():
-        text = text.replace("{" + name + "}", written)
-    return text
+def macro_sql() -> str:
+    """The SQL file shipped with the package (written by ``sql_build``)."""
+    return resources.files("tidesplit.sql").joinpath("tidesplit.sql").read_text()
 
 
 def _registered(con: duckdb.DuckDBPyConnection) -> set[str]:
@@ -534,21 +439,21 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     [(8,)]
     """
     registered = _registered(con)
-    for name, (handler, extra, result_type) in UDFS.items():
+    for name, (handler, result_type) in UDFS.items():
         present = name in registered
         if present and replace:
             con.remove_function(name)
         if replace or not present:
             con.create_function(
                 name,
-                _as_udf(handler, extra),
-                [t for _, t in UDF_ARGS + extra],
+                _as_udf(name, handler),
+                [t for _, t in udf_types(name)],
                 result_type,
                 type="arrow",
                 null_handling="special",
                 side_effects=False,
             )
-    con.execute(_macro_sql())
+    con.execute(macro_sql())
     return con
 
 
