@@ -161,8 +161,7 @@ def run_draw(args: argparse.Namespace) -> None:
     import tidesplit
     from tidesplit import pictures
 
-    outputs = {"parts": args.parts, "fleet": args.fleet, "spans": args.spans,
-               "report": args.report}
+    outputs = {"parts": args.parts, "fleet": args.fleet, "spans": args.spans, "report": args.report}
     if not any(outputs.values()):
         raise SystemExit("nothing to draw: give --parts, --fleet, --spans and/or --report")
     if args.unusual and not args.parts:
@@ -184,23 +183,24 @@ def run_draw(args: argparse.Namespace) -> None:
 
     def unusual_of(data: object) -> object:
         # robust whatever --robust says: a plain fit bends towards the points it should find
-        return tidesplit.outliers(data, key, time_column, value, period=args.period,
-                                  transform=args.transform)
+        return tidesplit.outliers(
+            data, key, time_column, value, period=args.period, transform=args.transform
+        )
 
     if args.parts:
         chosen = args.pick or list(dict.fromkeys(labels))
         some = rows_of(chosen)
         parts = tidesplit.split_table(some, key, time_column, value, **settings)
         marks = unusual_of(some) if args.unusual else None
-        pictures.draw_parts(parts, key, time_column, value, show=chosen, unusual=marks,
-                            path=args.parts)
+        pictures.draw_parts(
+            parts, key, time_column, value, show=chosen, unusual=marks, path=args.parts
+        )
         print(f"wrote {args.parts}: the parts of {len(chosen)} key(s)")
     profiled = None
     if args.fleet or args.report:
         profiled = tidesplit.profile(frame, key, time_column, value, **settings)
     if args.fleet:
-        pictures.draw_fleet(profiled, key, label=args.label, label_keys=args.pick,
-                            path=args.fleet)
+        pictures.draw_fleet(profiled, key, label=args.label, label_keys=args.pick, path=args.fleet)
         print(f"wrote {args.fleet}: {len(profiled):,} keys")
     if args.spans:
         if args.period is None:
@@ -210,18 +210,36 @@ def run_draw(args: argparse.Namespace) -> None:
             extra["season_spans"] = args.season_spans
         if args.trend_spans:
             extra["trend_spans"] = args.trend_spans
-        pictures.draw_spans(rows_of(args.pick), key, time_column, value, pick=args.pick[0],
-                            period=args.period, robust=args.robust, transform=args.transform,
-                            path=args.spans, **extra)
+        pictures.draw_spans(
+            rows_of(args.pick),
+            key,
+            time_column,
+            value,
+            pick=args.pick[0],
+            period=args.period,
+            robust=args.robust,
+            transform=args.transform,
+            path=args.spans,
+            **extra,
+        )
         print(f"wrote {args.spans}: {args.pick[0]} under each span")
     if args.report:
         unusual = unusual_of(frame)
         chosen = pictures.choose_pictured(profiled, key, unusual, args.pictured)
         chosen += [k for k in args.pick if k not in chosen]
         parts = tidesplit.split_table(rows_of(chosen), key, time_column, value, **settings)
-        pictures.write_report(args.report, parts, profiled, key, time_column, value,
-                              unusual=unusual, pictured=len(chosen), listed=args.listed,
-                              title=f"tidesplit: {args.source}")
+        pictures.write_report(
+            args.report,
+            parts,
+            profiled,
+            key,
+            time_column,
+            value,
+            unusual=unusual,
+            pictured=len(chosen),
+            listed=args.listed,
+            title=f"tidesplit: {args.source}",
+        )
         print(f"wrote {args.report}: {len(profiled):,} keys, {len(chosen)} pictured")
 
 
@@ -237,32 +255,50 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
     )
     draw.add_argument("source", help="a DuckDB database file (with --table) or a Parquet file")
     draw.add_argument("--table", help="the table or view to read from a DuckDB file")
-    draw.add_argument("--key", action="append", required=True,
-                      help="a key column; repeat for several")
+    draw.add_argument(
+        "--key", action="append", required=True, help="a key column; repeat for several"
+    )
     draw.add_argument("--time", required=True, help="the time column")
     draw.add_argument("--value", required=True, help="the value column")
     draw.add_argument("--period", type=int, help="points per cycle (default: from the step)")
     draw.add_argument("--robust", action="store_true", help="robust split")
-    draw.add_argument("--transform", default="none", choices=("none", "log", "boxcox"),
-                      help="transform before splitting (default none)")
-    draw.add_argument("--pick", action="append", default=[],
-                      help="a key to draw (--parts, --spans) or to name (--fleet, --report); "
-                      "repeat for several")
+    draw.add_argument(
+        "--transform",
+        default="none",
+        choices=("none", "log", "boxcox"),
+        help="transform before splitting (default none)",
+    )
+    draw.add_argument(
+        "--pick",
+        action="append",
+        default=[],
+        help="a key to draw (--parts, --spans) or to name (--fleet, --report); repeat for several",
+    )
     draw.add_argument("--parts", metavar="FILE", help="write the parts of the picked keys")
-    draw.add_argument("--unusual", action="store_true",
-                      help="ring unusual points (robust outliers) in --parts")
+    draw.add_argument(
+        "--unusual", action="store_true", help="ring unusual points (robust outliers) in --parts"
+    )
     draw.add_argument("--fleet", metavar="FILE", help="write the fleet picture")
-    draw.add_argument("--label", type=int, default=8,
-                      help="keys farthest from the fleet's middle to name (default 8)")
+    draw.add_argument(
+        "--label",
+        type=int,
+        default=8,
+        help="keys farthest from the fleet's middle to name (default 8)",
+    )
     draw.add_argument("--spans", metavar="FILE", help="write one key under several spans")
     draw.add_argument("--season-spans", type=_spans, help="comma-separated (default 7,13,35,0)")
-    draw.add_argument("--trend-spans", type=_spans,
-                      help="comma-separated (default a half to four times the default)")
+    draw.add_argument(
+        "--trend-spans",
+        type=_spans,
+        help="comma-separated (default a half to four times the default)",
+    )
     draw.add_argument("--report", metavar="FILE", help="write a self-contained HTML report")
-    draw.add_argument("--pictured", type=int, default=40,
-                      help="keys pictured in the report (default 40)")
-    draw.add_argument("--listed", type=int, default=5000,
-                      help="keys listed in the report (default 5000)")
+    draw.add_argument(
+        "--pictured", type=int, default=40, help="keys pictured in the report (default 40)"
+    )
+    draw.add_argument(
+        "--listed", type=int, default=5000, help="keys listed in the report (default 5000)"
+    )
 
 
 COMMANDS = ("demo", "draw")

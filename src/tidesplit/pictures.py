@@ -294,8 +294,15 @@ def _draw_block(
         last.scatter(x[hit], remainder[hit], linewidths=1.4, **ring)
         axes[0].legend(loc="upper right", frameon=False, fontsize=7, handletextpad=0.2)
     if not status.startswith("ok"):
-        axes[1].text(0.5, 0.5, f"not split: {status}", transform=axes[1].transAxes,
-                     ha="center", va="center", color=ESTUARY["trend"])
+        axes[1].text(
+            0.5,
+            0.5,
+            f"not split: {status}",
+            transform=axes[1].transAxes,
+            ha="center",
+            va="center",
+            color=ESTUARY["trend"],
+        )
     for ax in axes[:-1]:
         ax.tick_params(labelbottom=False, length=0)
     last.tick_params(length=2)
@@ -411,10 +418,23 @@ def draw_fleet(
         figure = _figure(8.4, 6.0)
         ax = figure.add_subplot()
         for name, gx, gy, align in REGIONS:
-            ax.text(gx, gy, name, ha=align, va="top" if gy > 0.5 else "bottom",
-                    color=ESTUARY["ink"], fontsize=9, style="italic", zorder=4,
-                    bbox={"boxstyle": "round,pad=0.2", "facecolor": ESTUARY["paper"],
-                          "edgecolor": "none", "alpha": 0.8})
+            ax.text(
+                gx,
+                gy,
+                name,
+                ha=align,
+                va="top" if gy > 0.5 else "bottom",
+                color=ESTUARY["ink"],
+                fontsize=9,
+                style="italic",
+                zorder=4,
+                bbox={
+                    "boxstyle": "round,pad=0.2",
+                    "facecolor": ESTUARY["paper"],
+                    "edgecolor": "none",
+                    "alpha": 0.8,
+                },
+            )
         ax.axvline(GUIDE, color=ESTUARY["rule"], lw=0.8, zorder=0)
         ax.axhline(GUIDE, color=ESTUARY["rule"], lw=0.8, zorder=0)
         sparse = found.copy()
@@ -428,15 +448,28 @@ def draw_fleet(
             ramp = LinearSegmentedColormap.from_list(
                 "estuary_depth", [ESTUARY["density_low"], ESTUARY["density_high"]]
             )
-            mesh = ax.pcolormesh(edges, edges, np.ma.masked_invalid(shade), cmap=ramp,
-                                 norm=LogNorm(vmin=crowded, vmax=max(crowded + 1, counts.max())),
-                                 zorder=2, rasterized=True)
+            mesh = ax.pcolormesh(
+                edges,
+                edges,
+                np.ma.masked_invalid(shade),
+                cmap=ramp,
+                norm=LogNorm(vmin=crowded, vmax=max(crowded + 1, counts.max())),
+                zorder=2,
+                rasterized=True,
+            )
             bar = figure.colorbar(mesh, ax=ax, shrink=0.7, pad=0.01)
             bar.set_label("keys per cell", color=ESTUARY["ink"])
             bar.outline.set_visible(False)
-        ax.scatter(x[sparse], y[sparse], s=14 if sparse.sum() < 500 else 5,
-                   color=ESTUARY["point"], alpha=0.75, linewidths=0, zorder=3,
-                   rasterized=bool(sparse.sum() > 5000))
+        ax.scatter(
+            x[sparse],
+            y[sparse],
+            s=14 if sparse.sum() < 500 else 5,
+            color=ESTUARY["point"],
+            alpha=0.75,
+            linewidths=0,
+            zorder=3,
+            rasterized=bool(sparse.sum() > 5000),
+        )
         named = list(standouts(profiled, label))
         extra = set(label_keys)
         unknown = extra - set(labels)
@@ -445,13 +478,35 @@ def draw_fleet(
         named += [i for i in np.flatnonzero(labels.isin(extra)) if i not in named]
         named = [i for i in named if found[i]]
         for i, rail_y in zip(named, _rail(y[named]), strict=True):
-            ax.annotate(labels[i], (x[i], y[i]), xytext=(1.06, rail_y), textcoords="data",
-                        ha="left", va="center", fontsize=7.5, color=ESTUARY["label"],
-                        zorder=6, annotation_clip=False,
-                        arrowprops={"arrowstyle": "-", "color": ESTUARY["label"], "lw": 0.5,
-                                    "alpha": 0.7, "shrinkA": 1, "shrinkB": 3})
-            ax.scatter([x[i]], [y[i]], s=30, facecolors="none", edgecolors=ESTUARY["label"],
-                       linewidths=1.1, zorder=5)
+            ax.annotate(
+                labels[i],
+                (x[i], y[i]),
+                xytext=(1.06, rail_y),
+                textcoords="data",
+                ha="left",
+                va="center",
+                fontsize=7.5,
+                color=ESTUARY["label"],
+                zorder=6,
+                annotation_clip=False,
+                arrowprops={
+                    "arrowstyle": "-",
+                    "color": ESTUARY["label"],
+                    "lw": 0.5,
+                    "alpha": 0.7,
+                    "shrinkA": 1,
+                    "shrinkB": 3,
+                },
+            )
+            ax.scatter(
+                [x[i]],
+                [y[i]],
+                s=30,
+                facecolors="none",
+                edgecolors=ESTUARY["label"],
+                linewidths=1.1,
+                zorder=5,
+            )
         ax.set_xlim(-0.02, 1.02)
         ax.set_ylim(-0.02, 1.02)
         ax.set_aspect("equal")
@@ -559,8 +614,13 @@ def draw_spans(
     x = _times(by_season[0][time])
     with _style():
         figure = _figure(2.6 * width + 0.6, 8.2)
-        figure.suptitle(f"{pick}: the same series under each span", x=0.01, ha="left",
-                        fontsize=10, fontweight="bold")
+        figure.suptitle(
+            f"{pick}: the same series under each span",
+            x=0.01,
+            ha="left",
+            fontsize=10,
+            fontweight="bold",
+        )
         grid = figure.add_gridspec(4, width, height_ratios=[1.1, 0.8, 1.1, 0.8])
         sections = (
             (by_season, season_spans, "season span", "seasonal", 0),
@@ -571,26 +631,39 @@ def draw_spans(
             for c, (result, span) in enumerate(zip(results, spans, strict=True)):
                 share = {"sharey": upper[0]} if upper else {}
                 ax = figure.add_subplot(grid[top, c], **share)
-                below = figure.add_subplot(grid[top + 1, c], sharex=ax,
-                                           **({"sharey": lower[0]} if lower else {}))
+                below = figure.add_subplot(
+                    grid[top + 1, c], sharex=ax, **({"sharey": lower[0]} if lower else {})
+                )
                 upper.append(ax)
                 lower.append(below)
                 shown = "0 (fixed)" if span == 0 else str(span)
                 if span == defaults[part]:
                     shown += " (default)"
                 spread = np.nanstd(result["remainder"].to_numpy(dtype=float, na_value=np.nan))
-                ax.set_title(f"{title} {shown}", loc="left", fontsize=8.5, fontweight="bold",
-                             color=ESTUARY[part])
-                below.text(0.99, 0.97, f"sd {spread:.3g}", transform=below.transAxes,
-                           ha="right", va="top", fontsize=7, color=ESTUARY["remainder"])
+                ax.set_title(
+                    f"{title} {shown}",
+                    loc="left",
+                    fontsize=8.5,
+                    fontweight="bold",
+                    color=ESTUARY[part],
+                )
+                below.text(
+                    0.99,
+                    0.97,
+                    f"sd {spread:.3g}",
+                    transform=below.transAxes,
+                    ha="right",
+                    va="top",
+                    fontsize=7,
+                    color=ESTUARY["remainder"],
+                )
                 if part == "trend":
                     level = result["trend"] + result["remainder"]
                     ax.plot(x, level, color=ESTUARY["band"], lw=0.8)
                 ax.plot(x, result[part], color=ESTUARY[part], lw=1.0)
                 remainder = result["remainder"].to_numpy(dtype=float, na_value=np.nan)
                 below.fill_between(x, 0, remainder, color=ESTUARY["band"], lw=0, step="mid")
-                below.plot(x, remainder, color=ESTUARY["remainder"], lw=0.5,
-                           drawstyle="steps-mid")
+                below.plot(x, remainder, color=ESTUARY["remainder"], lw=0.5, drawstyle="steps-mid")
                 below.axhline(0, color=ESTUARY["rule"], lw=0.8)
                 ax.tick_params(labelbottom=False, length=0)
                 below.tick_params(length=2, labelsize=6.5)
@@ -642,7 +715,9 @@ def choose_pictured(
     season = profiled["strength_of_season"].to_numpy(dtype=float, na_value=np.nan)
     trend = profiled["strength_of_trend"].to_numpy(dtype=float, na_value=np.nan)
     hits = _unusual_counts(unusual, key).reindex(labels).fillna(0).to_numpy()
-    status = profiled["status"].astype(str) if "status" in profiled else pd.Series(["ok"] * len(labels))
+    status = (
+        profiled["status"].astype(str) if "status" in profiled else pd.Series(["ok"] * len(labels))
+    )
     rankings = [
         [i for i in np.argsort(-hits, kind="stable") if hits[i] > 0],
         list(np.argsort(-np.nan_to_num(season, nan=-1), kind="stable")),
@@ -723,14 +798,16 @@ def write_report(
     entries = []
     for label in order:
         row = profiled.iloc[int(position[label])]
-        entries.append({
-            "key": label,
-            "season": _number(row.get("strength_of_season")),
-            "trend": _number(row.get("strength_of_trend")),
-            "unusual": int(hits.get(label, 0)),
-            "status": str(row.get("status", "ok")),
-            "pictured": label in set(pictured_keys),
-        })
+        entries.append(
+            {
+                "key": label,
+                "season": _number(row.get("strength_of_season")),
+                "trend": _number(row.get("strength_of_trend")),
+                "unusual": int(hits.get(label, 0)),
+                "status": str(row.get("status", "ok")),
+                "pictured": label in set(pictured_keys),
+            }
+        )
     pictures = {}
     for label in pictured_keys:
         figure = draw_parts(parts, key, time, value, show=[label], unusual=unusual)
