@@ -534,7 +534,7 @@ def default_trend_span(period: int, season_span: int = 13) -> int:
     infinite season span (0), 1.5 period.
 
     >>> default_trend_span(12), default_trend_span(52)
-    (23, 89)
+    (21, 89)
     """
     factor = 1.0 if season_span == 0 else 1.0 - 1.5 / season_span
     return _odd_at_least(1.5 * period / factor - 1e-9)
