@@ -332,7 +332,7 @@ def standouts(profiled: pd.DataFrame, count: int, apart: float = 0.06) -> np.nda
     >>> frame = pd.DataFrame({"strength_of_season": [0.5, 0.52, 0.49, 0.99, 0.98],
     ...                       "strength_of_trend": [0.5, 0.48, 0.51, 0.02, 0.02]})
     >>> standouts(frame, 2).tolist()
-    [3, 1]
+    [3, 2]
     """
     x = profiled["strength_of_season"].to_numpy(dtype=float, na_value=np.nan)
     y = profiled["strength_of_trend"].to_numpy(dtype=float, na_value=np.nan)
@@ -408,7 +408,14 @@ def draw_fleet(
     """
     from matplotlib.colors import LinearSegmentedColormap, LogNorm
 
-    labels = key_labels(profiled, key)
+    extra = set(label_keys)
+    asked: list[int] = []
+    if extra:  # labels of a million keys take a while: made only when asked for
+        labels = key_labels(profiled, key)
+        unknown = extra - set(labels)
+        if unknown:
+            raise KeyError(f"no key {', '.join(map(repr, sorted(unknown)))} in the profile")
+        asked = list(np.flatnonzero(labels.isin(extra)))
     x = profiled["strength_of_season"].to_numpy(dtype=float, na_value=np.nan)
     y = profiled["strength_of_trend"].to_numpy(dtype=float, na_value=np.nan)
     found = np.isfinite(x) & np.isfinite(y)
@@ -460,6 +467,15 @@ def draw_fleet(
             bar = figure.colorbar(mesh, ax=ax, shrink=0.7, pad=0.01)
             bar.set_label("keys per cell", color=ESTUARY["ink"])
             bar.outline.set_visible(False)
+            top = max(crowded + 1, counts.max())
+            steps = [
+                v
+                for v in (1, 2, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10_000)
+                if crowded <= v <= top
+            ]
+            ticks = steps or [crowded]
+            bar.set_ticks(ticks, labels=[f"{v:,.0f}" for v in ticks])
+            bar.ax.minorticks_off()
         ax.scatter(
             x[sparse],
             y[sparse],
@@ -471,15 +487,12 @@ def draw_fleet(
             rasterized=bool(sparse.sum() > 5000),
         )
         named = list(standouts(profiled, label))
-        extra = set(label_keys)
-        unknown = extra - set(labels)
-        if unknown:
-            raise KeyError(f"no key {', '.join(map(repr, sorted(unknown)))} in the profile")
-        named += [i for i in np.flatnonzero(labels.isin(extra)) if i not in named]
+        named += [i for i in asked if i not in named]
         named = [i for i in named if found[i]]
-        for i, rail_y in zip(named, _rail(y[named]), strict=True):
+        names = key_labels(profiled.iloc[named], key)
+        for n, (i, rail_y) in enumerate(zip(named, _rail(y[named]), strict=True)):
             ax.annotate(
-                labels[i],
+                names[n],
                 (x[i], y[i]),
                 xytext=(1.06, rail_y),
                 textcoords="data",
@@ -759,9 +772,9 @@ def write_report(
     profiled : ``tidesplit.profile`` of the whole fleet.
     key, time, value : the column names given to the API.
     unusual : ``tidesplit.outliers`` results, counted per key and ringed in the parts.
-    pictured : at most this many keys get a parts picture (about 60 KB each), chosen by
+    pictured : at most this many keys get a parts picture (about 90 KB each), chosen by
         ``choose_pictured`` among the keys present in ``parts``.
-    listed : at most this many keys are listed (about 150 bytes each): the pictured ones
+    listed : at most this many keys are listed (about 100 bytes each): the pictured ones
         first, then the fleet in ``choose_pictured``'s order; the report says how many of
         how many.
     title : the page title.
