@@ -32,7 +32,7 @@ SETTINGS = {"period": 52, "robust": True, "transform": "log"}
 
 @pytest.fixture(scope="module")
 def sales() -> pd.DataFrame:
-    return weekly_units(shops=3, products=4, years=3).to_pandas()
+    return weekly_units(shops=3, products=4, years=5).to_pandas()
 
 
 @pytest.fixture(scope="module")
@@ -435,6 +435,56 @@ def test_report_in_a_real_browser(parts, profiled, unusual, tmp_path):
     for colour in ("trend", "seasonal"):
         rgb = np.array([int(pictures.ESTUARY[colour][i : i + 2], 16) for i in (1, 3, 5)])
         assert (np.abs(pixels - rgb).max(axis=1) <= 6).sum() > 200, colour
+
+
+def test_report_search_and_sort_by_hand(parts, profiled, unusual, tmp_path):
+    """Typing, Enter and clicks through chromium's DevTools protocol, as a person would."""
+    chromium()
+    from browser import Browser
+
+    page = pictures.write_report(
+        tmp_path / "run.html", parts, profiled, KEY, "week", "units", unusual=unusual
+    )
+    rows = "[...document.querySelectorAll('#rows tr')]"
+    with Browser() as browser:
+        browser.open(page.as_uri())
+        browser.wait_for("document.body.dataset.fleetWidth === '840'")
+        assert browser.evaluate(f"{rows}.length") == 12
+        # search: type part of a name, the list narrows; Enter shows the first match
+        browser.click("#finder")
+        browser.type("plum")
+        names = browser.evaluate(f"{rows}.map(r => r.dataset.key)")
+        assert names and all("plum" in n for n in names)
+        expected_names = sorted(k for k in set(pictures.key_labels(profiled, KEY)) if "plum" in k)
+        assert sorted(names) == expected_names
+        browser.press_enter()
+        browser.wait_for(
+            f"document.getElementById('parts-title').textContent === {json.dumps(names[0])}"
+        )
+        browser.wait_for(
+            "document.getElementById('parts-picture').naturalWidth === "
+            f"{round(pictures.PANEL_WIDTH * pictures.DPI)}"
+        )
+        assert browser.evaluate("document.querySelector('tr.picked').dataset.key") == names[0]
+        shot = tmp_path / "found.png"
+        shot.write_bytes(browser.screenshot())
+        assert png_size(shot) == (1400, 1000)
+        # sort: clear the search, click the unusual column, most first, then fewest first
+        browser.evaluate(
+            "document.getElementById('finder').value = ''; "
+            "document.getElementById('finder').dispatchEvent(new Event('input'))"
+        )
+        counts = pictures.key_labels(unusual, KEY).value_counts()
+        browser.click("th[data-field='unusual']")
+        shown = browser.evaluate(f"{rows}.map(r => Number(r.children[3].textContent))")
+        assert shown == sorted(shown, reverse=True) and shown[0] == counts.max()
+        browser.click("th[data-field='unusual']")
+        shown = browser.evaluate(f"{rows}.map(r => Number(r.children[3].textContent))")
+        assert shown == sorted(shown)
+        browser.click("th[data-field='season']")
+        season = browser.evaluate(f"{rows}.map(r => Number(r.children[1].textContent))")
+        assert season == sorted(season, reverse=True)
+        assert season[0] == round(profiled["strength_of_season"].max(), 2)
 
 
 # ---------------------------------------------------------------------------------------
