@@ -157,6 +157,47 @@ def test_parts_refuses_what_it_cannot_draw(parts, tmp_path):
         pictures.draw_parts(many, "series", "t", "v")
 
 
+def test_unsplit_keys_and_filled_gaps_are_shown_not_dropped(tmp_path):
+    frame = many_series(3, points=48)
+    short = pd.DataFrame({"series": "short", "t": np.arange(10), "v": np.arange(10.0)})
+    gappy = frame[frame["series"] == "s00001"].copy()
+    gappy = gappy[~gappy["t"].isin([20, 21])].assign(series="gappy")
+    data = pd.concat([frame, short, gappy], ignore_index=True)
+    parts = tidesplit.split_table(
+        data, "series", "t", "v", period=12, on_error="keep", fill_gaps=True
+    )
+    figure = pictures.draw_parts(parts, "series", "t", "v", show=["short", "gappy"])
+    texts = [t.get_text() for ax in figure.axes for t in ax.texts]
+    status = parts.loc[parts["series"] == "short", "status"].iloc[0]
+    assert f"not split: {status}" in texts
+    # the two missing times are back as inserted rows: a break in the series' line, while
+    # the trend runs through them
+    series_line, trend_line = figure.axes[4].get_lines()[0], figure.axes[5].get_lines()[0]
+    assert len(series_line.get_xdata()) == 48
+    assert np.isnan(series_line.get_ydata()[20:22]).all()
+    assert np.isfinite(trend_line.get_ydata()).all()
+    profiled = tidesplit.profile(data, "series", "t", "v", period=12, on_error="keep")
+    fleet = pictures.draw_fleet(profiled, "series")
+    assert "5 keys, 1 not split (not drawn)" in fleet.axes[0].get_title(loc="left")
+    assert len(fleet.axes[0].collections[0].get_offsets()) == 4
+
+
+def test_settings_out_of_range_are_refused(parts, profiled, tmp_path):
+    with pytest.raises(ValueError, match="columns is at least 1"):
+        pictures.draw_parts(parts, KEY, "week", "units", show="Quayside / oat loaf", columns=0)
+    with pytest.raises(ValueError, match="crowded is at least 1"):
+        pictures.draw_fleet(profiled, KEY, crowded=0)
+    with pytest.raises(ValueError, match="bins is at least 2"):
+        pictures.draw_fleet(profiled, KEY, bins=1)
+    with pytest.raises(KeyError, match="no key 'Nowhere'"):
+        pictures.draw_fleet(profiled, KEY, label_keys=["Nowhere"])
+    with pytest.raises(ValueError, match="every pictured key is listed"):
+        pictures.write_report(
+            tmp_path / "r.html", parts, profiled, KEY, "week", "units", pictured=10, listed=5
+        )
+    assert not (tmp_path / "r.html").exists()
+
+
 def test_same_picture_twice_is_the_same_file(parts, tmp_path):
     for name in ("a.png", "b.png", "a.svg", "b.svg"):
         pictures.draw_parts(
@@ -592,6 +633,7 @@ def test_draw_spans_from_parquet(sources, tmp_path):
         (["--spans", "x.png"], "exactly one --pick"),
         (["--season-spans", "7", "--fleet", "x.png"], "give --spans too"),
         ([], "nothing to draw"),
+        (["--report", "r.html", "--pictured", "9", "--listed", "8"], "--listed is at least"),
         (["--pick", "Nowhere / nothing", "--fleet", "x.png"], "no key 'Nowhere / nothing'"),
     ],
 )

@@ -168,6 +168,11 @@ def run_draw(args: argparse.Namespace) -> None:
         raise SystemExit("--unusual rings points in --parts; give --parts too")
     if (args.season_spans or args.trend_spans) and not args.spans:
         raise SystemExit("--season-spans and --trend-spans shape --spans; give --spans too")
+    if args.report and (args.pictured < 0 or args.listed < max(1, args.pictured + len(args.pick))):
+        raise SystemExit(
+            "--listed is at least --pictured plus the --pick keys: every pictured "
+            "key is listed (and --pictured is at least 0)"
+        )
     if args.spans and len(args.pick) != 1:
         raise SystemExit("--spans draws one key: give exactly one --pick")
     key, time_column, value = args.key, args.time, args.value

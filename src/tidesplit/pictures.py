@@ -234,7 +234,9 @@ def draw_parts(
         )
     panels = 3 + len(seasonal)
     heights = [1.6, 1.0, *([1.0] * len(seasonal)), 0.9]
-    grid_cols = max(1, min(columns, len(chosen)))
+    if columns < 1:
+        raise ValueError(f"columns is at least 1, not {columns}")
+    grid_cols = min(columns, len(chosen))
     grid_rows = math.ceil(len(chosen) / grid_cols)
     block_height = sum(heights) + 0.45
     with _style():
@@ -408,6 +410,15 @@ def draw_fleet(
     """
     from matplotlib.colors import LinearSegmentedColormap, LogNorm
 
+    limits = {
+        "label": (label, 0),
+        "points_up_to": (points_up_to, 0),
+        "crowded": (crowded, 1),
+        "bins": (bins, 2),
+    }
+    for name, (given, least) in limits.items():
+        if given < least:
+            raise ValueError(f"{name} is at least {least}, not {given}")
     extra = set(label_keys)
     asked: list[int] = []
     if extra:  # labels of a million keys take a while: made only when asked for
@@ -797,6 +808,11 @@ def write_report(
     >>> "http" in written.read_text()
     False
     """
+    if pictured < 0 or listed < max(1, pictured):
+        raise ValueError(
+            f"pictured ({pictured}) is at least 0 and listed ({listed}) at least 1 and at "
+            "least pictured: every pictured key is listed"
+        )
     labels = key_labels(profiled, key)
     present = set(key_labels(parts, key))
     in_parts = profiled[labels.isin(present).to_numpy()].reset_index(drop=True)
