@@ -633,6 +633,8 @@ def test_draw_spans_from_parquet(sources, tmp_path):
         (["--spans", "x.png"], "exactly one --pick"),
         (["--season-spans", "7", "--fleet", "x.png"], "give --spans too"),
         ([], "nothing to draw"),
+        (["--pictured", "3", "--fleet", "x.png"], "give --report too"),
+        (["--label", "3", "--parts", "x.png"], "give one of them too"),
         (["--report", "r.html", "--pictured", "9", "--listed", "8"], "--listed is at least"),
         (["--pick", "Nowhere / nothing", "--fleet", "x.png"], "no key 'Nowhere / nothing'"),
     ],

@@ -168,6 +168,13 @@ def run_draw(args: argparse.Namespace) -> None:
         raise SystemExit("--unusual rings points in --parts; give --parts too")
     if (args.season_spans or args.trend_spans) and not args.spans:
         raise SystemExit("--season-spans and --trend-spans shape --spans; give --spans too")
+    if (args.pictured is not None or args.listed is not None) and not args.report:
+        raise SystemExit("--pictured and --listed shape --report; give --report too")
+    if args.label is not None and not (args.fleet or args.report):
+        raise SystemExit("--label names keys in --fleet and --report; give one of them too")
+    label = 8 if args.label is None else args.label
+    args.pictured = 40 if args.pictured is None else args.pictured
+    args.listed = 5000 if args.listed is None else args.listed
     if args.report and (args.pictured < 0 or args.listed < max(1, args.pictured + len(args.pick))):
         raise SystemExit(
             "--listed is at least --pictured plus the --pick keys: every pictured "
@@ -205,7 +212,7 @@ def run_draw(args: argparse.Namespace) -> None:
     if args.fleet or args.report:
         profiled = tidesplit.profile(frame, key, time_column, value, **settings)
     if args.fleet:
-        pictures.draw_fleet(profiled, key, label=args.label, label_keys=args.pick, path=args.fleet)
+        pictures.draw_fleet(profiled, key, label=label, label_keys=args.pick, path=args.fleet)
         print(f"wrote {args.fleet}: {len(profiled):,} keys")
     if args.spans:
         if args.period is None:
@@ -243,6 +250,7 @@ def run_draw(args: argparse.Namespace) -> None:
             unusual=unusual,
             pictured=len(chosen),
             listed=args.listed,
+            label=label,
             title=f"tidesplit: {args.source}",
         )
         print(f"wrote {args.report}: {len(profiled):,} keys, {len(chosen)} pictured")
@@ -287,8 +295,8 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
     draw.add_argument(
         "--label",
         type=int,
-        default=8,
-        help="keys farthest from the fleet's middle to name (default 8)",
+        help="keys farthest from the fleet's middle to name, in --fleet and the report's "
+        "fleet picture (default 8)",
     )
     draw.add_argument("--spans", metavar="FILE", help="write one key under several spans")
     draw.add_argument("--season-spans", type=_spans, help="comma-separated (default 7,13,35,0)")
@@ -298,12 +306,8 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
         help="comma-separated (default a half to four times the default)",
     )
     draw.add_argument("--report", metavar="FILE", help="write a self-contained HTML report")
-    draw.add_argument(
-        "--pictured", type=int, default=40, help="keys pictured in the report (default 40)"
-    )
-    draw.add_argument(
-        "--listed", type=int, default=5000, help="keys listed in the report (default 5000)"
-    )
+    draw.add_argument("--pictured", type=int, help="keys pictured in the report (default 40)")
+    draw.add_argument("--listed", type=int, help="keys listed in the report (default 5000)")
 
 
 COMMANDS = ("demo", "draw")

@@ -770,6 +770,7 @@ def write_report(
     unusual: pd.DataFrame | None = None,
     pictured: int = 40,
     listed: int = 5000,
+    label: int = 8,
     title: str = "tidesplit report",
 ) -> Path:
     """One self-contained HTML file: the fleet picture, a searchable and sortable list of
@@ -788,6 +789,7 @@ def write_report(
     listed : at most this many keys are listed (about 100 bytes each): the pictured ones
         first, then the fleet in ``choose_pictured``'s order; the report says how many of
         how many.
+    label : keys named in the fleet picture (see ``draw_fleet``).
     title : the page title.
 
     Returns
@@ -814,7 +816,8 @@ def write_report(
             "least pictured: every pictured key is listed"
         )
     labels = key_labels(profiled, key)
-    present = set(key_labels(parts, key))
+    part_labels = key_labels(parts, key)
+    present = set(part_labels)
     in_parts = profiled[labels.isin(present).to_numpy()].reset_index(drop=True)
     pictured_keys = choose_pictured(in_parts, key, unusual, pictured) if pictured > 0 else []
     order = pictured_keys + [
@@ -825,23 +828,29 @@ def write_report(
     position = pd.Series(np.arange(len(labels)), index=labels)
     position = position[~position.index.duplicated()]
     entries = []
-    for label in order:
-        row = profiled.iloc[int(position[label])]
+    is_pictured = set(pictured_keys)
+    for name in order:
+        row = profiled.iloc[int(position[name])]
         entries.append(
             {
-                "key": label,
+                "key": name,
                 "season": _number(row.get("strength_of_season")),
                 "trend": _number(row.get("strength_of_trend")),
-                "unusual": int(hits.get(label, 0)),
+                "unusual": int(hits.get(name, 0)),
                 "status": str(row.get("status", "ok")),
-                "pictured": label in set(pictured_keys),
+                "pictured": name in is_pictured,
             }
         )
     pictures = {}
-    for label in pictured_keys:
-        figure = draw_parts(parts, key, time, value, show=[label], unusual=unusual)
-        pictures[label] = _picture_bytes(figure)
-    fleet = _picture_bytes(draw_fleet(profiled, key))
+    marked = unusual
+    if unusual is not None:  # only the pictured keys' rows, labelled once
+        marked = unusual[key_labels(unusual, key).isin(is_pictured).to_numpy()]
+    rows_of = pd.Series(np.arange(len(parts))).groupby(part_labels).indices
+    for name in pictured_keys:  # each key's rows handed over alone: no search per picture
+        rows = parts.iloc[rows_of[name]]
+        figure = draw_parts(rows, key, time, value, show=[name], unusual=marked)
+        pictures[name] = _picture_bytes(figure)
+    fleet = _picture_bytes(draw_fleet(profiled, key, label=label))
     template = resources.files("tidesplit").joinpath("report.html").read_text(encoding="utf-8")
     summary = (
         f"{len(labels):,} keys; {len(order):,} listed; parts pictured for "
