@@ -8,6 +8,8 @@ NUL byte: no port, no network, no extra package.
 from __future__ import annotations
 
 import base64
+import contextlib
+import fcntl
 import json
 import os
 import shutil
@@ -39,13 +41,17 @@ class Browser:
         binary = find_chromium()
         if binary is None:
             raise RuntimeError("chromium is not installed")
-        self._profile = tempfile.TemporaryDirectory()
+        # chromium's helper processes may still be writing as it exits
+        self._profile = tempfile.TemporaryDirectory(ignore_cleanup_errors=True)
         commands_read, self._commands = os.pipe()
         self._replies, replies_write = os.pipe()
 
         def wire() -> None:  # in the child: the protocol's two descriptors
-            os.dup2(commands_read, 3)
-            os.dup2(replies_write, 4)
+            # copied above 9 first, so that neither end is overwritten if it was 3 or 4
+            high_read = fcntl.fcntl(commands_read, fcntl.F_DUPFD, 10)
+            high_write = fcntl.fcntl(replies_write, fcntl.F_DUPFD, 10)
+            os.dup2(high_read, 3)
+            os.dup2(high_write, 4)
 
         self._process = subprocess.Popen(
             [
@@ -78,7 +84,8 @@ class Browser:
         return self
 
     def __exit__(self, *exc: object) -> None:
-        self._process.terminate()
+        with contextlib.suppress(RuntimeError, OSError):  # it may close before it replies
+            self._call("Browser.close", {})
         try:
             self._process.wait(timeout=20)
         except subprocess.TimeoutExpired:

@@ -425,7 +425,7 @@ def chromium() -> str:
 
 def browse(page: Path, fragment: str, *extra: str) -> subprocess.CompletedProcess:
     """Open the page in headless chromium (as CI runs it: root, no network)."""
-    with tempfile.TemporaryDirectory() as profile:
+    with tempfile.TemporaryDirectory(ignore_cleanup_errors=True) as profile:
         flags = [
             "--headless",
             "--no-sandbox",
