@@ -358,7 +358,7 @@ def report_data(page: str) -> dict:
     found = re.search(
         r'<script type="application/json" id="report-data">(.*?)</script>', page, re.DOTALL
     )
-    return json.loads(found.group(1).replace("<\\/", "</"))
+    return json.loads(found.group(1))
 
 
 def test_report_is_one_self_contained_file(parts, profiled, unusual, tmp_path):
@@ -400,6 +400,21 @@ def test_report_stays_small_for_many_keys(tmp_path):
     assert "2,600 keys; 300 listed; parts pictured for 8" in path.read_text()
     # bounded by the pictured and listed counts (about 100 KB a picture), not the fleet
     assert path.stat().st_size < 8 * 150_000 + 300 * 200 + 200_000
+
+
+def test_report_keeps_awkward_key_names_as_text(tmp_path):
+    frame = many_series(2, points=48)
+    frame["series"] = frame["series"].map({"s00000": "</script><b>bold", "s00001": "a & b"})
+    parts = tidesplit.split_table(frame, "series", "t", "v", period=12)
+    profiled = tidesplit.profile(frame, "series", "t", "v", period=12)
+    page = pictures.write_report(
+        tmp_path / "r.html", parts, profiled, "series", "t", "v", title="<i>run</i> @@DATA@@"
+    ).read_text()
+    assert "<b>" not in page and "<i>" not in page
+    assert "<title>&lt;i&gt;run&lt;/i&gt; @@DATA@@</title>" in page  # text, not a placeholder
+    data = report_data(page)
+    assert sorted(k["key"] for k in data["keys"]) == ["</script><b>bold", "a & b"]
+    assert sorted(data["pictures"]) == ["</script><b>bold", "a & b"]
 
 
 def test_choose_pictured_takes_each_ranking_in_turn():

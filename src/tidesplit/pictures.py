@@ -21,6 +21,7 @@ import html
 import io
 import json
 import math
+import re
 from collections.abc import Iterable, Sequence
 from contextlib import contextmanager
 from importlib import resources
@@ -858,12 +859,14 @@ def write_report(
         f"trend, weakest both, not split)."
     )
     payload = json.dumps({"keys": entries, "pictures": pictures}, separators=(",", ":"))
-    page = (
-        template.replace("@@TITLE@@", html.escape(title))
-        .replace("@@SUMMARY@@", html.escape(summary))
-        .replace("@@FLEET@@", fleet)
-        .replace("@@DATA@@", payload.replace("</", "<\\/"))
-    )
+    fields = {
+        "TITLE": html.escape(title),
+        "SUMMARY": html.escape(summary),
+        "FLEET": fleet,
+        "DATA": payload.replace("<", "\\u003c"),  # no tag can close the data block
+    }
+    # one pass, so that no field's text is read as a placeholder
+    page = re.sub(r"@@([A-Z]+)@@", lambda m: fields[m.group(1)], template)
     target = Path(path)
     target.write_text(page, encoding="utf-8")
     return target
