@@ -112,6 +112,14 @@ def test_parts_of_one_key_png_and_svg(parts, unusual, tmp_path):
     root = ET.parse(tmp_path / "one.svg").getroot()
     assert root.tag == "{http://www.w3.org/2000/svg}svg"
     assert root.get("width") == f"{width * 72 / pictures.DPI:g}pt"
+    # the file itself holds the four panels, each with its tag
+    groups = [g.get("id") for g in root.iter("{http://www.w3.org/2000/svg}g")]
+    assert sorted(g for g in groups if g and re.fullmatch(r"axes_\d+", g)) == [
+        "axes_1",
+        "axes_2",
+        "axes_3",
+        "axes_4",
+    ]
 
 
 def test_parts_without_marks_unless_asked(parts):
@@ -130,7 +138,8 @@ def test_several_keys_as_small_multiples(parts, tmp_path):
     width, height = png_size(tmp_path / "five.png")
     assert width == round(2 * pictures.PANEL_WIDTH * pictures.DPI)
     assert height == round(figure.get_size_inches()[1] * pictures.DPI)
-    assert height > 2.5 * width / 2 * 0.5  # three rows of blocks, not one
+    block = 1.6 + 1.0 + 1.0 + 0.9 + 0.45  # inches: four panels and the title of one key
+    assert height == round(3 * block * pictures.DPI)  # five keys, two a row: three rows
 
 
 def test_parts_with_two_periods_have_a_panel_each():
@@ -221,6 +230,12 @@ def test_fleet_of_a_few_keys_is_one_point_each(profiled, tmp_path):
     np.testing.assert_array_equal(points[:, 1], profiled["strength_of_trend"])
     assert len(ax.texts) - len(pictures.REGIONS) == 3  # three keys named
     assert png_size(tmp_path / "fleet.png") == (840, 600)
+    # in the SVG file, the first point collection holds one mark per key
+    pictures.draw_fleet(profiled, KEY, label=3, path=tmp_path / "fleet.svg")
+    svg = "{http://www.w3.org/2000/svg}"
+    root = ET.parse(tmp_path / "fleet.svg").getroot()
+    first = next(g for g in root.iter(f"{svg}g") if g.get("id") == "PathCollection_1")
+    assert len(list(first.iter(f"{svg}use"))) == len(profiled)
 
 
 def test_fleet_of_many_keys_from_a_real_profile(tmp_path):
