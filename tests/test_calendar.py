@@ -80,20 +80,34 @@ def test_yearly_data_has_no_implied_period(con):
     assert (out["status"] == "ok").all()
 
 
-def test_irregular_times_name_two_offending_times(con):
-    times = list(pd.date_range("2020-01-01", periods=30, freq="D").date)
-    times[17] = times[17] + pd.Timedelta(hours=0)  # same day kept
-    stamps = pd.to_datetime(times)
+def test_irregular_times_name_the_time_off_the_step(con):
+    stamps = pd.date_range("2020-01-01", periods=30, freq="D")
     stamps = stamps.where(np.arange(30) != 17, stamps[17] + pd.Timedelta(hours=5))
     con.register("frame", frame_of(stamps, cycle(30, 7)))
     with pytest.raises(
         duckdb.Error,
-        match=r"'k': a.*irregular times: 2020-01-17 00:00:00 to "
-        r"2020-01-18 05:00:00 is not a whole number of steps of 1 day",
+        match=r"'k': a.*irregular times: 2020-01-18 05:00:00 \(beside 2020-01-17 00:00:00 and "
+        r"2020-01-19 00:00:00\) is off the step of 1 day that the other times follow",
     ):
         con.sql("SELECT * FROM tide_split(frame, 'k', 't', 'v')").df()
     kept = con.sql("SELECT * FROM tide_split(frame, 'k', 't', 'v', on_error := 'keep')").df()
     assert len(kept) == 30 and kept["status"].str.startswith("irregular times").all()
+
+
+def test_a_month_moved_off_its_day_is_the_time_named(con):
+    # one monthly date moved to the 15th: the message names it, not two regular neighbours
+    months = pd.date_range("1920-01-01", periods=200, freq="MS")
+    months = months.where(np.arange(200) != 125, pd.Timestamp("1930-06-15"))
+    con.register("frame", frame_of(months.date, cycle(200, 12)))
+    status = con.sql(
+        "SELECT DISTINCT status FROM tide_split(frame, 'k', 't', 'v', on_error := 'keep')"
+    ).fetchall()
+    assert status == [
+        (
+            "irregular times: 1930-06-15 (beside 1930-05-01 and 1930-07-01) is off the monthly "
+            "calendar (the same day of each month) that the other times follow",
+        )
+    ]
 
 
 def test_gaps_are_missing_values_and_fill_gaps_inserts_rows(con):

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import duckdb
+import numpy as np
+import pytest
 
 from tidesplit import cli
 
@@ -25,10 +27,15 @@ def test_demo_prints_a_summary_and_keeps_the_tables(tmp_path, capsys):
     assert closed == (3, 3, 0)
 
 
-def test_demo_finds_the_data_entry_slip(tmp_path):
-    database = tmp_path / "demo.duckdb"
+@pytest.fixture(scope="module")
+def demo_database(tmp_path_factory):
+    database = tmp_path_factory.mktemp("demo") / "demo.duckdb"
     cli.main(["demo", "--database", str(database)])  # the demo as README runs it
-    con = duckdb.connect(str(database))
+    return database
+
+
+def test_demo_finds_the_data_entry_slip(demo_database):
+    con = duckdb.connect(str(demo_database))
     shop, week, weight = con.sql(
         "SELECT shop, week, weight FROM weekly_split WHERE units IS NOT NULL "
         "ORDER BY abs(remainder) DESC LIMIT 1"
@@ -37,3 +44,47 @@ def test_demo_finds_the_data_entry_slip(tmp_path):
 
     assert (shop, week) == (retail_chain.SHOP_NAMES[retail_chain.SLIP_SHOP], retail_chain.SLIP_WEEK)
     assert weight == 0.0
+
+
+@pytest.mark.parametrize(
+    ("source", "split", "key", "time", "value"),
+    [
+        ("weekly_units", "weekly_split", "shop, product", "week", "units"),
+        ("hourly_loads", "hourly_split", "meter", "reading_at", "kwh"),
+    ],
+)
+def test_demo_tables_account_for_every_row(demo_database, source, split, key, time, value):
+    """Each saved table gives back every input row unchanged in its own row, and only
+    the missing times as inserted rows; every series was split and its parts add up."""
+    con = duckdb.connect(str(demo_database))
+    columns = f"{key}, {time}, {value}"
+    inserted = "inserted" if split == "hourly_split" else "false"
+    unchanged = con.sql(
+        f"SELECT count(*) FROM ((SELECT {columns} FROM {source} EXCEPT ALL "
+        f"SELECT {columns} FROM {split} WHERE NOT {inserted}) UNION ALL "
+        f"(SELECT {columns} FROM {split} WHERE NOT {inserted} EXCEPT ALL "
+        f"SELECT {columns} FROM {source}))"
+    ).fetchall()[0][0]
+    assert unchanged == 0
+    # inserted rows are exactly the hours missing between each meter's first and last
+    expected_gaps = (
+        con.sql(
+            f"SELECT coalesce(sum(date_diff('hour', first, last) + 1 - rows), 0) FROM "
+            f"(SELECT min({time}) AS first, max({time}) AS last, count(*) AS rows FROM {source} "
+            f"GROUP BY {key})"
+        ).fetchall()[0][0]
+        if split == "hourly_split"
+        else 0
+    )
+    assert con.sql(f"SELECT count(*) FILTER (WHERE {inserted}) FROM {split}").fetchall() == [
+        (expected_gaps,)
+    ]
+    statuses = con.sql(f"SELECT DISTINCT status FROM {split}").fetchall()
+    assert all(s.startswith("ok") for (s,) in statuses)
+    parts = con.sql(
+        f"SELECT {value}, trend, seasonal, remainder FROM {split} WHERE {value} IS NOT NULL"
+    ).fetchnumpy()
+    scale = np.log if split == "weekly_split" else (lambda v: v)  # weekly is split on logs
+    np.testing.assert_allclose(
+        parts["trend"] + parts["seasonal"] + parts["remainder"], scale(parts[value]), rtol=1e-9
+    )

@@ -79,7 +79,10 @@ def test_select_takes_each_series_its_best_method_on_the_past(rng):
     frame = pd.concat(
         pd.DataFrame({"k": k, "t": t, "v": v}) for k, v in (("line", line), ("walk", walk))
     )
-    result = tidesplit.api._Table(frame, "k", "t", "v").split(12, {}, "raise", True)
+    from tidesplit import answers, api
+
+    table = api._Table(frame, "k", "t", "v", answers.FORECAST)
+    result = table.split(api._settings("forecast", 12, {}), fill_gaps=True)
     ahead = summaries.forecast(result, "integer", None, 12, 0.95, "select")
     assert ahead.method[0] in ("drift", "damped") and ahead.method[1] in ("level", "damped")
     assert ahead.method[0] != ahead.method[1]

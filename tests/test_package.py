@@ -46,7 +46,8 @@ def test_public_functions_have_examples():
 def test_import_is_light():
     code = (
         "import sys, tidesplit; "
-        "print(sorted(m for m in ('duckdb', 'pandas', 'pyarrow', 'matplotlib', 'pyspark') "
+        "print(sorted(m for m in ('duckdb', 'pandas', 'pyarrow', 'numba', 'llvmlite', "
+        "'statsmodels', 'scipy', 'matplotlib', 'pyspark') "
         "if m in sys.modules))"
     )
     loaded = subprocess.run(
@@ -86,9 +87,35 @@ def test_every_command_has_help_and_docs():
         assert f"tidesplit {command}" in text
 
 
-def test_every_argument_is_documented():
-    from tidesplit.duckdb_ext import SPLIT_ARGS
+def test_readme_argument_table_is_the_registry():
+    # README's table is written from the registry (python -m tidesplit.arguments)
+    from tidesplit import arguments
 
-    text = README.read_text()
-    for name in ("period", *(n for n, _ in SPLIT_ARGS)):
-        assert f"`{name}`" in text, f"argument {name} missing from README"
+    assert arguments.markdown_table() in README.read_text()
+
+
+def test_shipped_sql_is_written_from_the_registry():
+    # sql/tidesplit.sql is plain SQL, written by python -m tidesplit.sql_build
+    from tidesplit import sql_build
+
+    shipped = Path(__file__).resolve().parents[1] / "sql" / "tidesplit.sql"
+    assert shipped.read_text() == sql_build.render()
+
+
+def test_python_signatures_are_the_registry():
+    import inspect
+
+    from tidesplit import arguments
+
+    for function, name in (
+        ("split", "split_table"),
+        ("profile", "profile"),
+        ("outliers", "outliers"),
+        ("forecast", "forecast"),
+    ):
+        parameters = inspect.signature(getattr(tidesplit, name)).parameters
+        for argument in arguments.of(function):
+            assert parameters[argument.name].default == argument.default_in(function), (
+                name,
+                argument.name,
+            )

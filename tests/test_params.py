@@ -51,7 +51,7 @@ def test_loop_defaults_depend_on_robustness():
     ("kwargs", "message"),
     [
         ({"period": 1}, "period must be at least 2"),
-        ({"period": 12.5}, "period must be an integer"),
+        ({"period": 12.5}, "period must be a whole number"),
         ({"period": 12, "season_span": 8}, "season_span must be an odd integer"),
         ({"period": 12, "season_span": 1}, "season_span must be an odd integer"),
         ({"period": 12, "trend_span": 20}, "trend_span must be an odd integer"),

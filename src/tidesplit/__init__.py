@@ -1,5 +1,8 @@
 """tidesplit: seasonal-trend decomposition (STL) of every series of a table, in SQL.
 
+``import tidesplit`` is light: numba, DuckDB, pandas and pyarrow load when a function that
+needs them is first used.
+
 >>> import tidesplit
 >>> con = tidesplit.connect()
 >>> sorted(n for n in tidesplit.__all__)[:3]
@@ -8,10 +11,10 @@
 
 from __future__ import annotations
 
+from importlib import import_module
 from typing import TYPE_CHECKING, Any
 
-from .decompose import BatchResult, SplitError, split_batch
-from .params import ParamError, SplitParams
+from .errors import ParamError, SplitError
 
 if TYPE_CHECKING:
     import duckdb
@@ -34,13 +37,23 @@ __all__ = [
 
 __version__ = "0.1.0"
 
+# Where each public name lives; its module is imported on first use.
+_HOMES = {
+    "split": "api",
+    "split_table": "api",
+    "Split": "api",
+    "profile": "api",
+    "outliers": "api",
+    "forecast": "api",
+    "split_batch": "decompose",
+    "BatchResult": "decompose",
+    "SplitParams": "params",
+}
+
 
 def __getattr__(name: str) -> Any:
-    # pandas and duckdb load only when a front that needs them is first used.
-    if name in ("split", "split_table", "Split", "profile", "outliers", "forecast"):
-        from . import api
-
-        return getattr(api, name)
+    if name in _HOMES:
+        return getattr(import_module(f".{_HOMES[name]}", __name__), name)
     raise AttributeError(f"module 'tidesplit' has no attribute {name!r}")
 
 

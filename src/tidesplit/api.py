@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import inspect
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -9,10 +10,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from . import summaries
-from .decompose import OK, segment_counts
+from . import answers, arguments, summaries
+from .arguments import FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
+from .decompose import segment_counts
+from .errors import ParamError
 from .params import SplitParams
 from .rows import RowsResult, split_rows
+from .status import OK, split_mask
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
@@ -46,7 +50,7 @@ class Split:
         return pd.DataFrame(data, index=self.index)
 
 
-def split(values: Any, period: int | None = None, **params: Any) -> Split:
+def split(values: Any, period: int | None = None, **given: Any) -> Split:
     """Split one series into trend, seasonal and remainder by STL.
 
     Parameters
@@ -54,7 +58,7 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     values : array-like of numbers; None or NaN marks a missing value.
     period : points per seasonal cycle (12 for monthly data with a yearly cycle); left
         out, it is estimated from the autocorrelation (see ``calendar.estimate_period``).
-    **params : season_span, trend_span, lowpass_span, the three degrees and jumps, robust,
+    **given : season_span, trend_span, lowpass_span, the three degrees and jumps, robust,
         inner_loops, outer_loops, transform ('none', 'log', 'boxcox') and boxcox_lambda
         (None with 'boxcox': chosen by Guerrero's method); or, instead of ``period``,
         ``periods=[24, 168]`` for several seasonal periods (MSTL) with ``season_spans``
@@ -70,7 +74,11 @@ def split(values: Any, period: int | None = None, **params: Any) -> Split:
     index = values.index if isinstance(values, pd.Series) else None
     observed = pd.to_numeric(pd.Series(np.asarray(values, dtype=object)), errors="raise")
     y = observed.to_numpy(dtype=np.float64, na_value=np.nan)
-    settings = SplitParams.from_kwargs(period=period, **params)
+    function = SPLIT_MULTI if given.get("periods") is not None else SPLIT_LIST
+    settings = arguments.accept(function, given if period is None else {"period": period, **given})
+    if settings["on_error"] != "raise":
+        raise ParamError("split() splits one series and raises; split_table() can keep going")
+    settings = SplitParams.from_settings(settings)
     # split_rows, so that a period left out is estimated from the data (integer positions)
     result = split_rows(
         y, np.array([0, y.size]), settings, label=lambda i: "(the series)", on_error="raise"
@@ -127,15 +135,35 @@ def _codes_to_times(codes: np.ndarray, kind: str, zone: str | None) -> pd.Series
     return stamps
 
 
+def _with_gaps(times: pd.Series, size: int) -> pd.Series:
+    """Times placed at their rows of ``size`` rows (index), missing elsewhere; integer times
+    stay integers (nullable)."""
+    placed = times.reindex(np.arange(size))
+    return placed.astype("Int64") if pd.api.types.is_integer_dtype(times) else placed
+
+
 class _Table:
     """A keyed table sorted into series: the common first step of the table functions."""
 
-    def __init__(self, data: Any, key: str | Sequence[str], time: str, value: str) -> None:
+    def __init__(
+        self,
+        data: Any,
+        key: str | Sequence[str],
+        time: str,
+        value: str,
+        answer: tuple[str, ...],
+    ) -> None:
         keys = [key] if isinstance(key, str) else list(key)
         frame = data if isinstance(data, pd.DataFrame) else data.to_pandas()
         missing = [c for c in [*keys, time, value] if c not in frame.columns]
         if missing:
-            raise KeyError(f"no column(s) named {', '.join(missing)}")
+            raise KeyError(
+                f"no column(s) named {', '.join(missing)}; the table has "
+                f"{', '.join(map(str, frame.columns))}"
+            )
+        clashes = answers.name_clashes(keys, time, value, answer)
+        if clashes:
+            raise ParamError("; ".join(clashes))
         frame = frame[[*keys, time, value]].copy()
         codes, time_nulls, self.kind, self.zone = _time_codes(frame[time])
         frame["__code"] = codes
@@ -158,13 +186,12 @@ class _Table:
         row = self.first_rows.iloc[i]
         return "{" + ", ".join(f"{k!r}: {row[k]!r}" for k in self.keys) + "}"
 
-    def split(
-        self, period: int | None, params: dict[str, Any], on_error: str, fill_gaps: bool
-    ) -> RowsResult:
+    def split(self, settings: dict[str, Any], fill_gaps: bool) -> RowsResult:
+        on_error = settings["on_error"]
         return split_rows(
             self.values,
             self.offsets,
-            SplitParams.from_kwargs(period=period, **params),
+            SplitParams.from_settings(settings),
             codes=self.frame["__code"].to_numpy(),
             kind=self.kind,
             time_zone=self.zone,
@@ -177,6 +204,22 @@ class _Table:
     def key_frame(self, series_of_rows: np.ndarray) -> pd.DataFrame:
         """The key columns repeated for the given series indices."""
         return self.first_rows.iloc[series_of_rows].reset_index(drop=True)
+
+
+def _settings(function: str, period: int | None, given: dict[str, Any]) -> dict[str, Any]:
+    """Every argument of ``function``, checked, defaults filled in (``arguments.accept``)."""
+    return arguments.accept(function, given if period is None else {"period": period, **given})
+
+
+def _signed(function: Any, *functions: str) -> Any:
+    """Give a public function the signature its arguments make in the registry."""
+    lead = [
+        inspect.Parameter(name, inspect.Parameter.POSITIONAL_OR_KEYWORD)
+        for name in ("data", "key", "time", "value")
+    ]
+    lead.append(inspect.Parameter("period", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None))
+    function.__signature__ = arguments.signature(functions, lead)
+    return function
 
 
 def _part_columns(
@@ -205,10 +248,7 @@ def split_table(
     time: str,
     value: str,
     period: int | None = None,
-    *,
-    fill_gaps: bool = False,
-    on_error: str = "raise",
-    **params: Any,
+    **given: Any,
 ) -> pd.DataFrame:
     """Split every series of a keyed table (pandas DataFrame or Arrow table).
 
@@ -229,7 +269,9 @@ def split_table(
     >>> split_table(frame, "shop", "t", "units", period=2).shape
     (16, 11)
     """
-    table = _Table(data, key, time, value)
+    multi = given.get("periods") is not None
+    settings = _settings(SPLIT_MULTI if multi else SPLIT, period, given)
+    table = _Table(data, key, time, value, answers.SPLIT_MULTI if multi else answers.SPLIT)
     frame, keys, starts, first_rows, kind, zone = (
         table.frame,
         table.keys,
@@ -238,7 +280,7 @@ def split_table(
         table.kind,
         table.zone,
     )
-    result = table.split(period, params, on_error, fill_gaps)
+    result = table.split(settings, fill_gaps=settings["fill_gaps"])
     lengths = np.diff(result.offsets)
     if result.source is not None:
         source = result.source
@@ -246,7 +288,12 @@ def split_table(
         out = taken[keys].copy()
         series_of = np.repeat(np.arange(starts.size), lengths)
         out[keys] = first_rows.iloc[series_of].to_numpy()
-        out[time] = _codes_to_times(result.codes, kind, zone).to_numpy()
+        # input rows keep their own time (a series left unsplit keeps even a NULL or a
+        # repeated one); inserted rows take the grid's
+        grid_times = _codes_to_times(result.codes, kind, zone)
+        out[time] = grid_times.where(source < 0, taken[time])
+        if kind == "integer":
+            out[time] = out[time].astype("Int64")
         out[value] = np.where(
             source >= 0, taken[value].to_numpy(dtype=float, na_value=np.nan), np.nan
         )
@@ -275,9 +322,7 @@ def profile(
     time: str,
     value: str,
     period: int | None = None,
-    *,
-    on_error: str = "raise",
-    **params: Any,
+    **given: Any,
 ) -> pd.DataFrame:
     """One row per series: points, missing points, step, period(s), lambda, trend and
     seasonal strength (Wang, Smith & Hyndman 2006), peak and trough of the cycle, seasonal
@@ -290,8 +335,9 @@ def profile(
     >>> float(profile(frame, "k", "t", "v", period=12)["strength_of_season"].iloc[0].round(2))
     1.0
     """
-    table = _Table(data, key, time, value)
-    result = table.split(period, params, on_error, fill_gaps=True)
+    settings = _settings(PROFILE, period, given)
+    table = _Table(data, key, time, value, answers.PROFILE)
+    result = table.split(settings, fill_gaps=True)
     found = summaries.profile(result, table.kind)
     out = table.key_frame(np.arange(table.starts.size))
     out["points"] = found.points
@@ -318,14 +364,7 @@ def outliers(
     time: str,
     value: str,
     period: int | None = None,
-    *,
-    method: str = "stepwise",
-    threshold: float | None = None,
-    significance: float | None = None,
-    all_rows: bool = False,
-    robust: bool = True,
-    on_error: str = "raise",
-    **params: Any,
+    **given: Any,
 ) -> pd.DataFrame:
     """Rows whose remainder is too far out to be noise, with a score, the direction and the
     expected value (trend + seasonal, on the original scale); all rows with ``all_rows``.
@@ -349,13 +388,16 @@ def outliers(
     >>> row["direction"], float(row["expected"].round(1))
     ('high', 10.0)
     """
-    table = _Table(data, key, time, value)
-    params = {"robust": robust, **params}
-    if robust:  # one robustness pass (see summaries.unusual_points)
-        params = {"inner_loops": 2, "outer_loops": 1, **params}
-    result = table.split(period, params, on_error, fill_gaps=True)
-    settings = SplitParams.from_kwargs(period=period, **params)
-    found = summaries.unusual_points(result, method, threshold, significance, settings)
+    settings = _settings(OUTLIERS, period, given)
+    table = _Table(data, key, time, value, answers.OUTLIERS)
+    result = table.split(settings, fill_gaps=True)
+    found = summaries.unusual_points(
+        result,
+        settings["method"],
+        settings["threshold"],
+        settings["significance"],
+        SplitParams.from_settings(settings),
+    )
     rows = result.source >= 0
     out = table.frame[[*table.keys, table.time, table.value]].copy()
     out["expected"] = found.expected[rows]
@@ -365,9 +407,9 @@ def outliers(
     out["weight"] = result.weight[rows]
     out["is_outlier"] = found.flagged[rows]
     out["status"] = np.repeat(np.array(result.status, dtype=object), np.diff(table.offsets))
-    if all_rows:
+    if settings["all_rows"]:
         return out
-    keep = out["is_outlier"] | ~out["status"].str.startswith(OK)
+    keep = out["is_outlier"] | ~split_mask(out["status"].tolist())
     return out[keep].reset_index(drop=True)
 
 
@@ -377,18 +419,15 @@ def forecast(
     time: str,
     value: str,
     period: int | None = None,
-    *,
-    horizon: int = 12,
-    level: float = 0.95,
-    method: str = "damped",
-    on_error: str = "raise",
-    **params: Any,
+    **given: Any,
 ) -> pd.DataFrame:
     """Future rows per series up to ``horizon`` steps, with prediction intervals at ``level``.
 
     The decomposition forecast: the seasonal part carried forward from the last cycle, the
-    seasonally adjusted series forecast by a damped trend (``method='damped'``) or drift
-    (``'drift'``), added back and inverse-transformed.
+    seasonally adjusted series forecast by a damped trend (``method='damped'``), a random
+    walk with drift (``'drift'``) or without (``'level'``), or per series whichever did best
+    on its own past (``'select'``), added back and inverse-transformed; intervals
+    calibrated on the series' own past (see ``summaries.forecast``).
 
     Examples
     --------
@@ -397,17 +436,44 @@ def forecast(
     >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
     [48, 49, 50]
     """
-    table = _Table(data, key, time, value)
-    result = table.split(period, params, on_error, fill_gaps=True)
-    settings = SplitParams.from_kwargs(period=period, **params)
-    ahead = summaries.forecast(
-        result, table.kind, table.zone, horizon, level, method, params=settings
+    settings = _settings(FORECAST, period, given)
+    horizon, level, method = summaries.forecast_arguments(
+        settings["horizon"], settings["level"], settings["method"]
     )
-    ok = np.flatnonzero([s.startswith(OK) for s in result.status])
-    out = table.key_frame(np.repeat(ok, horizon))
-    out[table.time] = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
-    out["step"] = ahead.step
-    out["forecast"] = ahead.point
-    out["lower"] = ahead.lower
-    out["upper"] = ahead.upper
+    on_error = settings["on_error"]
+    table = _Table(data, key, time, value, answers.FORECAST)
+    result = table.split(settings, fill_gaps=True)
+    ahead = summaries.forecast(
+        result,
+        table.kind,
+        table.zone,
+        horizon,
+        level,
+        method,
+        params=SplitParams.from_settings(settings),
+    )
+    ok = summaries.settle_forecast(result, ahead, on_error, table.label)
+    # horizon rows per series; one row beside the status of a series left unsplit
+    counts = np.where(ok, horizon, 1)
+    present = np.repeat(ok, counts)
+    out = table.key_frame(np.repeat(np.arange(ok.size), counts))
+    times = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
+    out[table.time] = _with_gaps(pd.Series(times, index=np.flatnonzero(present)), present.size)
+    for name, values in (
+        ("step", ahead.step),
+        ("forecast", ahead.point),
+        ("lower", ahead.lower),
+        ("upper", ahead.upper),
+    ):
+        column = np.full(present.size, np.nan)
+        column[present] = values
+        out[name] = column
+    out["step"] = out["step"].astype("Int64")
+    out["status"] = np.repeat(np.array(result.status, dtype=object), counts)
     return out
+
+
+_signed(split_table, SPLIT, SPLIT_MULTI)
+_signed(profile, PROFILE)
+_signed(outliers, OUTLIERS)
+_signed(forecast, FORECAST)

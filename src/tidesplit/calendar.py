@@ -23,8 +23,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import memory
-from .decompose import OK
 from .kernel import grid
+from .status import OK
 
 US_PER_MINUTE = 60_000_000
 US_PER_HOUR = 60 * US_PER_MINUTE
@@ -187,26 +187,7 @@ def regularise(
         if problem[s] == grid.REPEATED:
             status[s] = f"duplicate time {describe(int(codes[where[s]]), kind)}"
         elif problem[s] == grid.UNEVEN:
-            # name the first pair that breaks the most common step, which is what a
-            # person reads as "the" step of the series
-            own = (
-                np.diff(measured[lo:hi])
-                if unit[s] != UNIT_MONTH
-                else np.diff(
-                    measured[lo:hi]
-                    .astype("datetime64[us]")
-                    .astype("datetime64[M]")
-                    .astype(np.int64)
-                )
-            )
-            steps, counts = np.unique(own[own > 0], return_counts=True)
-            usual = int(steps[np.argmax(counts)])
-            at = lo + 1 + int(np.flatnonzero(own % usual != 0)[0])
-            status[s] = (
-                f"irregular times: {describe(int(codes[at - 1]), kind)} to "
-                f"{describe(int(codes[at]), kind)} is not a whole number of steps "
-                f"of {describe_step(int(unit[s]), usual)}"
-            )
+            status[s] = _irregular_reason(codes[lo:hi], measured[lo:hi], kind)
         else:
             status[s] = (
                 f"too sparse: {lengths[s]} times spread over {span[s]} steps of "
@@ -219,6 +200,48 @@ def regularise(
         slots[rows] = (np.arange(codes.size) - np.repeat(offsets[:-1], lengths))[rows]
     grid_offsets = np.concatenate(([0], np.cumsum(span))).astype(np.int64)
     return Grid(unit, step, slots, grid_offsets, first, anchor, local)
+
+
+def _irregular_reason(codes: np.ndarray, measured: np.ndarray, kind: str) -> str:
+    """Name the time that breaks a series' step: the first time off the calendar that most
+    of the other times follow (the same day of each month, or a whole number of the most
+    common step from the first time).
+
+    >>> times = np.array([0, 1, 2, 3, 5, 6]) * US_PER_DAY + np.r_[0, 0, 0, 0, US_PER_HOUR, 0]
+    >>> _irregular_reason(times, times, "timestamp")
+    'irregular times: 1970-01-06 01:00:00 (beside 1970-01-04 00:00:00 and 1970-01-07 00:00:00) \
+is off the step of 1 day that the other times follow'
+    """
+    n = measured.size
+    odd = -1
+    rule = ""
+    if kind != "integer":
+        # times that mostly share a place in their month (the 1st, the 15th at noon, or the
+        # month's end) follow a monthly calendar: the odd one out is off that calendar
+        months = measured.astype("datetime64[us]").astype("datetime64[M]")
+        start = months.astype("datetime64[us]").astype(np.int64)
+        following = (months + 1).astype("datetime64[us]").astype(np.int64)
+        month_end = measured // US_PER_DAY == following // US_PER_DAY - 1
+        place = np.where(month_end, -1, measured - start)
+        places, counts = np.unique(place, return_counts=True)
+        usual_place = places[np.argmax(counts)]
+        if counts.max() * 2 > n and (np.diff(start[place == usual_place]) > 0).all():
+            odd = int(np.flatnonzero(place != usual_place)[0])
+            rule = "the monthly calendar (the same day of each month)"
+    if odd < 0:
+        gaps = np.diff(measured)
+        steps, counts = np.unique(gaps[gaps > 0], return_counts=True)
+        usual = int(steps[np.argmax(counts)]) if steps.size else 1
+        unit = UNIT_NUMBER if kind == "integer" else UNIT_MICROSECOND
+        residue = (measured - measured[0]) % usual
+        places, counts = np.unique(residue, return_counts=True)
+        off = np.flatnonzero(residue != places[np.argmax(counts)])
+        odd = int(off[0]) if off.size else n - 1
+        rule = f"the step of {describe_step(unit, usual)}"
+    shown = f"time {codes[odd]}" if kind == "integer" else describe(int(codes[odd]), kind)
+    around = [describe(int(codes[i]), kind) for i in (odd - 1, odd + 1) if 0 <= i < n]
+    beside = f" (beside {' and '.join(around)})" if around else ""
+    return f"irregular times: {shown}{beside} is off {rule} that the other times follow"
 
 
 def describe_step(unit: int, step: int) -> str:
@@ -302,6 +325,44 @@ def future_codes(
     return _codes_at(grid, np.repeat(series, horizon), position, kind, time_zone)
 
 
+def point_text(
+    grid: Grid | None, series: int, position: int, kind: str, time_zone: str | None
+) -> str:
+    """The time of grid point ``position`` of a series, as a person reads it ("2020-03-01",
+    "time 7"); ``position 7`` when the series has no times.
+
+    >>> status = ["ok"]
+    >>> grid = regularise(np.array([10, 12, 16]), np.array([0, 3]), "integer", status)
+    >>> point_text(grid, 0, 2, "integer", None), point_text(None, 0, 2, "integer", None)
+    ('time 14', 'position 2')
+    """
+    if grid is None:
+        return f"position {position}"
+    code = int(_codes_at(grid, np.array([series]), np.array([position]), kind, time_zone)[0])
+    return f"time {code}" if kind == "integer" else describe(code, kind)
+
+
+def phase_text(
+    grid: Grid | None, series: int, phase: int, period: int, kind: str, time_zone: str | None
+) -> str:
+    """A cycle position as a person reads it: its name where the calendar gives one, its
+    number (counted from 0) and the first time it falls on.
+
+    >>> status = ["ok"]
+    >>> months = np.array(["2020-01-01", "2020-02-01"], dtype="datetime64[us]").astype(np.int64)
+    >>> grid = regularise(months, np.array([0, 2]), "date", status)
+    >>> phase_text(grid, 0, 1, 12, "date", None)
+    'February (cycle position 1 of 12, first at 2020-02-01)'
+    """
+    where = f"cycle position {phase} of {period}"
+    if grid is None:
+        return where
+    code = int(_codes_at(grid, np.array([series]), np.array([phase]), kind, time_zone)[0])
+    first = f"time {code}" if kind == "integer" else describe(code, kind)
+    name = cycle_label(code, int(grid.unit[series]), int(grid.step[series]), period, kind)
+    return f"{name} ({where}, first at {first})" if name else f"{where} (first at {first})"
+
+
 def _codes_at(
     grid: Grid, series: np.ndarray, position: np.ndarray, kind: str, time_zone: str | None
 ) -> np.ndarray:
@@ -355,3 +416,47 @@ def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
         if acf[k] > threshold and acf[k] >= acf[k - 1] and acf[k] >= acf[k + 1]:
             return k
     return 0
+
+
+_MONTHS = (
+    "January",
+    "February",
+    "March",
+    "April",
+    "May",
+    "June",
+    "July",
+    "August",
+    "September",
+    "October",
+    "November",
+    "December",
+)
+_WEEKDAYS = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
+
+
+def cycle_label(code: int, unit: int, step: int, period: int, kind: str) -> str | None:
+    """A readable name for the cycle position of a time: month, weekday, hour or quarter.
+
+    >>> cycle_label(0, UNIT_MONTH, 1, 12, "date")
+    'January'
+    >>> day = US_PER_DAY
+    >>> cycle_label(4 * day, UNIT_MICROSECOND, day, 7, "date")
+    'Monday'
+    """
+    if kind == "integer":
+        return None
+    stamp = np.datetime64(int(code), "us")
+    if unit == UNIT_MONTH and step == 1 and period == 12:
+        return _MONTHS[int(stamp.astype("datetime64[M]").astype(np.int64) % 12)]
+    if unit == UNIT_MONTH and step == 3 and period == 4:
+        return f"Q{int(stamp.astype('datetime64[M]').astype(np.int64) % 12) // 3 + 1}"
+    if unit == UNIT_MICROSECOND and step == US_PER_DAY and period == 7:
+        return _WEEKDAYS[(int(stamp.astype("datetime64[D]").astype(np.int64)) + 3) % 7]
+    if unit == UNIT_MICROSECOND and step == US_PER_WEEK and period == 52:
+        day = stamp.astype("datetime64[D]").astype(object)
+        return f"week {day.isocalendar()[1]}"
+    if unit == UNIT_MICROSECOND and period * step == US_PER_DAY:
+        minutes = int(code // US_PER_MINUTE) % (24 * 60)
+        return f"{minutes // 60:02d}:{minutes % 60:02d}"
+    return None

@@ -126,7 +126,191 @@ def _hourly_demo(con: object) -> None:
     )
 
 
-COMMANDS = ("demo",)
+def _quoted(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
+
+
+def _read_source(source: str, table: str | None, columns: Sequence[str]) -> object:
+    """The key, time and value columns of a Parquet file (or glob) or a DuckDB table."""
+    import duckdb
+
+    wanted = ", ".join(_quoted(c) for c in columns)
+    if source.lower().endswith(".parquet") or "*" in source:
+        if table is not None:
+            raise SystemExit("--table names a table of a DuckDB file; a Parquet source has none")
+        con = duckdb.connect()
+        return con.sql(f"SELECT {wanted} FROM read_parquet(?)", params=[source]).df()
+    if table is None:
+        raise SystemExit(f"{source}: give --table, the table (or view) to read from this file")
+    con = duckdb.connect(source, read_only=True)
+    try:
+        return con.sql(f"SELECT {wanted} FROM {_quoted(table)}").df()
+    finally:
+        con.close()
+
+
+def _spans(text: str) -> list[int]:
+    try:
+        return [int(part) for part in text.split(",") if part.strip()]
+    except ValueError as error:
+        raise argparse.ArgumentTypeError(f"spans are whole numbers: {text!r}") from error
+
+
+def run_draw(args: argparse.Namespace) -> None:
+    """Write the pictures asked for from a DuckDB table or a Parquet source."""
+    import tidesplit
+    from tidesplit import pictures
+
+    outputs = {"parts": args.parts, "fleet": args.fleet, "spans": args.spans, "report": args.report}
+    if not any(outputs.values()):
+        raise SystemExit("nothing to draw: give --parts, --fleet, --spans and/or --report")
+    if args.unusual and not args.parts:
+        raise SystemExit("--unusual rings points in --parts; give --parts too")
+    if (args.season_spans or args.trend_spans) and not args.spans:
+        raise SystemExit("--season-spans and --trend-spans shape --spans; give --spans too")
+    if (args.pictured is not None or args.listed is not None) and not args.report:
+        raise SystemExit("--pictured and --listed shape --report; give --report too")
+    if args.label is not None and not (args.fleet or args.report):
+        raise SystemExit("--label names keys in --fleet and --report; give one of them too")
+    label = 8 if args.label is None else args.label
+    args.pictured = 40 if args.pictured is None else args.pictured
+    args.listed = 5000 if args.listed is None else args.listed
+    if args.report and (args.pictured < 0 or args.listed < max(1, args.pictured + len(args.pick))):
+        raise SystemExit(
+            "--listed is at least --pictured plus the --pick keys: every pictured "
+            "key is listed (and --pictured is at least 0)"
+        )
+    if args.spans and len(args.pick) != 1:
+        raise SystemExit("--spans draws one key: give exactly one --pick")
+    key, time_column, value = args.key, args.time, args.value
+    frame = _read_source(args.source, args.table, [*key, time_column, value])
+    settings = {"period": args.period, "robust": args.robust, "transform": args.transform}
+    labels = pictures.key_labels(frame, key)
+    unknown = sorted(set(args.pick) - set(labels))
+    if unknown:
+        raise SystemExit(f"no key {', '.join(map(repr, unknown))} in {args.source}")
+
+    def rows_of(chosen: Sequence[str]) -> object:
+        return frame[labels.isin(set(chosen)).to_numpy()].reset_index(drop=True)
+
+    def unusual_of(data: object) -> object:
+        # robust whatever --robust says: a plain fit bends towards the points it should find
+        return tidesplit.outliers(
+            data, key, time_column, value, period=args.period, transform=args.transform
+        )
+
+    if args.parts:
+        chosen = args.pick or list(dict.fromkeys(labels))
+        some = rows_of(chosen)
+        parts = tidesplit.split_table(some, key, time_column, value, **settings)
+        marks = unusual_of(some) if args.unusual else None
+        pictures.draw_parts(
+            parts, key, time_column, value, show=chosen, unusual=marks, path=args.parts
+        )
+        print(f"wrote {args.parts}: the parts of {len(chosen)} key(s)")
+    profiled = None
+    if args.fleet or args.report:
+        profiled = tidesplit.profile(frame, key, time_column, value, **settings)
+    if args.fleet:
+        pictures.draw_fleet(profiled, key, label=label, label_keys=args.pick, path=args.fleet)
+        print(f"wrote {args.fleet}: {len(profiled):,} keys")
+    if args.spans:
+        if args.period is None:
+            raise SystemExit("--spans needs --period")
+        extra = {}
+        if args.season_spans:
+            extra["season_spans"] = args.season_spans
+        if args.trend_spans:
+            extra["trend_spans"] = args.trend_spans
+        pictures.draw_spans(
+            rows_of(args.pick),
+            key,
+            time_column,
+            value,
+            pick=args.pick[0],
+            period=args.period,
+            robust=args.robust,
+            transform=args.transform,
+            path=args.spans,
+            **extra,
+        )
+        print(f"wrote {args.spans}: {args.pick[0]} under each span")
+    if args.report:
+        unusual = unusual_of(frame)
+        chosen = pictures.choose_pictured(profiled, key, unusual, args.pictured)
+        chosen += [k for k in args.pick if k not in chosen]
+        parts = tidesplit.split_table(rows_of(chosen), key, time_column, value, **settings)
+        pictures.write_report(
+            args.report,
+            parts,
+            profiled,
+            key,
+            time_column,
+            value,
+            unusual=unusual,
+            pictured=len(chosen),
+            listed=args.listed,
+            label=label,
+            title=f"tidesplit: {args.source}",
+        )
+        print(f"wrote {args.report}: {len(profiled):,} keys, {len(chosen)} pictured")
+
+
+def _add_draw(commands: argparse._SubParsersAction) -> None:
+    draw = commands.add_parser(
+        "draw",
+        help="draw pictures of the split of a DuckDB table or a Parquet source",
+        description="Split the series of a table and write pictures: one or more keys and "
+        "their parts (--parts), the whole fleet by trend and seasonal strength (--fleet), one "
+        "key under several spans (--spans), and a self-contained HTML report (--report). "
+        "Pictures are PNG or SVG by the file name. Keys are named by their values joined "
+        "by ' / ' (for example 'Quayside / sun cream').",
+    )
+    draw.add_argument("source", help="a DuckDB database file (with --table) or a Parquet file")
+    draw.add_argument("--table", help="the table or view to read from a DuckDB file")
+    draw.add_argument(
+        "--key", action="append", required=True, help="a key column; repeat for several"
+    )
+    draw.add_argument("--time", required=True, help="the time column")
+    draw.add_argument("--value", required=True, help="the value column")
+    draw.add_argument("--period", type=int, help="points per cycle (default: from the step)")
+    draw.add_argument("--robust", action="store_true", help="robust split")
+    draw.add_argument(
+        "--transform",
+        default="none",
+        choices=("none", "log", "boxcox"),
+        help="transform before splitting (default none)",
+    )
+    draw.add_argument(
+        "--pick",
+        action="append",
+        default=[],
+        help="a key to draw (--parts, --spans) or to name (--fleet, --report); repeat for several",
+    )
+    draw.add_argument("--parts", metavar="FILE", help="write the parts of the picked keys")
+    draw.add_argument(
+        "--unusual", action="store_true", help="ring unusual points (robust outliers) in --parts"
+    )
+    draw.add_argument("--fleet", metavar="FILE", help="write the fleet picture")
+    draw.add_argument(
+        "--label",
+        type=int,
+        help="keys farthest from the fleet's middle to name, in --fleet and the report's "
+        "fleet picture (default 8)",
+    )
+    draw.add_argument("--spans", metavar="FILE", help="write one key under several spans")
+    draw.add_argument("--season-spans", type=_spans, help="comma-separated (default 7,13,35,0)")
+    draw.add_argument(
+        "--trend-spans",
+        type=_spans,
+        help="comma-separated (default a half to four times the default)",
+    )
+    draw.add_argument("--report", metavar="FILE", help="write a self-contained HTML report")
+    draw.add_argument("--pictured", type=int, help="keys pictured in the report (default 40)")
+    draw.add_argument("--listed", type=int, help="keys listed in the report (default 5000)")
+
+
+COMMANDS = ("demo", "draw")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -145,9 +329,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     demo.add_argument("--shops", type=int, default=12, help="number of shops (default 12)")
     demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
     demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")
+    _add_draw(commands)
     args = parser.parse_args(argv)
     if args.command == "demo":
         run_demo(args.database, args.shops, args.products, args.years)
+    elif args.command == "draw":
+        run_draw(args)
     return 0
 
 

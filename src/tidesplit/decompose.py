@@ -12,16 +12,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import memory, transform
+from .errors import ParamError, SplitError
 from .kernel import checks, linear, threads
+from .kernel.layout import COL_ACTIVE, COL_OUTER, COL_PERIOD, N_SETTINGS
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
-from .kernel.stl import COL_ACTIVE, COL_PERIOD, N_SETTINGS, stl_batch_parallel, stl_batch_serial
-from .params import ON_ERROR, ParamError, ResolvedParams, SplitParams
-
-OK = "ok"
-
-
-class SplitError(ValueError):
-    """A series that cannot be split; the message names the series and the reason."""
+from .kernel.stl import stl_batch_parallel, stl_batch_serial
+from .params import ON_ERROR, ResolvedParams, SplitParams
+from .status import OK, split_mask, with_note
 
 
 @dataclass
@@ -56,6 +53,25 @@ def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     return running[offsets[1:]] - running[offsets[:-1]]
 
 
+# Finite values beyond this magnitude are refused: sums of squares in the fits and in the
+# answers (variances, forecast errors) could overflow, which would give NaN with status ok.
+LARGEST_MAGNITUDE = 1e150
+
+
+def _point_text(describe_point: Callable[[int, int], str] | None, s: int, i: int) -> str:
+    return describe_point(s, i) if describe_point else f"position {i}"
+
+
+def _phase_text(
+    describe_phase: Callable[[int, int, int], str] | None, s: int, phase: int, period: int
+) -> str:
+    return (
+        describe_phase(s, phase, period)
+        if describe_phase
+        else (f"cycle position {phase} of {period}")
+    )
+
+
 def _check_series(
     values: np.ndarray,
     offsets: np.ndarray,
@@ -63,10 +79,10 @@ def _check_series(
     needs_positive: np.ndarray,
     transform_names: dict[int, str],
     status: list[str],
-    times: np.ndarray | None,
-    describe_time: Callable[[int], str] | None,
+    describe_point: Callable[[int, int], str] | None,
+    describe_phase: Callable[[int, int, int], str] | None,
 ) -> None:
-    """Write a reason into ``status`` for each series that cannot be split.
+    """Write a reason into ``status`` for each series that cannot be split with ``periods``.
 
     One compiled pass finds the failing series; only those are visited here, to word it.
     """
@@ -74,26 +90,135 @@ def _check_series(
     todo = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
     code = np.empty(count, dtype=np.int64)
     where = np.empty(count, dtype=np.int64)
-    time_codes = np.empty(0, dtype=np.int64) if times is None else times
-    checks.scan_batch(values, offsets, time_codes, periods, needs_positive, todo, code, where)
+    checks.scan_batch(
+        values, offsets, periods, LARGEST_MAGNITUDE, needs_positive, todo, code, where
+    )
     for s in np.flatnonzero(code != checks.FINE):
         lo, n, period, at = int(offsets[s]), int(offsets[s + 1] - offsets[s]), periods[s], where[s]
-        if code[s] == checks.REPEATED_TIME:
-            shown = describe_time(int(times[lo + at])) if describe_time else str(times[lo + at])
-            status[s] = f"duplicate time {shown}"
-        elif code[s] == checks.TOO_SHORT:
+        if code[s] == checks.TOO_SHORT:
             status[s] = f"has {n} points; at least two periods ({2 * period}) are needed"
         elif code[s] == checks.INFINITE:
-            status[s] = f"infinite value at position {at}"
+            status[s] = f"infinite value at {_point_text(describe_point, s, at)}"
+        elif code[s] == checks.TOO_LARGE:
+            status[s] = (
+                f"value {values[lo + at]:g} at {_point_text(describe_point, s, at)} is beyond "
+                f"{LARGEST_MAGNITUDE:g} in size, the largest tidesplit splits"
+            )
         elif code[s] == checks.NOT_POSITIVE:
             status[s] = (
-                f"value {values[lo + at]:g} at position {at} is not positive, "
-                f"which the {transform_names[s]} transform needs"
+                f"value {values[lo + at]:g} at {_point_text(describe_point, s, at)} is not "
+                f"positive, which the {transform_names[s]} transform needs"
             )
         elif code[s] == checks.ALL_MISSING:
             status[s] = "every value is missing"
         else:
-            status[s] = f"cycle position {at} of {period} has no observed value"
+            status[s] = f"no value is observed at {_phase_text(describe_phase, s, at, period)}"
+
+
+def _check_transformed(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    transformed: np.ndarray,
+    lambdas: np.ndarray,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> None:
+    """A transform can carry a finite value out of range (Box-Cox of a tiny value with a
+    negative lambda, say): name the first such value of each series."""
+    out_of_range = ~(np.abs(y) <= LARGEST_MAGNITUDE) & ~np.isnan(y)
+    if not out_of_range.any():
+        return
+    for s in np.flatnonzero((segment_counts(out_of_range, offsets) > 0) & transformed):
+        if status[s] != OK:
+            continue
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        at = int(np.flatnonzero(out_of_range[lo:hi])[0])
+        status[s] = (
+            f"the Box-Cox transform with lambda {lambdas[s]:g} takes the value at "
+            f"{_point_text(describe_point, s, at)} to {y[lo + at]:g}, beyond "
+            f"{LARGEST_MAGNITUDE:g} in size"
+        )
+
+
+def _check_output(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    settings: np.ndarray,
+    status: list[str],
+    describe_phase: Callable[[int, int, int], str] | None,
+) -> np.ndarray:
+    """Series whose split came out non-finite somewhere, each given a reason in ``status``.
+
+    The checks before the split rule out what can be foreseen; this is the net under them,
+    so that no series reports ``ok`` with a missing trend or seasonal value.
+    """
+    # a non-finite point makes its series' sum non-finite: one pass, no mask per point
+    # (the values' bound keeps finite sums from overflowing)
+    lengths = np.diff(offsets)
+    filled = np.flatnonzero(lengths > 0)
+    sums = np.add.reduceat(np.add(trend, seasonal), offsets[filled]) if filled.size else []
+    broken = np.zeros(lengths.size, dtype=bool)
+    broken[filled] = ~np.isfinite(sums)
+    failed = np.flatnonzero(broken & (settings[:, 0, COL_ACTIVE] == 1))
+    for s in failed:
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        period = int(settings[s, 0, COL_PERIOD])
+        if settings[s, 0, COL_OUTER] > 0:
+            seen = ~np.isnan(values[lo:hi])
+            per_phase = np.bincount(np.arange(hi - lo) % period, weights=seen, minlength=period)
+            phase = int(np.argmin(per_phase))
+            status[s] = (
+                "the robust fit broke down: it left no weight on some cycle position "
+                f"(the fewest values, {int(per_phase[phase])}, are observed at "
+                f"{_phase_text(describe_phase, s, phase, period)}); split it without "
+                "robust or give it more data"
+            )
+        else:
+            status[s] = "the split gave non-finite components"
+    return failed
+
+
+def _note_unreachable(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    adjusted: np.ndarray,
+    lambdas: np.ndarray,
+    back: np.ndarray,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> None:
+    """Say where the seasonally adjusted value has no value on the original scale.
+
+    With a Box-Cox lambda above 0, transformed values below -1 / lambda (and with one below
+    0, above it) are reached by no number; a low value in a high season can fall there once
+    its seasonal part is taken away. Such a point's adjusted value stays NULL and the
+    series' status says where, so no number goes missing with a plain ``ok``.
+    """
+    unreachable = back & np.isnan(adjusted) & ~np.isnan(values)
+    if not unreachable.any():
+        return
+    for s in np.flatnonzero(segment_counts(unreachable, offsets)):
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        where = np.flatnonzero(unreachable[lo:hi])
+        status[s] = with_note(
+            status[s],
+            f"adjusted is NULL at {where.size} point(s), first at "
+            f"{_point_text(describe_point, s, int(where[0]))}: without its seasonal part the "
+            f"value lies outside what the Box-Cox transform with lambda {lambdas[s]:g} reaches",
+        )
+
+
+def _settle(status: list[str], on_error: str, label: Callable[[int], str]) -> np.ndarray:
+    """Which series may go on (status ``ok``); raises on the first bad one unless keeping."""
+    ok = split_mask(status)
+    bad = np.flatnonzero(~ok)
+    if on_error == "raise" and bad.size:
+        first = int(bad[0])
+        more = f" (and {bad.size - 1} more series)" if bad.size > 1 else ""
+        raise SplitError(f"series {label(first)}: {status[first]}{more}")
+    return ok
 
 
 def _equal_shape_groups(
@@ -185,8 +310,8 @@ def split_batch(
     groups: np.ndarray | None = None,
     *,
     label: Callable[[int], str] = lambda i: f"#{i}",
-    times: np.ndarray | None = None,
-    describe_time: Callable[[int], str] | None = None,
+    describe_point: Callable[[int, int], str] | None = None,
+    describe_phase: Callable[[int, int, int], str] | None = None,
     status: list[str] | None = None,
     on_error: str = "raise",
     parallel: bool = True,
@@ -200,13 +325,21 @@ def split_batch(
     params : one parameter set for all series, or one per group (see ``groups``).
     groups : index into ``params`` per series, when several parameter sets are given.
     label : names series ``i`` in error messages (for example its key).
-    times : sorted int64 time codes in the same layout, to catch repeated times.
-    describe_time : turns a time code into readable text for messages.
+    describe_point : ``(series, position)`` to readable text for messages (its time);
+        positions are named as such without it.
+    describe_phase : ``(series, cycle position, period)`` to readable text (a month,
+        weekday or hour, with the first time it occurs).
     status : reasons already known per series (``"ok"`` for none), from the front.
     on_error : ``"raise"`` stops at the first bad series; ``"keep"`` leaves it unsplit
         (NaN components) with the reason in ``status``.
     parallel : spread series over numba's threads; pass False when the caller brings
         its own threads (a database running UDF calls in parallel).
+
+    Returns
+    -------
+    BatchResult
+        Components in the input's layout; NaN throughout for a series whose status is not
+        ``ok``.
 
     Examples
     --------
@@ -222,6 +355,7 @@ def split_batch(
     count = offsets.size - 1
     lengths = np.diff(offsets)
     if isinstance(params, SplitParams):
+        params.check()  # an argument no series can be split with fails the call
         params = [params]
         groups = None
     if groups is None:
@@ -232,6 +366,8 @@ def split_batch(
         try:
             resolved_groups[g] = group_params.resolve()
         except ParamError as exc:
+            # only periods implied per series get here (the fronts check the arguments
+            # before any series runs), so the reason belongs to these series
             for s in np.flatnonzero(groups == g):
                 if status[s] == OK:
                     status[s] = str(exc)
@@ -269,9 +405,12 @@ def split_batch(
                 lambda_bounds[members] = resolved.boxcox_bounds
             else:
                 lambdas[members] = resolved.boxcox_lambda
-    _check_series(
-        values, offsets, periods, transformed, transform_names, status, times, describe_time
-    )
+    wording = (describe_point, describe_phase)
+    _check_series(values, offsets, periods, transformed, transform_names, status, *wording)
+    for k in range(1, width):
+        # every kept period needs each of its cycle positions observed, not only the shortest
+        longer = np.where(n_periods > k, settings[:, k, COL_PERIOD], 0)
+        _check_series(values, offsets, longer, transformed, transform_names, status, *wording)
 
     ok = np.array([s == OK for s in status], dtype=bool)
     if auto_lambda.any():
@@ -284,15 +423,9 @@ def split_batch(
             ok[s] = False
         for s, note in enumerate(transform.bound_notes(chosen, lambda_bounds)):
             if note and ok[s]:
-                status[s] = f"{OK}; {note}"
+                status[s] = with_note(status[s], note)
+    ok = _settle(status, on_error, label)
 
-    bad = np.flatnonzero(~ok)
-    if on_error == "raise" and bad.size:
-        first = int(bad[0])
-        more = f" (and {bad.size - 1} more series)" if bad.size > 1 else ""
-        raise SplitError(f"series {label(first)}: {status[first]}{more}")
-
-    settings[:, :, COL_ACTIVE] = ok[:, None]
     any_transform = bool((transformed & ok).any())
     point_lambda = np.repeat(lambdas, lengths) if any_transform else None
     point_transformed = np.repeat(transformed & ok, lengths) if any_transform else None
@@ -301,13 +434,27 @@ def split_batch(
         y[point_transformed] = transform.forward(
             values[point_transformed], point_lambda[point_transformed]
         )
+        _check_transformed(y, offsets, transformed & ok, lambdas, status, describe_point)
+        ok = _settle(status, on_error, label)
+    settings[:, :, COL_ACTIVE] = ok[:, None]
+
     parts = None
-    series_periods = None
     if multi:
         trend, parts, weight = _run_multi_kernel(
             y, offsets, settings, n_periods, params, groups, parallel
         )
         seasonal = parts.sum(axis=0)
+    else:
+        trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
+    failed = _check_output(values, offsets, trend, seasonal, settings, status, describe_phase)
+    if failed.size:
+        ok = _settle(status, on_error, label)
+        rows = np.repeat(~ok, lengths)
+        trend[rows] = seasonal[rows] = weight[rows] = np.nan
+        if parts is not None:
+            parts[:, rows] = np.nan
+    series_periods = None
+    if multi:
         series_periods = [
             tuple(int(p) for p in settings[s, : n_periods[s], COL_PERIOD]) if ok[s] else ()
             for s in range(count)
@@ -315,16 +462,16 @@ def split_batch(
         for s, gone in dropped.items():
             if ok[s]:
                 shown = ", ".join(str(p) for p in gone)
-                status[s] = f"{status[s]}; dropped period {shown}: not shorter than half the series"
-    else:
-        trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
+                status[s] = with_note(
+                    status[s], f"dropped period {shown}: not shorter than half the series"
+                )
     remainder = np.subtract(y, trend, out=memory.empty(y.size))
     remainder -= seasonal
     adjusted = np.subtract(y, seasonal, out=memory.empty(y.size))
     if any_transform:
-        adjusted[point_transformed] = transform.inverse(
-            adjusted[point_transformed], point_lambda[point_transformed]
-        )
+        back = point_transformed & np.repeat(ok, lengths)
+        adjusted[back] = transform.inverse(adjusted[back], point_lambda[back])
+        _note_unreachable(values, offsets, adjusted, lambdas, back, status, describe_point)
     missing = np.isnan(values)
     weight[missing] = np.nan
     lambdas[~ok] = np.nan
@@ -368,6 +515,8 @@ def _run_multi_kernel(
         chosen[~members, :, COL_ACTIVE] = 0
         run(y, offsets, chosen, n_periods, rounds, trend, parts, weight)
     lengths = np.diff(offsets)
-    unused = np.arange(width)[:, None] >= np.repeat(n_periods, lengths)[None, :]
+    # a period a series dropped contributes nothing; an unsplit series has no parts at all
+    active = np.repeat(settings[:, 0, COL_ACTIVE] == 1, lengths)
+    unused = (np.arange(width)[:, None] >= np.repeat(n_periods, lengths)[None, :]) & active
     parts[unused] = 0.0
     return trend, parts, weight

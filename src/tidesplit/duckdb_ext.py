@@ -18,53 +18,25 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import batch, calendar, summaries
-from .decompose import OK, segment_counts
+from . import arguments, batch, calendar, sql_build, summaries
+from .arguments import SQL_TYPES
+from .decompose import segment_counts
+from .errors import ParamError
 from .kernel import grid
-from .params import ParamError, SplitParams
+from .params import SplitParams
 from .rows import COMPONENTS, RowsResult, split_rows
+from .status import OK
 
 UDF_NAME = "__tide_split_series"
 
-# Every decomposition argument after ``period``, in the order the UDF takes them, with its
-# SQL type. The macros are written from this list.
-SPLIT_ARGS: tuple[tuple[str, str], ...] = (
-    ("season_span", "DOUBLE"),
-    ("trend_span", "DOUBLE"),
-    ("lowpass_span", "DOUBLE"),
-    ("season_degree", "DOUBLE"),
-    ("trend_degree", "DOUBLE"),
-    ("lowpass_degree", "DOUBLE"),
-    ("season_jump", "DOUBLE"),
-    ("trend_jump", "DOUBLE"),
-    ("lowpass_jump", "DOUBLE"),
-    ("robust", "BOOLEAN"),
-    ("inner_loops", "DOUBLE"),
-    ("outer_loops", "DOUBLE"),
-    ("transform", "VARCHAR"),
-    ("boxcox_lambda", "DOUBLE"),
-    ("fill_gaps", "BOOLEAN"),
-    ("on_error", "VARCHAR"),
-    ("boxcox_bounds", "DOUBLE[]"),
-)
-# Arguments of several seasonal periods (tide_split_multi only).
-MULTI_ARGS: tuple[tuple[str, str], ...] = (
-    ("periods", "DOUBLE[]"),
-    ("season_spans", "DOUBLE[]"),
-    ("iterations", "DOUBLE"),
-)
-# What the UDF takes before the decomposition arguments.
-LEAD_ARGS: tuple[tuple[str, str], ...] = (
-    ("label", "VARCHAR"),
-    ("time_codes", "BIGINT[]"),
-    ("time_kind", "VARCHAR"),
-    ("time_zone", "VARCHAR"),
-    ("values", "DOUBLE[]"),
-    ("period", "DOUBLE"),
-)
-UDF_ARGS = LEAD_ARGS + SPLIT_ARGS + MULTI_ARGS
-# tide_outliers splits robustly, with one robustness pass (see summaries.unusual_points).
-OUTLIER_DEFAULTS = {"robust": "true", "inner_loops": "2", "outer_loops": "1"}
+
+def udf_types(udf: str) -> list[tuple[str, str]]:
+    """Every parameter of a UDF, with its SQL type: the lead ones, then its arguments."""
+    named = [(a.name, SQL_TYPES[a.kind]) for a in sql_build.udf_arguments(udf)]
+    return [*sql_build.LEAD, *named]
+
+
+UDF_ARGS = udf_types(UDF_NAME)  # the split UDF's, which the benchmarks' floor takes too
 
 # One seasonal part per period on every row, as a list of (period, seasonal) structs in
 # ascending period. A MAP(period -> part) read more tersely, but DuckDB checks the keys of
@@ -157,7 +129,7 @@ class _Call:
     fill_gaps: bool
     status: list[str]
     label: Any
-    extra: dict[str, Any]
+    settings: dict[str, Any]  # every argument of the function, defaults filled in
     order: np.ndarray | None = None  # input row of each time-sorted row, when not sorted
 
     def split(self, fill_gaps: bool | None = None) -> RowsResult:
@@ -201,7 +173,7 @@ class _Call:
         return out
 
 
-def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call:
+def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     labels = columns["label"]
     offsets, child, null_rows = batch.list_layout(columns["values"])
     flat = batch.float_values(child)
@@ -231,14 +203,15 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
     zone = zones[0].as_py() if len(zones) else None
 
-    names = ["period", *(n for n, _ in SPLIT_ARGS + MULTI_ARGS), *extra_names]
+    names = [a.name for a in sql_build.udf_arguments(udf)]
     given = _constant_arguments(names, [columns[n] for n in names])
-    extra = {n: given.pop(n) for n in extra_names}
-    on_error = given.pop("on_error") or "raise"
-    fill = bool(given.pop("fill_gaps"))
-    chosen = {k: v for k, v in given.items() if v is not None}
-    if given.get("periods") == ():
-        chosen["periods"] = ()
+    functions = sql_build.UDFS[udf]
+    # the split UDF serves one period and several; a list of periods says which
+    function = arguments.SPLIT_MULTI if given.get("periods") is not None else functions[0]
+    taken = {a.name for a in arguments.of(function)}
+    settings = arguments.accept(
+        function, {k: v for k, v in given.items() if v is not None and k in taken}
+    )
 
     def label(i: int) -> str:
         text = labels[i].as_py() if len(labels) else None
@@ -251,12 +224,12 @@ def _decode(columns: dict[str, pa.Array], extra_names: tuple[str, ...]) -> _Call
         codes,
         kind,
         zone,
-        SplitParams.from_kwargs(**chosen),
-        on_error,
-        fill,
+        SplitParams.from_settings(settings),
+        settings["on_error"],
+        bool(settings.get("fill_gaps")),
         status,
         label,
-        extra,
+        settings,
         order,
     )
 
@@ -288,7 +261,9 @@ def _split_handler(call: _Call) -> pa.Array:
         fields["inserted"] = pa.nulls(count, pa.list_(pa.bool_()))
     if call.fill_gaps and result.codes is not None:
         fields["time_codes"] = _lists(result.codes, out_offsets, pa.int64())
-        fields["source"] = _lists(result.source, out_offsets, pa.int64())
+        # the macro picks each grid row's input row from its series' own list
+        own = result.source - np.repeat(call.offsets[:-1], np.diff(out_offsets))
+        fields["source"] = _lists(np.where(result.source >= 0, own, -1), out_offsets, pa.int64())
     else:
         fields["time_codes"] = pa.nulls(count, pa.list_(pa.int64()))
         fields["source"] = pa.nulls(count, pa.list_(pa.int64()))
@@ -341,14 +316,11 @@ def _profile_handler(call: _Call) -> pa.Array:
 
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    method = call.extra["method"] or "stepwise"
-    threshold = call.extra["threshold"]
-    significance = call.extra["significance"]
     found = summaries.unusual_points(
         result,
-        method,
-        None if threshold is None else float(threshold),
-        None if significance is None else float(significance),
+        call.settings["method"],
+        call.settings["threshold"],
+        call.settings["significance"],
         call.params,
         parallel=False,
     )
@@ -368,36 +340,44 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
+    horizon, level, method = summaries.forecast_arguments(
+        call.settings["horizon"], call.settings["level"], call.settings["method"]
+    )
     result = call.split(fill_gaps=True)
-    horizon = 12 if call.extra["horizon"] is None else int(call.extra["horizon"])
-    level = 0.95 if call.extra["level"] is None else float(call.extra["level"])
-    method = call.extra["method"] or summaries.DEFAULT_FORECAST_METHOD
     ahead = summaries.forecast(
         result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
     )
-    ok = np.array([s.startswith(OK) for s in result.status], dtype=bool)
-    # one list per series: empty for a series that could not be split
-    counts = np.where(ok, horizon, 0)
+    ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
+    # horizon rows per series; one row of NULLs beside the status of a series left unsplit
+    counts = np.where(ok, horizon, 1)
     offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
+    present = np.repeat(ok, counts)
+
+    def rows(values: np.ndarray | None, arrow_type: pa.DataType) -> pa.Array:
+        if values is None:
+            return pa.nulls(len(ok), pa.list_(arrow_type))
+        out = np.zeros(present.size, dtype=values.dtype)
+        out[present] = values
+        missing = ~present | np.isnan(out) if out.dtype.kind == "f" else ~present
+        child = pa.array(out, arrow_type, mask=missing)
+        return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
+
     fields = {
-        "step": _lists(ahead.step, offsets, pa.int64()),
-        "time_codes": _lists(ahead.codes, offsets, pa.int64())
-        if ahead.codes is not None
-        else pa.nulls(len(ok), pa.list_(pa.int64())),
-        "forecast": _lists(ahead.point, offsets, pa.float64()),
-        "lower": _lists(ahead.lower, offsets, pa.float64()),
-        "upper": _lists(ahead.upper, offsets, pa.float64()),
+        "step": rows(ahead.step, pa.int64()),
+        "time_codes": rows(ahead.codes, pa.int64()),
+        "forecast": rows(ahead.point, pa.float64()),
+        "lower": rows(ahead.lower, pa.float64()),
+        "upper": rows(ahead.upper, pa.float64()),
     }
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
 _SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
-UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
-    UDF_NAME: (_split_handler, (), RESULT_TYPE),
+UDFS: dict[str, tuple[Any, str]] = {
+    UDF_NAME: (_split_handler, RESULT_TYPE),
     "__tide_profile_series": (
         _profile_handler,
-        (),
         "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
         + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
         + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
@@ -406,28 +386,23 @@ UDFS: dict[str, tuple[Any, tuple[tuple[str, str], ...], str]] = {
     ),
     "__tide_outlier_series": (
         _outlier_handler,
-        (("method", "VARCHAR"), ("threshold", "DOUBLE"), ("significance", "DOUBLE")),
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
     "__tide_forecast_series": (
         _forecast_handler,
-        (("horizon", "DOUBLE"), ("level", "DOUBLE"), ("method", "VARCHAR")),
         "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "
         f"upper DOUBLE[], {_SERIES_TYPES})",
     ),
 }
 
 
-def _as_udf(handler: Any, extra: tuple[tuple[str, str], ...]) -> Any:
+def _as_udf(udf: str, handler: Any) -> Any:
     """A Python function of one positional argument per SQL parameter, for DuckDB."""
-    names = [n for n, _ in UDF_ARGS + extra]
-    extra_names = tuple(n for n, _ in extra)
+    names = [n for n, _ in udf_types(udf)]
 
     def call(*columns: Any) -> pa.Array:
-        decoded = _decode(
-            {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)}, extra_names
-        )
+        decoded = _decode(udf, {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)})
         return handler(decoded)
 
     call.__signature__ = udf_signature(names)  # type: ignore[attr-defined]
@@ -441,22 +416,9 @@ def udf_signature(names: list[str]) -> inspect.Signature:
     )
 
 
-def _macro_sql() -> str:
-    text = resources.files("tidesplit").joinpath("sql/tide_split.sql").read_text()
-    return (
-        text.replace("{split_args}", ", ".join(f"{name} := NULL" for name, _ in SPLIT_ARGS))
-        .replace("{split_pass}", ", ".join(name for name, _ in SPLIT_ARGS))
-        .replace("{split_named}", ", ".join(f"{name} := {name}" for name, _ in SPLIT_ARGS))
-        .replace(
-            "{outlier_args}",
-            ", ".join(
-                f"{name} := {OUTLIER_DEFAULTS.get(name, 'NULL')}" for name, _ in SPLIT_ARGS
-            ),
-        )
-        .replace("{multi_args}", ", ".join(f"{name} := NULL" for name, _ in MULTI_ARGS))
-        .replace("{multi_pass}", ", ".join(name for name, _ in MULTI_ARGS))
-        .replace("{multi_named}", ", ".join(f"{name} := {name}" for name, _ in MULTI_ARGS))
-    )
+def macro_sql() -> str:
+    """The SQL file shipped with the package (written by ``sql_build``)."""
+    return resources.files("tidesplit.sql").joinpath("tidesplit.sql").read_text()
 
 
 def _registered(con: duckdb.DuckDBPyConnection) -> set[str]:
@@ -486,21 +448,21 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     [(8,)]
     """
     registered = _registered(con)
-    for name, (handler, extra, result_type) in UDFS.items():
+    for name, (handler, result_type) in UDFS.items():
         present = name in registered
         if present and replace:
             con.remove_function(name)
         if replace or not present:
             con.create_function(
                 name,
-                _as_udf(handler, extra),
-                [t for _, t in UDF_ARGS + extra],
+                _as_udf(name, handler),
+                [t for _, t in udf_types(name)],
                 result_type,
                 type="arrow",
                 null_handling="special",
                 side_effects=False,
             )
-    con.execute(_macro_sql())
+    con.execute(macro_sql())
     return con
 
 

@@ -11,10 +11,12 @@ from typing import Any
 
 import numpy as np
 
-from .kernel import stl as _k
+from . import arguments
+from .errors import ParamError
+from .kernel import layout as _k
 
-TRANSFORMS = ("none", "log", "boxcox")
-ON_ERROR = ("raise", "keep")
+TRANSFORMS = next(a.choices for a in arguments.REGISTRY if a.name == "transform")
+ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
 
 # Where Guerrero's lambda is searched by default: from the log (0, a multiplicative split)
 # to no transform (1, an additive one).
@@ -22,10 +24,6 @@ DEFAULT_BOXCOX_BOUNDS = (0.0, 1.0)
 
 # Common practice (the paper asks only for an odd number of at least 7).
 DEFAULT_SEASON_SPAN = 13
-
-
-class ParamError(ValueError):
-    """A parameter that no series could be split with."""
 
 
 def smallest_odd_at_least(x: float) -> int:
@@ -76,18 +74,7 @@ def default_loops(robust: bool) -> tuple[int, int]:
     return (1, 10) if robust else (2, 0)
 
 
-def _as_int(name: str, value: Any) -> int | None:
-    if value is None:
-        return None
-    if isinstance(value, bool):
-        raise ParamError(f"{name} must be an integer, got {value!r}")
-    try:
-        as_float = float(value)
-    except (TypeError, ValueError):
-        raise ParamError(f"{name} must be an integer, got {value!r}") from None
-    if not math.isfinite(as_float) or as_float != int(as_float):
-        raise ParamError(f"{name} must be an integer, got {value!r}")
-    return int(as_float)
+as_int = arguments.whole_number
 
 
 @dataclass(frozen=True)
@@ -108,10 +95,10 @@ class SplitParams:
     season_jump: int | None = None
     trend_jump: int | None = None
     lowpass_jump: int | None = None
-    robust: bool = False
+    robust: bool = arguments.default_of("robust")
     inner_loops: int | None = None
     outer_loops: int | None = None
-    transform: str = "none"
+    transform: str = arguments.default_of("transform")
     boxcox_lambda: float | None = None
     periods: tuple[int, ...] | None = None
     season_spans: tuple[int, ...] | None = None
@@ -136,6 +123,16 @@ class SplitParams:
                 kwargs[name] = tuple(kwargs[name])
         return cls(**kwargs)
 
+    @classmethod
+    def from_settings(cls, settings: dict[str, Any]) -> SplitParams:
+        """The decomposition's part of a function's settings (``arguments.accept``).
+
+        >>> SplitParams.from_settings(arguments.accept("split", {"period": 12})).period
+        12
+        """
+        known = {f.name for f in fields(cls)}
+        return cls(**{k: v for k, v in settings.items() if k in known and v is not None})
+
     def with_period(self, period: int) -> SplitParams:
         """The same settings for another (single) period."""
         return replace(self, period=period)
@@ -149,16 +146,35 @@ class SplitParams:
         """Whether several seasonal periods were asked for (MSTL)."""
         return self.periods is not None
 
+    def check(self) -> None:
+        """Refuse any setting that no series could be split with, before any series runs.
+
+        Periods left to each series (implied by its step, or estimated) are stood in for by
+        the smallest ones, so that every other setting is checked now; raises ``ParamError``.
+
+        >>> SplitParams(trend_span=4).check()
+        Traceback (most recent call last):
+        ...
+        tidesplit.errors.ParamError: trend_span must be an odd integer of at least 3, got 4
+        """
+        probe = self
+        if self.multi and not self.periods:
+            count = len(self.season_spans) if self.season_spans is not None else 1
+            probe = replace(self, periods=tuple(range(2, 2 + count)))
+        elif not self.multi and self.period is None:
+            probe = replace(self, period=2)
+        probe.resolve()
+
     def resolve(self) -> ResolvedParams:
         """Check every setting and fill in the defaults; raises ``ParamError``."""
         if self.periods is not None and self.period is not None:
             raise ParamError("give period or periods, not both")
         if self.periods is not None:
-            periods = [_as_int("periods", p) for p in self.periods]
+            periods = [as_int("periods", p) for p in self.periods]
             if not periods:
                 raise ParamError("periods is empty")
         else:
-            periods = [_as_int("period", self.period)]
+            periods = [as_int("period", self.period)]
         if periods[0] is None:
             raise ParamError("period is required")
         for period in periods:
@@ -167,11 +183,11 @@ class SplitParams:
         if len(set(periods)) < len(periods):
             raise ParamError(f"periods must differ, got {list(periods)}")
         if self.season_spans is not None:
-            spans = [_as_int("season_spans", v) for v in self.season_spans]
+            spans = [as_int("season_spans", v) for v in self.season_spans]
             if len(spans) != len(periods):
                 raise ParamError(f"season_spans has {len(spans)} values for {len(periods)} periods")
         elif self.season_span is not None:
-            spans = [_as_int("season_span", self.season_span)] * len(periods)
+            spans = [as_int("season_span", self.season_span)] * len(periods)
         elif self.periods is not None:
             # MSTL's published default: 7 + 4 i for the i-th period (Bandara et al. 2021)
             spans = [7 + 4 * (i + 1) for i in range(len(periods))]
@@ -183,23 +199,23 @@ class SplitParams:
         for span in spans:
             if span != 0:
                 _check_span("season_span", span)
-        iterations = _as_int("iterations", self.iterations)
+        iterations = as_int("iterations", self.iterations)
         iterations = 2 if iterations is None else iterations  # Bandara et al. (2021)
         if iterations < 1:
             raise ParamError(f"iterations must be at least 1, got {iterations}")
         period, season_span = periods[0], spans[0]
-        trend_span = _as_int("trend_span", self.trend_span)
+        trend_span = as_int("trend_span", self.trend_span)
         given_trend = trend_span
         trend_span = default_trend_span(period, season_span) if trend_span is None else trend_span
         _check_span("trend_span", trend_span)
-        lowpass_span = _as_int("lowpass_span", self.lowpass_span)
+        lowpass_span = as_int("lowpass_span", self.lowpass_span)
         given_lowpass = lowpass_span
         lowpass_span = default_lowpass_span(period) if lowpass_span is None else lowpass_span
         _check_span("lowpass_span", lowpass_span)
 
         degrees = []
         for name in ("season_degree", "trend_degree", "lowpass_degree"):
-            degree = _as_int(name, getattr(self, name))
+            degree = as_int(name, getattr(self, name))
             degree = 1 if degree is None else degree
             if degree not in (0, 1):
                 raise ParamError(f"{name} must be 0 or 1, got {degree}")
@@ -211,7 +227,7 @@ class SplitParams:
             ("trend_jump", trend_span),
             ("lowpass_jump", lowpass_span),
         ):
-            jump = _as_int(name, getattr(self, name))
+            jump = as_int(name, getattr(self, name))
             jump = default_jump(span) if jump is None else jump
             if jump < 1:
                 raise ParamError(f"{name} must be at least 1, got {jump}")
@@ -221,11 +237,11 @@ class SplitParams:
             raise ParamError(f"robust must be true or false, got {self.robust!r}")
         robust = bool(self.robust)
         inner_default, outer_default = default_loops(robust)
-        inner = _as_int("inner_loops", self.inner_loops)
+        inner = as_int("inner_loops", self.inner_loops)
         inner = inner_default if inner is None else inner
         if inner < 1:
             raise ParamError(f"inner_loops must be at least 1, got {inner}")
-        outer = _as_int("outer_loops", self.outer_loops)
+        outer = as_int("outer_loops", self.outer_loops)
         outer = outer_default if outer is None else outer
         if outer < 0:
             raise ParamError(f"outer_loops must be at least 0, got {outer}")
@@ -248,7 +264,7 @@ class SplitParams:
             lam = None
         bounds = _check_bounds(self.boxcox_bounds, transform, lam)
         given_jumps = [
-            _as_int(name, getattr(self, name))
+            as_int(name, getattr(self, name))
             for name in ("season_jump", "trend_jump", "lowpass_jump")
         ]
         cycles = []

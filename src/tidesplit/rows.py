@@ -13,8 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import calendar, memory
-from .decompose import OK, BatchResult, split_batch
+from .decompose import BatchResult, split_batch
 from .params import SplitParams
+from .status import OK
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
@@ -113,6 +114,7 @@ def split_rows(
     >>> out.inserted.tolist()
     [False, False, False, False, False, True, False, False, False]
     """
+    params.check()  # an argument no series can be split with fails before any series runs
     values = np.ascontiguousarray(values, dtype=np.float64)
     offsets = np.ascontiguousarray(offsets, dtype=np.int64)
     count = offsets.size - 1
@@ -136,6 +138,8 @@ def split_rows(
         sets,
         groups,
         label=label,
+        describe_point=lambda s, i: calendar.point_text(grid, s, i, kind, time_zone),
+        describe_phase=lambda s, k, p: calendar.phase_text(grid, s, k, p, kind, time_zone),
         status=status,
         on_error=on_error,
         parallel=parallel,

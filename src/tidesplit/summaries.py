@@ -6,16 +6,22 @@ returns plain numpy arrays; the fronts turn them into SQL rows or DataFrames.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from statistics import NormalDist
+from typing import Any
 
 import numpy as np
 
 from . import calendar, transform
-from .decompose import OK, split_batch
+from .arguments import whole_number
+from .calendar import cycle_label
+from .decompose import split_batch
+from .errors import ParamError, SplitError
 from .kernel import summary, threads
 from .params import SplitParams
 from .rows import RowsResult
+from .status import OK, split_mask
 
 PROFILE_COLUMNS = (
     "strength_of_trend",
@@ -48,52 +54,9 @@ DEFAULT_FORECAST_METHOD = "damped"
 # to check its intervals on the series' own past.
 ROLLING_ORIGINS = 24
 
-_MONTHS = (
-    "January",
-    "February",
-    "March",
-    "April",
-    "May",
-    "June",
-    "July",
-    "August",
-    "September",
-    "October",
-    "November",
-    "December",
-)
-_WEEKDAYS = ("Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday")
-
 
 def _ok(result: RowsResult) -> np.ndarray:
-    return np.array([s.startswith(OK) for s in result.status], dtype=bool)
-
-
-def cycle_label(code: int, unit: int, step: int, period: int, kind: str) -> str | None:
-    """A readable name for the cycle position of a time: month, weekday, hour or quarter.
-
-    >>> cycle_label(0, calendar.UNIT_MONTH, 1, 12, "date")
-    'January'
-    >>> day = calendar.US_PER_DAY
-    >>> cycle_label(4 * day, calendar.UNIT_MICROSECOND, day, 7, "date")
-    'Monday'
-    """
-    if kind == "integer":
-        return None
-    stamp = np.datetime64(int(code), "us")
-    if unit == calendar.UNIT_MONTH and step == 1 and period == 12:
-        return _MONTHS[int(stamp.astype("datetime64[M]").astype(np.int64) % 12)]
-    if unit == calendar.UNIT_MONTH and step == 3 and period == 4:
-        return f"Q{int(stamp.astype('datetime64[M]').astype(np.int64) % 12) // 3 + 1}"
-    if unit == calendar.UNIT_MICROSECOND and step == calendar.US_PER_DAY and period == 7:
-        return _WEEKDAYS[(int(stamp.astype("datetime64[D]").astype(np.int64)) + 3) % 7]
-    if unit == calendar.UNIT_MICROSECOND and step == calendar.US_PER_WEEK and period == 52:
-        day = stamp.astype("datetime64[D]").astype(object)
-        return f"week {day.isocalendar()[1]}"
-    if unit == calendar.UNIT_MICROSECOND and period * step == calendar.US_PER_DAY:
-        minutes = int(code // calendar.US_PER_MINUTE) % (24 * 60)
-        return f"{minutes // 60:02d}:{minutes % 60:02d}"
-    return None
+    return split_mask(result.status)
 
 
 @dataclass
@@ -298,11 +261,11 @@ def unusual_points(
     The expected value is trend + seasonal, back on the original scale.
     """
     if method not in OUTLIER_METHODS:
-        raise ValueError(f"method must be one of {', '.join(OUTLIER_METHODS)}, got {method!r}")
+        raise ParamError(f"method must be one of {', '.join(OUTLIER_METHODS)}, got {method!r}")
     if method == "stepwise" and threshold is not None:
-        raise ValueError("threshold goes with method 'mad'; the stepwise test takes significance")
+        raise ParamError("threshold goes with method 'mad'; the stepwise test takes significance")
     if method == "mad" and significance is not None:
-        raise ValueError("significance goes with method 'stepwise'; method 'mad' takes threshold")
+        raise ParamError("significance goes with method 'stepwise'; method 'mad' takes threshold")
     offsets = result.offsets
     count = offsets.size - 1
     lengths = np.diff(offsets)
@@ -310,7 +273,7 @@ def unusual_points(
     if method == "stepwise":
         alpha = DEFAULT_SIGNIFICANCE if significance is None else float(significance)
         if not 0 < alpha < 1:
-            raise ValueError(f"significance must be between 0 and 1, got {alpha}")
+            raise ParamError(f"significance must be between 0 and 1, got {alpha}")
         values = result.trend + result.seasonal + result.remainder
         set_aside = result.weight < SET_ASIDE_WEIGHT  # NaN weights (missing) compare False
         for _ in range(SET_ASIDE_ROUNDS):
@@ -341,7 +304,7 @@ def unusual_points(
     else:
         k = DEFAULT_MAD_THRESHOLD if threshold is None else float(threshold)
         if not k > 0:
-            raise ValueError(f"threshold must be positive, got {k}")
+            raise ParamError(f"threshold must be positive, got {k}")
         r = result.remainder
         fit = result.trend + result.seasonal
         fences = np.empty((count, 4))
@@ -684,3 +647,62 @@ def forecast(
         upper=upper[chosen].ravel(),
         method=[methods[chosen_method[s]] for s in chosen],
     )
+
+
+def forecast_arguments(
+    horizon: Any = 12, level: Any = 0.95, method: Any = "damped"
+) -> tuple[int, float, str]:
+    """The forecast's arguments checked before any series runs (``ParamError`` names the
+    argument), a whole number of any numeric type taken as the horizon.
+
+    >>> forecast_arguments(horizon=6.0)
+    (6, 0.95, 'damped')
+    >>> forecast_arguments(horizon=2.5)
+    Traceback (most recent call last):
+    ...
+    tidesplit.errors.ParamError: horizon must be a whole number, got 2.5
+    """
+    steps = whole_number("horizon", horizon)
+    if steps is None or steps < 1:
+        raise ParamError(f"horizon must be at least 1, got {horizon!r}")
+    if isinstance(level, bool) or not isinstance(level, (int, float, np.number)):
+        raise ParamError(f"level must be a number between 0 and 1, got {level!r}")
+    if not 0 < level < 1:
+        raise ParamError(f"level must be between 0 and 1, got {level!r}")
+    if method not in FORECAST_METHODS:
+        raise ParamError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
+    return steps, float(level), method
+
+
+def settle_forecast(
+    result: RowsResult, ahead: Forecast, on_error: str, label: Callable[[int], str]
+) -> np.ndarray:
+    """Which series have a forecast. One whose forecast came out non-finite (a
+    back-transform that overflows far ahead, say) gets a status saying so, or fails the
+    call under ``on_error='raise'``; no series reports ``ok`` with a missing forecast."""
+    ok = _ok(result)
+    chosen = np.flatnonzero(ok)
+    horizon = np.diff(ahead.offsets)
+    bad_rows = ~(np.isfinite(ahead.point) & np.isfinite(ahead.lower) & np.isfinite(ahead.upper))
+    if not bad_rows.any():
+        return ok
+    keep_rows = np.ones(bad_rows.size, dtype=bool)
+    for k in np.flatnonzero(np.add.reduceat(bad_rows, ahead.offsets[:-1]) > 0):
+        s = int(chosen[k])
+        first = int(np.flatnonzero(bad_rows[ahead.offsets[k] : ahead.offsets[k + 1]])[0]) + 1
+        result.status[s] = (
+            f"the forecast is not finite from step {first} of {int(horizon[k])} on "
+            "(too large for a float after the back-transform)"
+        )
+        if on_error == "raise":
+            raise SplitError(f"series {label(s)}: {result.status[s]}")
+        keep_rows[ahead.offsets[k] : ahead.offsets[k + 1]] = False
+        ok[s] = False
+    ahead.method = [m for m, keep in zip(ahead.method, ok[chosen], strict=True) if keep]
+    kept = np.flatnonzero(ok)
+    ahead.offsets = np.arange(kept.size + 1) * int(horizon[0])
+    for name in ("step", "point", "lower", "upper"):
+        setattr(ahead, name, getattr(ahead, name)[keep_rows])
+    if ahead.codes is not None:
+        ahead.codes = ahead.codes[keep_rows]
+    return ok

@@ -12,9 +12,9 @@ from numba import njit
 
 # Reason codes, in the order they are checked.
 FINE = 0
-REPEATED_TIME = 1
-TOO_SHORT = 2
-INFINITE = 3
+TOO_SHORT = 1
+INFINITE = 2
+TOO_LARGE = 3
 NOT_POSITIVE = 4
 ALL_MISSING = 5
 PHASE_UNSEEN = 6
@@ -24,8 +24,8 @@ PHASE_UNSEEN = 6
 def scan_batch(
     values: np.ndarray,
     offsets: np.ndarray,
-    times: np.ndarray,
     periods: np.ndarray,
+    largest: float,
     needs_positive: np.ndarray,
     todo: np.ndarray,
     code: np.ndarray,
@@ -34,9 +34,9 @@ def scan_batch(
     """For each series with ``todo`` set: ``code`` (a reason above) and ``where`` (the
     offending position in the series, or the unseen cycle position).
 
-    ``times`` is empty when there are no times to check.
+    ``largest`` bounds the magnitude of a value: beyond it sums of squares in the fits and
+    the answers could overflow.
     """
-    check_times = times.shape[0] > 0
     for s in range(offsets.shape[0] - 1):
         code[s] = FINE
         where[s] = -1
@@ -45,14 +45,6 @@ def scan_batch(
         lo = offsets[s]
         n = offsets[s + 1] - lo
         period = periods[s]
-        if check_times:
-            for i in range(1, n):
-                if times[lo + i] == times[lo + i - 1]:
-                    code[s] = REPEATED_TIME
-                    where[s] = i
-                    break
-            if code[s] != FINE:
-                continue
         if n < 2 * period:
             code[s] = TOO_SHORT
             continue
@@ -64,6 +56,10 @@ def scan_batch(
             observed += 1
             if math.isinf(v):
                 code[s] = INFINITE
+                where[s] = i
+                break
+            if abs(v) > largest:
+                code[s] = TOO_LARGE
                 where[s] = i
                 break
             if needs_positive[s] and v <= 0.0:

@@ -14,7 +14,8 @@ import threading
 
 import numpy as np
 
-from .stl import COL_OUTER, stl_batch_serial
+from .layout import COL_OUTER
+from .stl import stl_batch_serial
 
 # Beyond this length the two n x n matrices stop paying for themselves (and take memory).
 MAX_POINTS = 1024

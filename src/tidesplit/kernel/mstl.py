@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numba import get_num_threads, njit, prange
 
-from .stl import COL_ACTIVE, COL_PERIOD, _stl_one, buffer_size
+from .layout import COL_ACTIVE, COL_PERIOD
+from .stl import _stl_one, buffer_size
 from .threads import launch
 
 

@@ -13,24 +13,25 @@ import math
 import numpy as np
 from numba import get_num_threads, njit, prange
 
+# Columns of the settings matrix (defined apart, so that the settings can be built without
+# loading the compiler).
+from .layout import (
+    COL_ACTIVE,
+    COL_INNER,
+    COL_LOWPASS_DEGREE,
+    COL_LOWPASS_JUMP,
+    COL_LOWPASS_SPAN,
+    COL_OUTER,
+    COL_PERIOD,
+    COL_SEASON_DEGREE,
+    COL_SEASON_JUMP,
+    COL_SEASON_SPAN,
+    COL_TREND_DEGREE,
+    COL_TREND_JUMP,
+    COL_TREND_SPAN,
+)
 from .loess import FAR, NEAR, fit_at, smooth
 from .threads import launch
-
-# Columns of the settings matrix, one row per series.
-COL_PERIOD = 0
-COL_SEASON_SPAN = 1  # 0 means an infinite span: a fixed seasonal pattern
-COL_TREND_SPAN = 2
-COL_LOWPASS_SPAN = 3
-COL_SEASON_DEGREE = 4
-COL_TREND_DEGREE = 5
-COL_LOWPASS_DEGREE = 6
-COL_SEASON_JUMP = 7
-COL_TREND_JUMP = 8
-COL_LOWPASS_JUMP = 9
-COL_INNER = 10
-COL_OUTER = 11
-COL_ACTIVE = 12  # 0: leave this series alone (outputs stay NaN)
-N_SETTINGS = 13
 
 
 @njit(nogil=True, cache=True)

@@ -1,0 +1,1 @@
+"""The SQL macros of tidesplit (tidesplit.sql), shipped as package data."""
