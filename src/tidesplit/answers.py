@@ -38,6 +38,7 @@ PROFILE = (
 )
 OUTLIERS = ("expected", "remainder", "score", "direction", "weight", "is_outlier", "status")
 FORECAST = ("step", "forecast", "lower", "upper", "status")
+AUDIT = ("reference", "points_compared", "trend_gap", "seasonal_gap", "remainder_gap", "status")
 
 
 def name_clashes(keys: list[str], time: str, value: str, answer: tuple[str, ...]) -> list[str]:

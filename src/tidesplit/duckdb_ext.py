@@ -314,6 +314,22 @@ def _profile_handler(call: _Call) -> pa.Array:
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
+def _audit_handler(call: _Call) -> pa.Array:
+    from .crosscheck import audit
+
+    result = call.split(fill_gaps=True)
+    found = audit(result, call.params)
+    fields = {
+        "reference": pa.array(found.reference, pa.string()),
+        "points_compared": pa.array(found.compared, pa.int64()),
+        "trend_gap": pa.array(found.gaps[:, 0], pa.float64(), from_pandas=True),
+        "seasonal_gap": pa.array(found.gaps[:, 1], pa.float64(), from_pandas=True),
+        "remainder_gap": pa.array(found.gaps[:, 2], pa.float64(), from_pandas=True),
+        "status": pa.array(found.status, pa.string()),
+    }
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     found = summaries.unusual_points(result, call.settings["method"], call.settings["threshold"])
@@ -379,6 +395,11 @@ UDFS: dict[str, tuple[Any, str]] = {
         _outlier_handler,
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
+    ),
+    "__tide_audit_series": (
+        _audit_handler,
+        "STRUCT(reference VARCHAR, points_compared BIGINT, trend_gap DOUBLE, seasonal_gap DOUBLE, "
+        "remainder_gap DOUBLE, status VARCHAR)",
     ),
     "__tide_forecast_series": (
         _forecast_handler,
