@@ -345,14 +345,15 @@ def profile(
     out["step"] = found.step
     for k, name in enumerate(summaries.PROFILE_COLUMNS):
         out[name] = found.values[:, k]
-    if found.strength_by_period is not None:
-        out["strength_by_period"] = found.strength_by_period
+    out["strength_by_period"] = found.strength_by_period or [None] * len(out)
     out["peak_position"] = np.where(found.peak >= 0, found.peak, np.nan)
     out["peak_label"] = found.peak_label
     out["trough_position"] = np.where(found.trough >= 0, found.trough, np.nan)
     out["trough_label"] = found.trough_label
     used = result.batch.periods
     out["period"] = np.where(used > 0, used, np.nan)
+    several = result.batch.series_periods or [(int(u),) if u > 0 else () for u in used]
+    out["periods"] = [list(p) if p else None for p in several]
     out["boxcox_lambda"] = result.batch.lambdas
     out["status"] = result.status
     return out

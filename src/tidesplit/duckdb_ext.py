@@ -283,7 +283,12 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     period_offsets = np.concatenate(([0], np.cumsum(kept))).astype(np.int64)
     return {
         "period": pa.array(used, type=pa.int64(), mask=used == 0),
-        "periods": _lists(flat, period_offsets, pa.int64()),
+        # NULL for a series left unsplit, as period is
+        "periods": pa.ListArray.from_arrays(
+            pa.array(period_offsets.astype(np.int32)),
+            pa.array(flat, pa.int64()),
+            mask=pa.array(used == 0),
+        ),
         "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
         "status": pa.array(result.status, type=pa.string()),
     }
