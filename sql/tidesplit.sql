@@ -151,13 +151,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              __tide_split_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -231,7 +231,7 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -252,7 +252,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
          periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, fill_gaps := fill_gaps, on_error := on_error)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),

@@ -18,7 +18,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import arguments, batch, calendar, sql_build, summaries
+from . import answers, arguments, batch, calendar, sql_build, summaries
 from .arguments import SQL_TYPES
 from .decompose import segment_counts
 from .errors import ParamError
@@ -388,24 +388,13 @@ def _forecast_handler(call: _Call) -> pa.Array:
 _SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
 UDFS: dict[str, tuple[Any, str]] = {
     UDF_NAME: (_split_handler, RESULT_TYPE),
-    "__tide_profile_series": (
-        _profile_handler,
-        "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
-        + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
-        + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
-        "peak_label VARCHAR, trough_position BIGINT, trough_label VARCHAR, "
-        f"{_SERIES_TYPES})",
-    ),
+    "__tide_profile_series": (_profile_handler, answers.struct_type(answers.PROFILE_COLUMNS)),
     "__tide_outlier_series": (
         _outlier_handler,
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
-    "__tide_audit_series": (
-        _audit_handler,
-        "STRUCT(reference VARCHAR, points_compared BIGINT, trend_gap DOUBLE, seasonal_gap DOUBLE, "
-        "remainder_gap DOUBLE, status VARCHAR)",
-    ),
+    "__tide_audit_series": (_audit_handler, answers.struct_type(answers.AUDIT_COLUMNS)),
     "__tide_forecast_series": (
         _forecast_handler,
         "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "

@@ -256,13 +256,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              {_udf_call(_LEAD_CALL, SPLIT, SPLIT_MULTI)} AS __parts
@@ -328,7 +328,8 @@ def _answer_macros() -> str:
         for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     inner = {
-        f: ", ".join(f"{a.name} := NULL" for a in of(f)) for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
+        f: ", ".join(f"{a.name} := NULL" for a in of(f))
+        for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     profile = f"""\
 -- Per-series answers, one row per key.
