@@ -153,13 +153,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              __tide_split_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -236,7 +236,7 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -258,7 +258,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
          periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -468,3 +468,59 @@ CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value
     (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, horizon := horizon, level := level, method := method)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', horizon := 12, level := 0.95, method := 'damped') AS TABLE
     (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, horizon := horizon, level := level, method := method));
+
+-- A sample of keys split again by statsmodels under the same settings: the largest
+-- difference of each component, or why statsmodels cannot follow.
+CREATE OR REPLACE TEMP MACRO __tide_audit_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, sample := NULL) AS TABLE
+SELECT unnest(__key), unnest(__a)
+FROM (SELECT __key,
+             __tide_audit_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
+        current_setting('TimeZone'), __values,
+        TRY_CAST(period AS DOUBLE),
+        TRY_CAST(periods AS DOUBLE[]),
+        TRY_CAST(season_span AS DOUBLE),
+        TRY_CAST(season_spans AS DOUBLE[]),
+        TRY_CAST(trend_span AS DOUBLE),
+        TRY_CAST(lowpass_span AS DOUBLE),
+        TRY_CAST(season_degree AS DOUBLE),
+        TRY_CAST(trend_degree AS DOUBLE),
+        TRY_CAST(lowpass_degree AS DOUBLE),
+        TRY_CAST(season_jump AS DOUBLE),
+        TRY_CAST(trend_jump AS DOUBLE),
+        TRY_CAST(lowpass_jump AS DOUBLE),
+        TRY_CAST(robust AS BOOLEAN),
+        TRY_CAST(inner_loops AS DOUBLE),
+        TRY_CAST(outer_loops AS DOUBLE),
+        TRY_CAST(iterations AS DOUBLE),
+        TRY_CAST(transform AS VARCHAR),
+        TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
+        TRY_CAST(on_error AS VARCHAR),
+        TRY_CAST(sample AS DOUBLE)) AS __a
+      FROM (SELECT * FROM __tide_grouped(tbl, keys, time, value)
+            ORDER BY hash(CAST(__key AS VARCHAR)) LIMIT sample),
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['reference', 'points_compared', 'trend_gap', 'seasonal_gap', 'remainder_gap', 'status'])
+          || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
+             __tide_check_number('season_span', season_span),
+             __tide_check_numbers('season_spans', season_spans),
+             __tide_check_number('trend_span', trend_span),
+             __tide_check_number('lowpass_span', lowpass_span),
+             __tide_check_number('season_degree', season_degree),
+             __tide_check_number('trend_degree', trend_degree),
+             __tide_check_number('lowpass_degree', lowpass_degree),
+             __tide_check_number('season_jump', season_jump),
+             __tide_check_number('trend_jump', trend_jump),
+             __tide_check_number('lowpass_jump', lowpass_jump),
+             __tide_check_flag('robust', robust), __tide_check_number('inner_loops', inner_loops),
+             __tide_check_number('outer_loops', outer_loops),
+             __tide_check_number('iterations', iterations),
+             __tide_check_text('transform', transform),
+             __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
+             __tide_check_text('on_error', on_error), __tide_check_number('sample', sample)]) AS __ok) AS __checked
+      WHERE __checked.__ok);
+
+CREATE OR REPLACE TEMP MACRO tide_audit(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', sample := 20) AS TABLE
+    (SELECT * FROM __tide_audit_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, sample := sample)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', sample := 20) AS TABLE
+    (SELECT * FROM __tide_audit_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, sample := sample));

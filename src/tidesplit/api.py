@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from . import answers, arguments, summaries
-from .arguments import FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
+from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
 from .decompose import segment_counts
 from .errors import ParamError
 from .params import SplitParams
@@ -345,14 +345,15 @@ def profile(
     out["step"] = found.step
     for k, name in enumerate(summaries.PROFILE_COLUMNS):
         out[name] = found.values[:, k]
-    if found.strength_by_period is not None:
-        out["strength_by_period"] = found.strength_by_period
+    out["strength_by_period"] = found.strength_by_period or [None] * len(out)
     out["peak_position"] = np.where(found.peak >= 0, found.peak, np.nan)
     out["peak_label"] = found.peak_label
     out["trough_position"] = np.where(found.trough >= 0, found.trough, np.nan)
     out["trough_label"] = found.trough_label
     used = result.batch.periods
     out["period"] = np.where(used > 0, used, np.nan)
+    several = result.batch.series_periods or [(int(u),) if u > 0 else () for u in used]
+    out["periods"] = [list(p) if p else None for p in several]
     out["boxcox_lambda"] = result.batch.lambdas
     out["status"] = result.status
     return out
@@ -473,7 +474,68 @@ def forecast(
     return out
 
 
+def audit(
+    data: Any,
+    key: str | Sequence[str],
+    time: str,
+    value: str,
+    period: int | None = None,
+    **given: Any,
+) -> pd.DataFrame:
+    """Split a sample of the series again with statsmodels' STL (or MSTL with several
+    periods) under the same settings, and give the largest difference of each component.
+
+    A check an ELT job or an auditor can run on a fleet's numbers against the reference
+    implementation. ``sample`` keys (default 20) are chosen by a hash of the key. Where
+    statsmodels cannot follow the settings (missing values on the series' grid, a fixed
+    seasonal pattern, settings its functions do not take), the status says so and no
+    difference is given.
+
+    Examples
+    --------
+    >>> t = np.arange(96)
+    >>> frame = pd.DataFrame({"k": np.repeat(["a", "b"], 48), "t": np.tile(t[:48], 2),
+    ...                       "v": 10 + np.sin(2 * np.pi * t / 12) + 0.01 * t})
+    >>> found = audit(frame, "k", "t", "v", period=12)
+    >>> found["reference"].tolist(), bool(found["trend_gap"].max() < 1e-8)
+    (['statsmodels STL', 'statsmodels STL'], True)
+    """
+    from .crosscheck import audit as _audit
+    from .crosscheck import sample_by_hash
+
+    settings = _settings(AUDIT, period, given)
+    table = _Table(data, key, time, value, answers.AUDIT)
+    chosen = sample_by_hash([table.label(i) for i in range(table.starts.size)], settings["sample"])
+    rows = np.concatenate(
+        [np.arange(table.offsets[i], table.offsets[i + 1]) for i in chosen]
+        or [np.zeros(0, dtype=np.int64)]
+    )
+    lengths = np.diff(table.offsets)[chosen]
+    params = SplitParams.from_settings(settings)
+    result = split_rows(
+        table.values[rows],
+        np.concatenate(([0], np.cumsum(lengths))).astype(np.int64),
+        params,
+        codes=table.frame["__code"].to_numpy()[rows],
+        kind=table.kind,
+        time_zone=table.zone,
+        label=lambda i: table.label(int(chosen[i])),
+        status=[table.status[i] for i in chosen],
+        on_error=settings["on_error"],
+        fill_gaps=True,
+    )
+    found = _audit(result, params)
+    out = table.key_frame(chosen)
+    out["reference"] = found.reference
+    out["points_compared"] = found.compared
+    for k, name in enumerate(("trend_gap", "seasonal_gap", "remainder_gap")):
+        out[name] = found.gaps[:, k]
+    out["status"] = found.status
+    return out
+
+
 _signed(split_table, SPLIT, SPLIT_MULTI)
 _signed(profile, PROFILE)
 _signed(outliers, OUTLIERS)
 _signed(forecast, FORECAST)
+_signed(audit, AUDIT)

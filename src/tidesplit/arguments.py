@@ -25,8 +25,9 @@ SPLIT_LIST = "split_list"
 PROFILE = "profile"
 OUTLIERS = "outliers"
 FORECAST = "forecast"
-FUNCTIONS = (SPLIT, SPLIT_MULTI, SPLIT_LIST, PROFILE, OUTLIERS, FORECAST)
-_ANSWERS = (PROFILE, OUTLIERS, FORECAST)
+AUDIT = "audit"
+FUNCTIONS = (SPLIT, SPLIT_MULTI, SPLIT_LIST, PROFILE, OUTLIERS, FORECAST, AUDIT)
+_ANSWERS = (PROFILE, OUTLIERS, FORECAST, AUDIT)
 _ONE_PERIOD = (SPLIT, SPLIT_LIST, *_ANSWERS)
 _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
@@ -278,6 +279,15 @@ REGISTRY: tuple[Argument, ...] = (
         (FORECAST,),
         default="damped",
         choices=("damped", "drift", "level", "select"),
+        decomposition=False,
+    ),
+    Argument(
+        "sample",
+        WHOLE,
+        "how many keys to split again with the reference implementation (chosen by a hash "
+        "of the key)",
+        (AUDIT,),
+        default=20,
         decomposition=False,
     ),
 )

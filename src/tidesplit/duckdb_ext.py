@@ -18,7 +18,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import arguments, batch, calendar, sql_build, summaries
+from . import answers, arguments, batch, calendar, sql_build, summaries
 from .arguments import SQL_TYPES
 from .decompose import segment_counts
 from .errors import ParamError
@@ -283,7 +283,12 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     period_offsets = np.concatenate(([0], np.cumsum(kept))).astype(np.int64)
     return {
         "period": pa.array(used, type=pa.int64(), mask=used == 0),
-        "periods": _lists(flat, period_offsets, pa.int64()),
+        # NULL for a series left unsplit, as period is
+        "periods": pa.ListArray.from_arrays(
+            pa.array(period_offsets.astype(np.int32)),
+            pa.array(flat, pa.int64()),
+            mask=pa.array(used == 0),
+        ),
         "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
         "status": pa.array(result.status, type=pa.string()),
     }
@@ -311,6 +316,22 @@ def _profile_handler(call: _Call) -> pa.Array:
     fields["trough_position"] = pa.array(found.trough, pa.int64(), mask=found.trough < 0)
     fields["trough_label"] = pa.array(found.trough_label, pa.string())
     fields.update(_series_fields(result))
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
+def _audit_handler(call: _Call) -> pa.Array:
+    from .crosscheck import audit
+
+    result = call.split(fill_gaps=True)
+    found = audit(result, call.params)
+    fields = {
+        "reference": pa.array(found.reference, pa.string()),
+        "points_compared": pa.array(found.compared, pa.int64()),
+        "trend_gap": pa.array(found.gaps[:, 0], pa.float64(), from_pandas=True),
+        "seasonal_gap": pa.array(found.gaps[:, 1], pa.float64(), from_pandas=True),
+        "remainder_gap": pa.array(found.gaps[:, 2], pa.float64(), from_pandas=True),
+        "status": pa.array(found.status, pa.string()),
+    }
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
@@ -376,19 +397,13 @@ def _forecast_handler(call: _Call) -> pa.Array:
 _SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
 UDFS: dict[str, tuple[Any, str]] = {
     UDF_NAME: (_split_handler, RESULT_TYPE),
-    "__tide_profile_series": (
-        _profile_handler,
-        "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
-        + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
-        + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
-        "peak_label VARCHAR, trough_position BIGINT, trough_label VARCHAR, "
-        f"{_SERIES_TYPES})",
-    ),
+    "__tide_profile_series": (_profile_handler, answers.struct_type(answers.PROFILE_COLUMNS)),
     "__tide_outlier_series": (
         _outlier_handler,
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
+    "__tide_audit_series": (_audit_handler, answers.struct_type(answers.AUDIT_COLUMNS)),
     "__tide_forecast_series": (
         _forecast_handler,
         "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from . import answers
 from .arguments import (
+    AUDIT,
     FLAG,
     FORECAST,
     NUMBER,
@@ -45,6 +46,7 @@ UDFS = {
     "__tide_profile_series": (PROFILE,),
     "__tide_outlier_series": (OUTLIERS,),
     "__tide_forecast_series": (FORECAST,),
+    "__tide_audit_series": (AUDIT,),
 }
 UDF_OF = {f: udf for udf, functions in UDFS.items() for f in functions}
 
@@ -256,13 +258,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              {_udf_call(_LEAD_CALL, SPLIT, SPLIT_MULTI)} AS __parts
@@ -325,10 +327,11 @@ def render() -> str:
 def _answer_macros() -> str:
     named = {
         f: _named(f).replace("period := period", "period := __tide_by_name(by_name_only, period)")
-        for f in (PROFILE, OUTLIERS, FORECAST)
+        for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     inner = {
-        f: ", ".join(f"{a.name} := NULL" for a in of(f)) for f in (PROFILE, OUTLIERS, FORECAST)
+        f: ", ".join(f"{a.name} := NULL" for a in of(f))
+        for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     profile = f"""\
 -- Per-series answers, one row per key.
@@ -391,7 +394,20 @@ FROM (SELECT __key, __time_rows,
         FORECAST,
         f"SELECT * FROM __tide_forecast_keys(tbl, {{keys}}, time, value, {named[FORECAST]})",
     )
-    return "\n".join([profile, outliers, forecast])
+    audit = f"""\
+-- A sample of keys split again by statsmodels under the same settings: the largest
+-- difference of each component, or why statsmodels cannot follow.
+CREATE OR REPLACE TEMP MACRO __tide_audit_keys(tbl, keys, time, value, {inner[AUDIT]}) AS TABLE
+SELECT unnest(__key), unnest(__a)
+FROM (SELECT __key,
+             {_udf_call(_LEAD_CALL, AUDIT)} AS __a
+      FROM (SELECT * FROM __tide_grouped(tbl, keys, time, value)
+            ORDER BY hash(CAST(__key AS VARCHAR)) LIMIT sample),
+           {_refusals(AUDIT, answers.AUDIT)}
+      WHERE __checked.__ok);
+
+""" + _public(AUDIT, f"SELECT * FROM __tide_audit_keys(tbl, {{keys}}, time, value, {named[AUDIT]})")
+    return "\n".join([profile, outliers, forecast, audit])
 
 
 if __name__ == "__main__":
