@@ -19,6 +19,7 @@ from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
 from .status import OK, split_mask, with_note
+from .tuning import LARGEST_MAGNITUDE, LINEAR_SHARE
 
 
 @dataclass
@@ -51,11 +52,6 @@ def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     """
     running = np.concatenate(([0], np.cumsum(mask, dtype=np.int64)))
     return running[offsets[1:]] - running[offsets[:-1]]
-
-
-# Finite values beyond this magnitude are refused: sums of squares in the fits and in the
-# answers (variances, forecast errors) could overflow, which would give NaN with status ok.
-LARGEST_MAGNITUDE = 1e150
 
 
 def _point_text(describe_point: Callable[[int, int], str] | None, s: int, i: int) -> str:
@@ -275,7 +271,7 @@ def _run_kernel(
     for members, n, row in _equal_shape_groups(candidates, lengths, settings):
         if not linear.eligible(n, row):
             continue
-        if members.size < max(2, n // 4) and not linear.is_cached(n, row):
+        if members.size < max(2, n // LINEAR_SHARE) and not linear.is_cached(n, row):
             continue  # too few series to pay for building the matrices
         if members.size == (members[-1] - members[0] + 1):
             # consecutive series of one length: a reshaped view, no gather

@@ -14,12 +14,10 @@ import numpy as np
 from . import arguments
 from .errors import ParamError
 from .kernel import layout as _k
+from .tuning import DEFAULT_SEASON_SPAN
 
 TRANSFORMS = next(a.choices for a in arguments.REGISTRY if a.name == "transform")
 ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
-
-# Common practice (the paper asks only for an odd number of at least 7).
-DEFAULT_SEASON_SPAN = 13
 
 
 def smallest_odd_at_least(x: float) -> int:
