@@ -26,6 +26,7 @@ from .kernel import grid
 from .params import SplitParams
 from .rows import COMPONENTS, RowsResult, split_rows
 from .status import OK
+from .tuning import PARALLEL_POINTS
 
 UDF_NAME = "__tide_split_series"
 
@@ -53,10 +54,6 @@ RESULT_TYPE = (
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
     "boxcox_lambda DOUBLE, status VARCHAR)"
 )
-# DuckDB runs UDF calls (up to 2048 series each) on its own threads, so a call normally
-# uses one thread. A call this large (a few very long series) is likely the only one in
-# flight, so it spreads its series over numba's threads instead.
-PARALLEL_POINTS = 1_000_000
 
 
 def _column_values(col: pa.Array) -> tuple[bool, Any]:

@@ -14,6 +14,7 @@ import numpy as np
 from . import arguments
 from .errors import ParamError
 from .kernel import layout as _k
+from .tuning import DEFAULT_SEASON_SPAN
 
 TRANSFORMS = next(a.choices for a in arguments.REGISTRY if a.name == "transform")
 ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
@@ -21,9 +22,6 @@ ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
 # Where Guerrero's lambda is searched by default: from the log (0, a multiplicative split)
 # to no transform (1, an additive one).
 DEFAULT_BOXCOX_BOUNDS = (0.0, 1.0)
-
-# Common practice (the paper asks only for an odd number of at least 7).
-DEFAULT_SEASON_SPAN = 13
 
 
 def smallest_odd_at_least(x: float) -> int:
