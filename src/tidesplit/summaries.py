@@ -22,6 +22,15 @@ from .kernel import summary, threads
 from .params import SplitParams
 from .rows import RowsResult
 from .status import OK, split_mask
+from .tuning import (
+    CANDIDATE_SHARE,
+    DEFAULT_MAD_THRESHOLD,
+    DEFAULT_SIGNIFICANCE,
+    NEIGHBOUR_REACH,
+    ROLLING_ORIGINS,
+    SET_ASIDE_ROUNDS,
+    SET_ASIDE_WEIGHT,
+)
 
 PROFILE_COLUMNS = (
     "strength_of_trend",
@@ -32,27 +41,9 @@ PROFILE_COLUMNS = (
     "remainder_acf1",
 )
 OUTLIER_METHODS = ("stepwise", "mad")
-# The stepwise test's significance: the chance that a series of pure Gaussian noise has any
-# point flagged (Rosner 1983 tabulates 0.05 and 0.01).
-DEFAULT_SIGNIFICANCE = 0.05
-# Candidates tested per series: one point in ten at most (the test needs an upper bound on
-# the number of outliers; ours, common practice: unusual points are by nature few).
-CANDIDATE_SHARE = 0.1
-# Points the robustness pass sets aside before the plain refit: weight below 0.01, that is
-# beyond about 0.95 of the bisquare's cut-off of 6 MAD (near 3.8 standard deviations
-# under Gaussian noise, so about one point in 7,000 of pure noise).
-SET_ASIDE_WEIGHT = 0.01
-# Refits at most: points are set aside again by the weights of each refit's remainder
-# until the set stops changing.
-SET_ASIDE_ROUNDS = 4
-NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
-DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score (Iglewicz & Hoaglin 1993 suggest 3.5)
 FORECAST_METHODS = ("damped", "drift", "level", "select")
 SELECTABLE = ("damped", "drift", "level")  # what 'select' chooses from, per series
 DEFAULT_FORECAST_METHOD = "damped"
-# Earlier ends each series is forecast from, a cycle apart, to choose a method and
-# to check its intervals on the series' own past.
-ROLLING_ORIGINS = 24
 
 
 def _ok(result: RowsResult) -> np.ndarray:

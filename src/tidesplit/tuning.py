@@ -32,3 +32,25 @@ LINEAR_SHARE = 4
 # uses one thread. A call this large (a few very long series) is likely the only one in
 # flight, so it spreads its series over numba's threads instead.
 PARALLEL_POINTS = 1_000_000
+
+# tide_outliers (see summaries.unusual_points).
+# The stepwise test's significance: the chance that a series of pure Gaussian noise has any
+# point flagged (Rosner 1983 tabulates 0.05 and 0.01).
+DEFAULT_SIGNIFICANCE = 0.05
+# Candidates tested per series: one point in ten at most (the test needs an upper bound on
+# the number of outliers; ours, common practice: unusual points are by nature few).
+CANDIDATE_SHARE = 0.1
+# Points the robustness pass sets aside before the plain refit: weight below 0.01, that is
+# beyond about 0.95 of the bisquare's cut-off of 6 MAD (near 3.8 standard deviations
+# under Gaussian noise, so about one point in 7,000 of pure noise).
+SET_ASIDE_WEIGHT = 0.01
+# Refits at most: points are set aside again by the weights of each refit's remainder
+# until the set stops changing.
+SET_ASIDE_ROUNDS = 4
+NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
+DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score; Iglewicz & Hoaglin (1993) suggest 3.5 (from memory)
+
+# tide_forecast (see summaries.forecast).
+# Earlier ends each series is forecast from, a cycle apart, to choose a method and
+# to check its intervals on the series' own past.
+ROLLING_ORIGINS = 24
