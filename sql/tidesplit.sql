@@ -98,6 +98,9 @@ CREATE OR REPLACE TEMP MACRO __tide_grid_value_rows(source, value_rows) AS
 CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
     list_filter(parts, lambda part: part.period = period)[1].seasonal;
 
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack(trend := parts.trend, seasonal := parts.seasonal, remainder := parts.remainder, adjusted := parts.adjusted, weight := parts.weight, period := parts.period, boxcox_lambda := parts.boxcox_lambda, status := parts.status);
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise') AS
     CASE WHEN __tide_refuse([__tide_check_number('period', period),
@@ -115,7 +118,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_text('on_error', on_error)])
-    THEN __tide_split_series(NULL, NULL, NULL, NULL, values,
+    THEN __tide_list_parts(__tide_split_series(NULL, NULL, NULL, NULL, values,
         TRY_CAST(period AS DOUBLE),
         NULL,
         TRY_CAST(season_span AS DOUBLE),
@@ -135,7 +138,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
         NULL,
-        TRY_CAST(on_error AS VARCHAR))
+        TRY_CAST(on_error AS VARCHAR)))
     END;
 
 -- With fill_gaps the rows are those of the regular grid, input rows picked by their source

@@ -228,11 +228,17 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
 
 
 def _split_list() -> str:
+    fields = ("trend", "seasonal", "remainder", "adjusted", "weight", "period",
+              "boxcox_lambda", "status")  # fmt: skip
+    picked = ", ".join(f"{f} := parts.{f}" for f in fields)
     return f"""\
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack({picked});
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, {_signature(SPLIT_LIST)}) AS
     CASE WHEN __tide_refuse({_checks(SPLIT_LIST)})
-    THEN {_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)}
+    THEN __tide_list_parts({_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)})
     END;
 """
 
