@@ -18,7 +18,7 @@ from .arguments import whole_number
 from .calendar import cycle_label
 from .errors import ParamError, SplitError
 from .kernel import summary, threads
-from .rows import RowsResult
+from .keyed_split import RowsResult
 from .status import split_mask
 
 PROFILE_COLUMNS = (
