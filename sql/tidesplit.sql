@@ -9,13 +9,22 @@ CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
     (t DATE) AS epoch_us(t),
     (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
     (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ');
+    (t HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
     (c, sample TIMESTAMP) AS make_timestamp(c),
     (c, sample TIMESTAMPTZ) AS timezone('UTC', make_timestamp(c)),
-    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE);
+    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE),
+    (c, sample VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
+    (c, sample DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- Why an argument's type is refused (NULL when it is fine), one macro per kind.
 CREATE OR REPLACE TEMP MACRO __tide_check_number(name, x) AS
