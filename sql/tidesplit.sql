@@ -9,13 +9,22 @@ CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
     (t DATE) AS epoch_us(t),
     (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
     (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ');
+    (t HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
     (c, sample TIMESTAMP) AS make_timestamp(c),
     (c, sample TIMESTAMPTZ) AS timezone('UTC', make_timestamp(c)),
-    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE);
+    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE),
+    (c, sample VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
+    (c, sample DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- Why an argument's type is refused (NULL when it is fine), one macro per kind.
 CREATE OR REPLACE TEMP MACRO __tide_check_number(name, x) AS
@@ -98,6 +107,9 @@ CREATE OR REPLACE TEMP MACRO __tide_grid_value_rows(source, value_rows) AS
 CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
     list_filter(parts, lambda part: part.period = period)[1].seasonal;
 
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack(trend := parts.trend, seasonal := parts.seasonal, remainder := parts.remainder, adjusted := parts.adjusted, weight := parts.weight, period := parts.period, boxcox_lambda := parts.boxcox_lambda, status := parts.status);
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise') AS
     CASE WHEN __tide_refuse([__tide_check_number('period', period),
@@ -116,7 +128,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_text('on_error', on_error)])
-    THEN __tide_split_series(NULL, NULL, NULL, NULL, values,
+    THEN __tide_list_parts(__tide_split_series(NULL, NULL, NULL, NULL, values,
         TRY_CAST(period AS DOUBLE),
         NULL,
         TRY_CAST(season_span AS DOUBLE),
@@ -137,7 +149,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         NULL,
-        TRY_CAST(on_error AS VARCHAR))
+        TRY_CAST(on_error AS VARCHAR)))
     END;
 
 -- With fill_gaps the rows are those of the regular grid, input rows picked by their source

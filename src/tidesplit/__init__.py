@@ -47,8 +47,8 @@ _HOMES = {
     "outliers": "api",
     "forecast": "api",
     "audit": "api",
-    "split_batch": "decompose",
-    "BatchResult": "decompose",
+    "split_batch": "batch_split",
+    "BatchResult": "batch_split",
     "SplitParams": "params",
 }
 

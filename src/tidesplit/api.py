@@ -12,10 +12,10 @@ import pandas as pd
 
 from . import answers, arguments, summaries
 from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
-from .decompose import segment_counts
+from .batch_split import segment_counts
 from .errors import ParamError
+from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
-from .rows import RowsResult, split_rows
 from .status import OK, split_mask
 
 COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")

@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .keyed_split import RowsResult
 from .params import ResolvedParams, SplitParams
-from .rows import RowsResult
 from .status import is_split
 
 
@@ -133,7 +133,7 @@ def audit(result: RowsResult, params: SplitParams) -> Audit:
 
     Examples
     --------
-    >>> from tidesplit.rows import split_rows
+    >>> from tidesplit.keyed_split import split_rows
     >>> y = 10 + np.tile([1.0, -1.0, 2.0, -2.0], 8) + np.linspace(0, 1, 32)
     >>> params = SplitParams(period=4)
     >>> found = audit(split_rows(y, np.array([0, 32]), params), params)

@@ -18,13 +18,13 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import answers, arguments, batch, calendar, sql_build, summaries
+from . import answers, arguments, arrow_lists, calendar, sql_build, summaries
 from .arguments import SQL_TYPES
-from .decompose import segment_counts
+from .batch_split import segment_counts
 from .errors import ParamError
 from .kernel import grid
+from .keyed_split import COMPONENTS, RowsResult, split_rows
 from .params import SplitParams
-from .rows import COMPONENTS, RowsResult, split_rows
 from .status import OK
 from .tuning import PARALLEL_POINTS
 
@@ -172,18 +172,18 @@ class _Call:
 
 def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     labels = columns["label"]
-    offsets, child, null_rows = batch.list_layout(columns["values"])
-    flat = batch.float_values(child)
+    offsets, child, null_rows = arrow_lists.list_layout(columns["values"])
+    flat = arrow_lists.float_values(child)
     status = [OK] * len(null_rows)
     for i in np.flatnonzero(null_rows):
         status[i] = "the list of values is NULL"
     time_lists = columns["time_codes"]
     codes = None
     if time_lists.null_count < len(time_lists):
-        time_offsets, time_child, _ = batch.list_layout(time_lists)
+        time_offsets, time_child, _ = arrow_lists.list_layout(time_lists)
         if not np.array_equal(time_offsets, offsets):
             raise ValueError(f"{UDF_NAME}: times and values differ in length")
-        codes, time_nulls = batch.int_values(time_child)
+        codes, time_nulls = arrow_lists.int_values(time_child)
         nulls_per_series = segment_counts(time_nulls, offsets) if time_nulls.any() else []
         for i in np.flatnonzero(nulls_per_series):
             if status[i] == OK:
@@ -242,7 +242,7 @@ def _split_handler(call: _Call) -> pa.Array:
     out_offsets = result.offsets
     nulls = call.null_rows if call.null_rows.any() else None
     fields = {
-        part: batch.float_lists(getattr(result, part), out_offsets, nulls)
+        part: arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
         for part in ("trend", "seasonal", "remainder", "adjusted", "weight")
     }
     if result.seasonal_parts is not None:
@@ -414,7 +414,9 @@ def _as_udf(udf: str, handler: Any) -> Any:
     names = [n for n, _ in udf_types(udf)]
 
     def call(*columns: Any) -> pa.Array:
-        decoded = _decode(udf, {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)})
+        decoded = _decode(
+            udf, {n: arrow_lists.as_array(c) for n, c in zip(names, columns, strict=True)}
+        )
         return handler(decoded)
 
     call.__signature__ = udf_signature(names)  # type: ignore[attr-defined]

@@ -74,6 +74,29 @@ _KIND_CHECKS = "\n".join(
 )
 
 
+# Time column types refused, each with a message that names what to give instead.
+_TIME_REFUSALS = (
+    ("VARCHAR", "the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ "
+     "(CAST it first)"),
+    ("DOUBLE", "the time column holds fractional numbers; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("HUGEINT", "the time column holds integers wider than BIGINT; give BIGINT, DATE, "
+     "TIMESTAMP or TIMESTAMPTZ"),
+    ("TIME", "the time column holds times of day without a date; give DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("INTERVAL", "the time column holds intervals; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("BOOLEAN", "the time column holds true/false; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+)  # fmt: skip
+
+
+def _time_refusals(lead: str) -> str:
+    return ",\n".join(
+        f"    ({lead} {sql_type}) AS error('{message}')" for sql_type, message in _TIME_REFUSALS
+    )
+
+
 def udf_arguments(udf: str) -> tuple[Argument, ...]:
     """The named arguments a UDF takes after ``LEAD``: those of every function it serves,
     in the registry's order."""
@@ -147,15 +170,14 @@ CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
     (t TIMESTAMP) AS epoch_us(t),
     (t TIMESTAMPTZ) AS epoch_us(t),
     (t DATE) AS epoch_us(t),
-    (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
-    (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ');
+{time_refusals};
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
     (c, sample TIMESTAMP) AS make_timestamp(c),
     (c, sample TIMESTAMPTZ) AS timezone('UTC', make_timestamp(c)),
-    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE);
+    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE),
+{time_refusals_from};
 
 -- Why an argument's type is refused (NULL when it is fine), one macro per kind.
 {kind_checks}
@@ -230,11 +252,17 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
 
 
 def _split_list() -> str:
+    fields = ("trend", "seasonal", "remainder", "adjusted", "weight", "period",
+              "boxcox_lambda", "status")  # fmt: skip
+    picked = ", ".join(f"{f} := parts.{f}" for f in fields)
     return f"""\
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack({picked});
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, {_signature(SPLIT_LIST)}) AS
     CASE WHEN __tide_refuse({_checks(SPLIT_LIST)})
-    THEN {_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)}
+    THEN __tide_list_parts({_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)})
     END;
 """
 
@@ -298,7 +326,9 @@ def render() -> str:
     parts = [
         "-- The SQL functions of tidesplit, loaded by tidesplit.register().\n"
         "-- Written by tidesplit/sql_build.py from the argument registry; do not edit by hand.\n",
-        HELPERS.replace("{kind_checks}", _KIND_CHECKS),
+        HELPERS.replace("{kind_checks}", _KIND_CHECKS)
+        .replace("{time_refusals}", _time_refusals("t"))
+        .replace("{time_refusals_from}", _time_refusals("c, sample")),
         _split_list(),
         _split_keys(),
         "-- One key column by name, or a list of them (exact names, not patterns). Arguments\n"

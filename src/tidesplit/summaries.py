@@ -15,12 +15,12 @@ import numpy as np
 
 from . import calendar, transform
 from .arguments import whole_number
+from .batch_split import split_batch
 from .calendar import cycle_label
-from .decompose import split_batch
 from .errors import ParamError, SplitError
 from .kernel import summary, threads
+from .keyed_split import RowsResult
 from .params import SplitParams
-from .rows import RowsResult
 from .status import OK, split_mask
 from .tuning import (
     CANDIDATE_SHARE,

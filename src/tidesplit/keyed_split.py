@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import calendar, memory
-from .decompose import BatchResult, split_batch
+from .batch_split import BatchResult, split_batch
 from .params import SplitParams
 from .status import OK
 
