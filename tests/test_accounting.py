@@ -6,6 +6,8 @@ The fleet (tests/fleet.py) holds series of known kinds; the checks know what eac
 
 from __future__ import annotations
 
+import re
+
 import duckdb
 import numpy as np
 import pandas as pd
@@ -462,3 +464,27 @@ def test_split_list_over_many_groups_in_one_call(fleet_in_one_call):
             np.testing.assert_allclose(total[seen] + remainder[seen], values[seen], rtol=1e-9)
         else:
             assert all(v is None for v in parts["trend"]), item
+
+
+@pytest.mark.parametrize(
+    ("args", "words"),
+    [
+        ("period := 4, inner_loops := 1e9", "inner_loops must be at most 100, got 1e+09"),
+        ("period := 4, robust := true, outer_loops := 1000", "outer_loops must be at most 100"),
+        ("period := 4, season_jump := 1e300", "season_jump must be at most 10,000,000"),
+        ("period := 1e300", "period must be at most 10,000,000"),
+    ],
+)
+def test_arguments_beyond_their_bounds_are_refused_before_any_work(con, args, words):
+    con.execute("CREATE TABLE f AS SELECT 'a' k, i t, 5.0 + sin(i) v FROM range(40) r(i)")
+    for keep in ("", ", on_error := 'keep'"):
+        with pytest.raises(duckdb.Error, match=re.escape(words)):
+            con.sql(f"SELECT * FROM tide_split(f, 'k', 't', 'v', {args}{keep})").fetchall()
+    with pytest.raises(duckdb.Error, match="horizon must be at most 100,000"):
+        con.sql(
+            "SELECT * FROM tide_forecast(f, 'k', 't', 'v', period := 4, horizon := 1e9)"
+        ).fetchall()
+    with pytest.raises(duckdb.Error, match="horizon must be a whole number, got nan"):
+        con.sql(
+            "SELECT * FROM tide_forecast(f, 'k', 't', 'v', period := 4, horizon := 'NaN'::DOUBLE)"
+        ).fetchall()

@@ -164,6 +164,8 @@ def names(columns: tuple[Column, ...]) -> tuple[str, ...]:
 
 
 SPLIT = names(SPLIT_COLUMNS)
+# the per-point components of a split, on every front
+COMPONENTS = SPLIT[:5]
 SPLIT_MULTI = names(SPLIT_MULTI_COLUMNS)
 PROFILE = names(PROFILE_COLUMNS)
 OUTLIERS = names(OUTLIERS_COLUMNS)

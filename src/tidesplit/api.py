@@ -11,14 +11,13 @@ import numpy as np
 import pandas as pd
 
 from . import answers, arguments, summaries
+from .answers import COMPONENTS
 from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
 from .batch_split import segment_counts
 from .errors import ParamError
 from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
 from .status import OK, split_mask
-
-COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
 
 @dataclass(frozen=True)

@@ -58,6 +58,9 @@ class Argument:
     default_for: tuple[tuple[str, Any], ...] = ()
     # True for the settings of the decomposition itself (they make up ``SplitParams``)
     decomposition: bool = True
+    # the largest value (each entry, for a list) taken: a bound on the work and memory an
+    # argument can ask for, checked before any series runs
+    most: float | None = None
 
     def default_in(self, function: str) -> Any:
         return dict(self.default_for).get(function, self.default)
@@ -70,6 +73,7 @@ REGISTRY: tuple[Argument, ...] = (
         "points per seasonal cycle (12 for monthly data with a yearly cycle)",
         _ONE_PERIOD,
         default_text="implied by the time step",
+        most=10_000_000,
     ),
     Argument(
         "periods",
@@ -77,6 +81,7 @@ REGISTRY: tuple[Argument, ...] = (
         "several seasonal periods (MSTL); `[]` takes those the time step implies",
         _SEVERAL_PERIODS,
         default_text="implied by the step (tide_split_multi); one period (answers)",
+        most=10_000_000,
     ),
     Argument(
         "season_span",
@@ -86,6 +91,7 @@ REGISTRY: tuple[Argument, ...] = (
         "weighted mean of each cycle position)",
         _EVERY_SPLIT,
         default_text="13 (common practice); 7 + 4 i for the i-th of several periods",
+        most=10_000_001,
     ),
     Argument(
         "season_spans",
@@ -93,6 +99,7 @@ REGISTRY: tuple[Argument, ...] = (
         "one season span per period",
         _SEVERAL_PERIODS,
         default_text="7 + 4 i (Bandara et al. 2021)",
+        most=10_000_001,
     ),
     Argument(
         "trend_span",
@@ -100,6 +107,7 @@ REGISTRY: tuple[Argument, ...] = (
         "loess span of the trend smoothing, odd >= 3",
         _EVERY_SPLIT,
         default_text="smallest odd >= 1.5 period / (1 - 1.5 / season_span)",
+        most=10_000_001,
     ),
     Argument(
         "lowpass_span",
@@ -107,6 +115,7 @@ REGISTRY: tuple[Argument, ...] = (
         "loess span of the low-pass filter, odd >= 3",
         _EVERY_SPLIT,
         default_text="smallest odd >= period",
+        most=10_000_001,
     ),
     Argument(
         "season_degree",
@@ -135,6 +144,7 @@ REGISTRY: tuple[Argument, ...] = (
         "fit the seasonal loess every k-th point and interpolate",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "trend_jump",
@@ -142,6 +152,7 @@ REGISTRY: tuple[Argument, ...] = (
         "the same for the trend",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "lowpass_jump",
@@ -149,6 +160,7 @@ REGISTRY: tuple[Argument, ...] = (
         "the same for the low-pass filter",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "robust",
@@ -165,6 +177,7 @@ REGISTRY: tuple[Argument, ...] = (
         _EVERY_SPLIT,
         default_text="2, or 1 with robust; 2 in tide_outliers",
         default_for=((OUTLIERS, 2),),
+        most=100,
     ),
     Argument(
         "outer_loops",
@@ -173,6 +186,7 @@ REGISTRY: tuple[Argument, ...] = (
         _EVERY_SPLIT,
         default_text="0, or 10 with robust; 1 in tide_outliers (see there)",
         default_for=((OUTLIERS, 1),),
+        most=100,
     ),
     Argument(
         "iterations",
@@ -180,6 +194,7 @@ REGISTRY: tuple[Argument, ...] = (
         "rounds over the periods (MSTL)",
         _SEVERAL_PERIODS,
         default_text="2 (Bandara et al. 2021)",
+        most=100,
     ),
     Argument(
         "transform",
@@ -262,6 +277,7 @@ REGISTRY: tuple[Argument, ...] = (
         (FORECAST,),
         default=12,
         decomposition=False,
+        most=100_000,
     ),
     Argument(
         "level",
@@ -289,6 +305,7 @@ REGISTRY: tuple[Argument, ...] = (
         (AUDIT,),
         default=20,
         decomposition=False,
+        most=100_000,
     ),
 )
 
@@ -329,13 +346,13 @@ def _check_kind(argument: Argument, value: Any) -> Any:
     if kind == WHOLE_LIST:
         if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
             raise ParamError(f"{name} must be a list of whole numbers, got {value!r}")
-        return tuple(whole_number(name, v) for v in value)
+        return tuple(_at_most(argument, whole_number(name, v)) for v in value)
     if kind == NUMBER_LIST:
         if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
             raise ParamError(f"{name} must be a list of numbers, got {value!r}")
         return tuple(_check_kind(Argument(name, NUMBER, "", ()), v) for v in value)
     if kind == WHOLE:
-        return whole_number(name, value)
+        return _at_most(argument, whole_number(name, value))
     if isinstance(value, bool) or (
         not isinstance(value, (int, float)) and not hasattr(value, "__float__")
     ):
@@ -343,7 +360,13 @@ def _check_kind(argument: Argument, value: Any) -> Any:
     number = float(value)
     if not math.isfinite(number):
         raise ParamError(f"{name} must be finite, got {value!r}")
-    return number
+    return _at_most(argument, number)
+
+
+def _at_most(argument: Argument, value: Any) -> Any:
+    if argument.most is not None and value is not None and value > argument.most:
+        raise ParamError(f"{argument.name} must be at most {argument.most:,.0f}, got {value:g}")
+    return value
 
 
 def whole_number(name: str, value: Any) -> int | None:
@@ -432,6 +455,8 @@ def markdown_table() -> str:
         meaning = argument.meaning
         if argument.choices:
             meaning += f" ({', '.join(repr(c) for c in argument.choices)})"
+        if argument.most is not None:
+            meaning += f"; at most {argument.most:,.0f}"
         lines.append(f"| `{argument.name}` | {_default_words(argument)} | {takers} | {meaning} |")
     return "\n".join(lines)
 

@@ -19,11 +19,12 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from . import answers, arguments, arrow_lists, calendar, sql_build, summaries
+from .answers import COMPONENTS
 from .arguments import SQL_TYPES
 from .batch_split import segment_counts
 from .errors import ParamError
 from .kernel import grid
-from .keyed_split import COMPONENTS, RowsResult, split_rows
+from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
 from .status import OK
 from .tuning import PARALLEL_POINTS
@@ -243,7 +244,7 @@ def _split_handler(call: _Call) -> pa.Array:
     nulls = call.null_rows if call.null_rows.any() else None
     fields = {
         part: arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
-        for part in ("trend", "seasonal", "remainder", "adjusted", "weight")
+        for part in COMPONENTS
     }
     if result.seasonal_parts is not None:
         fields["seasonal_by_period"] = _per_row_parts(

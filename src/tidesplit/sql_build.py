@@ -252,8 +252,7 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
 
 
 def _split_list() -> str:
-    fields = ("trend", "seasonal", "remainder", "adjusted", "weight", "period",
-              "boxcox_lambda", "status")  # fmt: skip
+    fields = (*answers.COMPONENTS, "period", "boxcox_lambda", "status")
     picked = ", ".join(f"{f} := parts.{f}" for f in fields)
     return f"""\
 -- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
