@@ -318,7 +318,7 @@ FROM (SELECT __key,
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR)) AS __p
       FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'period', 'periods', 'boxcox_lambda', 'status'])
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'time_step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'period', 'periods', 'boxcox_lambda', 'status'])
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -346,7 +346,7 @@ CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value 
 
 -- Points too far out to be noise (all rows with all_rows := true); every row
 -- of a series that could not be split, with its status.
-CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, method := NULL, significance := NULL, threshold := NULL, all_rows := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, rule := NULL, significance := NULL, threshold := NULL, all_rows := NULL) AS TABLE
 SELECT * FROM (
     SELECT unnest(__key),
            unnest(__time_rows, recursive := true),
@@ -381,7 +381,7 @@ SELECT * FROM (
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR),
-        TRY_CAST(method AS VARCHAR),
+        TRY_CAST(rule AS VARCHAR),
         TRY_CAST(significance AS DOUBLE),
         TRY_CAST(threshold AS DOUBLE),
         TRY_CAST(all_rows AS BOOLEAN)) AS __o
@@ -404,28 +404,28 @@ SELECT * FROM (
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
-             __tide_check_text('on_error', on_error), __tide_check_text('method', method),
+             __tide_check_text('on_error', on_error), __tide_check_text('rule', rule),
              __tide_check_number('significance', significance),
              __tide_check_number('threshold', threshold), __tide_check_flag('all_rows', all_rows)]) AS __ok) AS __checked
           WHERE __checked.__ok))
 WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok');
 
-CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', method := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, method := method, significance := significance, threshold := threshold, all_rows := all_rows)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', method := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
+     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, method := method, significance := significance, threshold := threshold, all_rows := all_rows));
+     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows));
 
--- Future rows per key up to a horizon, with prediction intervals; a series that could not
+-- Future rows per key, steps_ahead of them, with prediction intervals; a series that could not
 -- be split (on_error := 'keep') gives one row with its status and NULL forecasts.
-CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, horizon := NULL, level := NULL, method := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, steps_ahead := NULL, coverage := NULL, trend_model := NULL) AS TABLE
 SELECT unnest(__key),
        unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
-       unnest(__f.step) AS step,
+       unnest(__f.steps_ahead) AS steps_ahead,
        unnest(__f.forecast) AS forecast,
-       unnest(__f.lower) AS lower,
-       unnest(__f.upper) AS upper,
+       unnest(__f.low) AS low,
+       unnest(__f.high) AS high,
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              __tide_forecast_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -450,11 +450,11 @@ FROM (SELECT __key, __time_rows,
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR),
-        TRY_CAST(horizon AS DOUBLE),
-        TRY_CAST(level AS DOUBLE),
-        TRY_CAST(method AS VARCHAR)) AS __f
+        TRY_CAST(steps_ahead AS DOUBLE),
+        TRY_CAST(coverage AS DOUBLE),
+        TRY_CAST(trend_model AS VARCHAR)) AS __f
       FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['step', 'forecast', 'lower', 'upper', 'status'])
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['steps_ahead', 'forecast', 'low', 'high', 'status'])
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -472,14 +472,16 @@ FROM (SELECT __key, __time_rows,
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
-             __tide_check_text('on_error', on_error), __tide_check_number('horizon', horizon),
-             __tide_check_number('level', level), __tide_check_text('method', method)]) AS __ok) AS __checked
+             __tide_check_text('on_error', on_error),
+             __tide_check_number('steps_ahead', steps_ahead),
+             __tide_check_number('coverage', coverage),
+             __tide_check_text('trend_model', trend_model)]) AS __ok) AS __checked
       WHERE __checked.__ok);
 
-CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', horizon := 12, level := 0.95, method := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, horizon := horizon, level := level, method := method)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', horizon := 12, level := 0.95, method := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, horizon := horizon, level := level, method := method));
+CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model));
 
 -- A sample of keys split again by statsmodels under the same settings: the largest
 -- difference of each component, or why statsmodels cannot follow.

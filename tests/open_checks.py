@@ -139,8 +139,8 @@ def _holdout_rows(
                 "t",
                 "v",
                 period=period,
-                horizon=horizon,
-                level=level,
+                steps_ahead=horizon,
+                coverage=level,
                 **options,
             )
             for level in levels
@@ -159,7 +159,7 @@ def _holdout_rows(
             }
             for level, out in outputs.items():
                 mine = out[out["k"] == s.name]
-                lower, upper = mine["lower"].to_numpy(), mine["upper"].to_numpy()
+                lower, upper = mine["low"].to_numpy(), mine["high"].to_numpy()
                 inside = (actual >= lower) & (actual <= upper)
                 row["inside_" + str(level).replace(".", "_")] = int(inside[seen].sum())
                 row["forecast_mase"] = float(

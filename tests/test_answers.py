@@ -76,7 +76,7 @@ def test_profile_cycle_shape_and_labels(con):
     assert (row["peak_label"], row["trough_label"]) == ("April", "October")
     assert (row["peak_position"], row["trough_position"]) == (3, 9)
     assert row["seasonal_amplitude"] == pytest.approx(20, abs=0.5)
-    assert row["points"] == 72 and row["missing"] == 0 and row["step"] == "1 month"
+    assert row["points"] == 72 and row["missing"] == 0 and row["time_step"] == "1 month"
     assert row["period"] == 12 and row["status"] == "ok"
     python = tidesplit.profile(frame, "k", "month", "v").iloc[0]
     for name in ("strength_of_trend", "strength_of_season", "remainder_sd", "remainder_acf1"):
@@ -141,7 +141,7 @@ def test_outliers_in_sql_match_python_and_join_back(con, rng):
     np.testing.assert_allclose(sql["score"], python["score"], atol=1e-10)
     assert set(sql["direction"]) <= {"high", "low"} and sql["is_outlier"].all()
     every = con.sql(
-        "SELECT * FROM tide_outliers(frame, 'k', 'month', 'v', all_rows := true, method := 'mad')"
+        "SELECT * FROM tide_outliers(frame, 'k', 'month', 'v', all_rows := true, rule := 'mad')"
     ).df()
     assert len(every) == len(frame)
     # expected is trend + seasonal on the original scale
@@ -170,7 +170,7 @@ def test_drift_forecast_matches_statsmodels_stl_forecast():
     ).fit(inner_iter=2, outer_iter=0)
     theirs = fit.forecast(12)
     frame = pd.DataFrame({"k": "e", "t": np.arange(y.size), "v": y})
-    ours = tidesplit.forecast(frame, "k", "t", "v", period=12, horizon=12, method="drift")
+    ours = tidesplit.forecast(frame, "k", "t", "v", period=12, steps_ahead=12, trend_model="drift")
     np.testing.assert_allclose(ours["forecast"], theirs, rtol=1e-4)
     assert ours["t"].tolist() == list(range(y.size, y.size + 12))
 
@@ -234,7 +234,9 @@ def test_forecast_beats_seasonal_naive_on_held_out_tail(method):
     y = AIRLINE_PASSENGERS
     train, test = y[:-24], y[-24:]
     frame = monthly_frame(train, start="1949-01-01")
-    out = tidesplit.forecast(frame, "k", "month", "v", horizon=24, method=method, transform="log")
+    out = tidesplit.forecast(
+        frame, "k", "month", "v", steps_ahead=24, trend_model=method, transform="log"
+    )
     ours = mase(test, out["forecast"].to_numpy(), train, 12)
     naive = mase(test, np.tile(train[-12:], 2), train, 12)
     assert ours < naive, (ours, naive)
@@ -247,13 +249,15 @@ def test_intervals_widen_with_horizon(con, method):
     frame = monthly_frame(elec_equip_monthly())
     con.register("frame", frame)
     out = con.sql(
-        f"SELECT * FROM tide_forecast(frame, 'k', 'month', 'v', horizon := 18, level := 0.8, "
-        f"method := '{method}') ORDER BY step"
+        "SELECT * FROM tide_forecast(frame, 'k', 'month', 'v', steps_ahead := 18, "
+        f"coverage := 0.8, trend_model := '{method}') ORDER BY steps_ahead"
     ).df()
-    width = (out["upper"] - out["lower"]).to_numpy()
+    width = (out["high"] - out["low"]).to_numpy()
     assert (np.diff(width) > 0).all()
-    assert ((out["lower"] < out["forecast"]) & (out["forecast"] < out["upper"])).all()
-    python = tidesplit.forecast(frame, "k", "month", "v", horizon=18, level=0.8, method=method)
+    assert ((out["low"] < out["forecast"]) & (out["forecast"] < out["high"])).all()
+    python = tidesplit.forecast(
+        frame, "k", "month", "v", steps_ahead=18, coverage=0.8, trend_model=method
+    )
     np.testing.assert_allclose(out["forecast"], python["forecast"], rtol=1e-10)
 
 
@@ -262,10 +266,10 @@ def test_future_times_follow_the_step(con):
     t = np.arange(120)
     frame = pd.DataFrame({"k": "w", "week": weeks, "v": 50 + np.sin(2 * np.pi * t / 52) + 0.1 * t})
     con.register("frame", frame)
-    out = con.sql("SELECT * FROM tide_forecast(frame, 'k', 'week', 'v', horizon := 3)").df()
+    out = con.sql("SELECT * FROM tide_forecast(frame, 'k', 'week', 'v', steps_ahead := 3)").df()
     expected = [weeks[-1] + pd.Timedelta(days=7 * h) for h in (1, 2, 3)]
     assert pd.to_datetime(out["week"]).dt.date.tolist() == expected
-    assert out["step"].tolist() == [1, 2, 3]
+    assert out["steps_ahead"].tolist() == [1, 2, 3]
 
 
 def test_future_times_per_series_in_one_query(con, rng):
@@ -279,8 +283,8 @@ def test_future_times_per_series_in_one_query(con, rng):
     ]
     con.register("frame", pd.concat(frames, ignore_index=True))
     out = con.sql(
-        "SELECT k, day, step FROM tide_forecast(frame, 'k', 'day', 'v', horizon := 3) "
-        "ORDER BY k, step"
+        "SELECT k, day, steps_ahead FROM tide_forecast(frame, 'k', 'day', 'v', steps_ahead := 3) "
+        "ORDER BY k, steps_ahead"
     ).df()
     ahead = {k: pd.to_datetime(g["day"]).dt.date.tolist() for k, g in out.groupby("k")}
     date = pd.Timestamp

@@ -65,13 +65,13 @@ def test_intervals_widen_where_the_past_errs_more_than_the_model_says(rng):
     frame = pd.concat(
         pd.DataFrame({"k": k, "t": t, "v": v}) for k, v in (("calm", calm), ("wild", wild))
     )
-    out = tidesplit.forecast(frame, "k", "t", "v", period=12, horizon=12)
-    width = (out["upper"] - out["lower"]).groupby(out["k"]).mean()
+    out = tidesplit.forecast(frame, "k", "t", "v", period=12, steps_ahead=12)
+    width = (out["high"] - out["low"]).groupby(out["k"]).mean()
     assert width["wild"] > 3 * width["calm"]
 
 
 def test_select_takes_each_series_its_best_method_on_the_past(rng):
-    # a straight line with noise is drift's; a random walk with no trend is level's
+    # a straight line with noise is drift's; a random walk with no trend is flat's
     t = np.arange(120)
     cycle = 3 * np.sin(2 * np.pi * t / 12)
     line = 10 + 0.5 * t + cycle + rng.normal(0, 0.3, 120)
@@ -84,7 +84,7 @@ def test_select_takes_each_series_its_best_method_on_the_past(rng):
     table = api._Table(frame, "k", "t", "v", answers.FORECAST)
     result = table.split(api._settings("forecast", 12, {}), fill_gaps=True)
     ahead = summaries.forecast(result, "integer", None, 12, 0.95, "select")
-    assert ahead.method[0] in ("drift", "damped") and ahead.method[1] in ("level", "damped")
+    assert ahead.method[0] in ("drift", "damped") and ahead.method[1] in ("flat", "damped")
     assert ahead.method[0] != ahead.method[1]
 
 
@@ -110,11 +110,11 @@ def test_sql_and_python_agree_over_many_keys(con, rng):
     assert (sql["is_outlier"].to_numpy() == python["is_outlier"].to_numpy()).all()
     assert sql.loc[sql["t"] == 30, "is_outlier"].to_numpy()[::50].mean() > 0.9
     ahead = con.sql(
-        "SELECT k, step, forecast, lower, upper FROM tide_forecast(frame, 'k', 't', 'v', "
-        "period := 12, horizon := 6) ORDER BY k, step"
+        "SELECT k, steps_ahead, forecast, low, high FROM tide_forecast(frame, 'k', 't', 'v', "
+        "period := 12, steps_ahead := 6) ORDER BY k, steps_ahead"
     ).df()
-    mine = tidesplit.forecast(frame, "k", "t", "v", period=12, horizon=6)
-    mine = mine.sort_values(["k", "step"]).reset_index(drop=True)
+    mine = tidesplit.forecast(frame, "k", "t", "v", period=12, steps_ahead=6)
+    mine = mine.sort_values(["k", "steps_ahead"]).reset_index(drop=True)
     assert len(ahead) == keys * 6
-    for column in ("forecast", "lower", "upper"):
+    for column in ("forecast", "low", "high"):
         np.testing.assert_allclose(ahead[column], mine[column], rtol=1e-9)

@@ -66,8 +66,8 @@ ANSWERS = {
                 ["strength_of_trend", "strength_of_season", "remainder_sd", "points"]),
     "outliers": ({"period": PERIOD, "all_rows": True}, ["item", "t"],
                  ["expected", "remainder", "score", "weight"]),
-    "forecast": ({"period": PERIOD, "horizon": 4}, ["item", "step"],
-                 ["forecast", "lower", "upper"]),
+    "forecast": ({"period": PERIOD, "steps_ahead": 4}, ["item", "steps_ahead"],
+                 ["forecast", "low", "high"]),
     "audit": ({"period": PERIOD, "sample": 12}, ["item"],
               ["points_compared", "trend_gap"]),
 }  # fmt: skip
@@ -133,8 +133,8 @@ def test_every_front_gives_the_same_answer(fleet_frame, answer):
     [
         ("split", {"period": 4, "trend_span": 4}, "trend_span must be an odd integer"),
         ("profile", {"period": 4, "transform": "cube"}, "transform must be one of"),
-        ("forecast", {"period": 4, "horizon": 2.5}, "horizon must be a whole number"),
-        ("outliers", {"period": 4, "method": "nope"}, "method must be one of"),
+        ("forecast", {"period": 4, "steps_ahead": 2.5}, "steps_ahead must be a whole number"),
+        ("outliers", {"period": 4, "rule": "nope"}, "rule must be one of"),
         ("split", {"period": 4}, "series {'shop': "),  # a bad series under raise
     ],
 )

@@ -94,7 +94,10 @@ def test_readme_argument_table_is_the_registry():
     assert arguments.markdown_table() in README.read_text()
 
 
-@pytest.mark.parametrize("columns", ["SPLIT_COLUMNS", "PROFILE_COLUMNS", "AUDIT_COLUMNS"])
+@pytest.mark.parametrize(
+    "columns",
+    ["SPLIT_COLUMNS", "PROFILE_COLUMNS", "OUTLIERS_COLUMNS", "FORECAST_COLUMNS", "AUDIT_COLUMNS"],
+)
 def test_readme_column_tables_are_the_answers(columns):
     # README's column tables are written from answers.py (answers.markdown_table)
     from tidesplit import answers

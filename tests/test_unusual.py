@@ -112,10 +112,10 @@ def test_significance_trades_recall_for_flags():
 
 def test_arguments_of_the_other_method_are_refused():
     frame = pd.DataFrame({"k": "a", "t": np.arange(48), "v": np.sin(np.arange(48)) + 5})
-    with pytest.raises(ValueError, match="threshold goes with method 'mad'"):
+    with pytest.raises(ValueError, match="threshold goes with rule 'mad'"):
         tidesplit.outliers(frame, "k", "t", "v", period=12, threshold=3)
-    with pytest.raises(ValueError, match="significance goes with method 'stepwise'"):
-        tidesplit.outliers(frame, "k", "t", "v", period=12, method="mad", significance=0.1)
+    with pytest.raises(ValueError, match="significance goes with rule 'stepwise'"):
+        tidesplit.outliers(frame, "k", "t", "v", period=12, rule="mad", significance=0.1)
 
 
 def test_refit_keeps_transform_bounds_and_several_periods(rng):

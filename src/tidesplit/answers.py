@@ -77,7 +77,7 @@ PROFILE_COLUMNS = (
     Column("points", "BIGINT", "observed values"),
     Column("missing", "BIGINT", "missing values plus times missing inside the series"),
     Column(
-        "step",
+        "time_step",
         "VARCHAR",
         "the time step found (`1 month`, `1 hour`, `15 minutes`, `3` for integers)",
     ),
@@ -138,14 +138,22 @@ OUTLIERS_COLUMNS = (
     _SERIES[1],
 )
 FORECAST_COLUMNS = (
-    Column("step", "BIGINT", "1 to `horizon`: steps after the series' last time"),
+    Column(
+        "steps_ahead",
+        "BIGINT",
+        "1 to the `steps_ahead` asked for: steps after the series' last time",
+    ),
     Column(
         "forecast",
         "DOUBLE",
         "the point forecast, on the original scale (the median when transformed)",
     ),
-    Column("lower", "DOUBLE", "the lower end of the prediction interval at `level`"),
-    Column("upper", "DOUBLE", "the upper end"),
+    Column(
+        "low",
+        "DOUBLE",
+        "the low end of the prediction interval that holds `coverage` of future values",
+    ),
+    Column("high", "DOUBLE", "its high end"),
     _SERIES[1],
 )
 AUDIT_COLUMNS = (

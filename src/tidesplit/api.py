@@ -341,7 +341,7 @@ def profile(
     out = table.key_frame(np.arange(table.starts.size))
     out["points"] = found.points
     out["missing"] = found.missing
-    out["step"] = found.step
+    out["time_step"] = found.step
     for k, name in enumerate(summaries.PROFILE_COLUMNS):
         out[name] = found.values[:, k]
     out["strength_by_period"] = found.strength_by_period or [None] * len(out)
@@ -369,9 +369,9 @@ def outliers(
     """Rows whose remainder is too far out to be noise, with a score, the direction and the
     expected value (trend + seasonal, on the original scale); all rows with ``all_rows``.
 
-    ``method='stepwise'`` (default) tests the most extreme remainders one after another
+    ``rule='stepwise'`` (default) tests the most extreme remainders one after another
     (Rosner's 1983 generalized extreme Studentized deviate procedure) at ``significance``
-    (default 0.05, the chance of any flag on a series of pure noise); ``method='mad'``
+    (default 0.05, the chance of any flag on a series of pure noise); ``rule='mad'``
     flags robust z-scores beyond ``threshold`` (default 3.5). See
     ``summaries.unusual_points``.
 
@@ -393,7 +393,7 @@ def outliers(
     result = table.split(settings, fill_gaps=True)
     found = summaries.unusual_points(
         result,
-        settings["method"],
+        settings["rule"],
         settings["threshold"],
         settings["significance"],
         SplitParams.from_settings(settings),
@@ -421,11 +421,12 @@ def forecast(
     period: int | None = None,
     **given: Any,
 ) -> pd.DataFrame:
-    """Future rows per series up to ``horizon`` steps, with prediction intervals at ``level``.
+    """Future rows per series, ``steps_ahead`` of them, with prediction intervals that are to
+    hold ``coverage`` of future values.
 
     The decomposition forecast: the seasonal part carried forward from the last cycle, the
-    seasonally adjusted series forecast by a damped trend (``method='damped'``), a random
-    walk with drift (``'drift'``) or without (``'level'``), or per series whichever did best
+    seasonally adjusted series forecast by a damped trend (``trend_model='damped'``), a random
+    walk with drift (``'drift'``) or without (``'flat'``), or per series whichever did best
     on its own past (``'select'``), added back and inverse-transformed; intervals
     calibrated on the series' own past (see ``summaries.forecast``).
 
@@ -433,12 +434,12 @@ def forecast(
     --------
     >>> t = np.arange(48)
     >>> frame = pd.DataFrame({"k": "a", "t": t, "v": 10 + 0.1 * t + np.sin(2 * np.pi * t / 12)})
-    >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
+    >>> forecast(frame, "k", "t", "v", period=12, steps_ahead=3, trend_model="drift")["t"].tolist()
     [48, 49, 50]
     """
     settings = _settings(FORECAST, period, given)
     horizon, level, method = summaries.forecast_arguments(
-        settings["horizon"], settings["level"], settings["method"]
+        settings["steps_ahead"], settings["coverage"], settings["trend_model"]
     )
     on_error = settings["on_error"]
     table = _Table(data, key, time, value, answers.FORECAST)
@@ -453,22 +454,22 @@ def forecast(
         params=SplitParams.from_settings(settings),
     )
     ok = summaries.settle_forecast(result, ahead, on_error, table.label)
-    # horizon rows per series; one row beside the status of a series left unsplit
+    # steps_ahead rows per series; one row beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     present = np.repeat(ok, counts)
     out = table.key_frame(np.repeat(np.arange(ok.size), counts))
     times = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
     out[table.time] = _with_gaps(pd.Series(times, index=np.flatnonzero(present)), present.size)
     for name, values in (
-        ("step", ahead.step),
+        ("steps_ahead", ahead.step),
         ("forecast", ahead.point),
-        ("lower", ahead.lower),
-        ("upper", ahead.upper),
+        ("low", ahead.lower),
+        ("high", ahead.upper),
     ):
         column = np.full(present.size, np.nan)
         column[present] = values
         out[name] = column
-    out["step"] = out["step"].astype("Int64")
+    out["steps_ahead"] = out["steps_ahead"].astype("Int64")
     out["status"] = np.repeat(np.array(result.status, dtype=object), counts)
     return out
 

@@ -3,7 +3,7 @@
 From this registry come the SQL macros' signatures and type checks (``sql_build``), the
 Python functions' signatures and their checks (``accept``), and the argument table in
 README (``markdown_table``; a test keeps the two equal). Checks of a value's range that
-depend on other settings (a span odd and at least 3, a horizon of at least 1) live beside
+depend on other settings (a span odd and at least 3, at least one step ahead) live beside
 the rule that uses them (``params``, ``answers``) and raise the same ``ParamError``.
 """
 
@@ -237,7 +237,7 @@ REGISTRY: tuple[Argument, ...] = (
         decomposition=False,
     ),
     Argument(
-        "method",
+        "rule",
         TEXT,
         "how a point is judged unusual: our stepwise test, or robust z-scores of the "
         "remainder; see tide_outliers",
@@ -271,7 +271,7 @@ REGISTRY: tuple[Argument, ...] = (
         decomposition=False,
     ),
     Argument(
-        "horizon",
+        "steps_ahead",
         WHOLE,
         "how many steps ahead to forecast",
         (FORECAST,),
@@ -280,21 +280,22 @@ REGISTRY: tuple[Argument, ...] = (
         most=100_000,
     ),
     Argument(
-        "level",
+        "coverage",
         NUMBER,
-        "the coverage of the prediction intervals",
+        "the share of future values the prediction intervals are to hold",
         (FORECAST,),
         default=0.95,
         decomposition=False,
     ),
     Argument(
-        "method",
+        "trend_model",
         TEXT,
         "the forecast of the seasonally adjusted series: a damped trend, a random walk with "
-        "or without drift, or per series the one of those that did best on its own past",
+        "drift, one without (flat), or per series the one of those that did best on its own "
+        "past",
         (FORECAST,),
         default="damped",
-        choices=("damped", "drift", "level", "select"),
+        choices=("damped", "drift", "flat", "select"),
         decomposition=False,
     ),
     Argument(
@@ -323,7 +324,7 @@ def of(function: str) -> tuple[Argument, ...]:
     """The arguments a function takes, in the registry's order.
 
     >>> [a.name for a in of("forecast")][-3:]
-    ['horizon', 'level', 'method']
+    ['steps_ahead', 'coverage', 'trend_model']
     """
     return tuple(a for a in REGISTRY if function in a.functions)
 
@@ -372,7 +373,7 @@ def _at_most(argument: Argument, value: Any) -> Any:
 def whole_number(name: str, value: Any) -> int | None:
     """A whole number given as any numeric type (None stays None); ``ParamError`` otherwise.
 
-    >>> whole_number("horizon", 12.0), whole_number("horizon", None)
+    >>> whole_number("steps_ahead", 12.0), whole_number("steps_ahead", None)
     (12, None)
     """
     if value is None:
@@ -394,7 +395,7 @@ def accept(function: str, given: Mapping[str, Any]) -> dict[str, Any]:
 
     An unknown name is refused with the nearest known one suggested.
 
-    >>> accept("forecast", {"horizon": 6.0})["horizon"], accept("forecast", {})["level"]
+    >>> accept("forecast", {"steps_ahead": 6.0})["steps_ahead"], accept("forecast", {})["coverage"]
     (6, 0.95)
     >>> accept("split", {"sesonal_span": 7})
     Traceback (most recent call last):

@@ -298,7 +298,7 @@ def _profile_handler(call: _Call) -> pa.Array:
     fields: dict[str, pa.Array] = {
         "points": pa.array(found.points, pa.int64()),
         "missing": pa.array(found.missing, pa.int64()),
-        "step": pa.array(found.step, pa.string()),
+        "time_step": pa.array(found.step, pa.string()),
     }
     for k, name in enumerate(summaries.PROFILE_COLUMNS):
         fields[name] = pa.array(found.values[:, k], pa.float64(), from_pandas=True)
@@ -337,7 +337,7 @@ def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     found = summaries.unusual_points(
         result,
-        call.settings["method"],
+        call.settings["rule"],
         call.settings["threshold"],
         call.settings["significance"],
         call.params,
@@ -360,14 +360,14 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 def _forecast_handler(call: _Call) -> pa.Array:
     horizon, level, method = summaries.forecast_arguments(
-        call.settings["horizon"], call.settings["level"], call.settings["method"]
+        call.settings["steps_ahead"], call.settings["coverage"], call.settings["trend_model"]
     )
     result = call.split(fill_gaps=True)
     ahead = summaries.forecast(
         result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
     )
     ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
-    # horizon rows per series; one row of NULLs beside the status of a series left unsplit
+    # steps_ahead rows per series; one row of NULLs beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
     present = np.repeat(ok, counts)
@@ -382,11 +382,11 @@ def _forecast_handler(call: _Call) -> pa.Array:
         return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
 
     fields = {
-        "step": rows(ahead.step, pa.int64()),
+        "steps_ahead": rows(ahead.step, pa.int64()),
         "time_codes": rows(ahead.codes, pa.int64()),
         "forecast": rows(ahead.point, pa.float64()),
-        "lower": rows(ahead.lower, pa.float64()),
-        "upper": rows(ahead.upper, pa.float64()),
+        "low": rows(ahead.lower, pa.float64()),
+        "high": rows(ahead.upper, pa.float64()),
     }
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
@@ -404,8 +404,8 @@ UDFS: dict[str, tuple[Any, str]] = {
     "__tide_audit_series": (_audit_handler, answers.struct_type(answers.AUDIT_COLUMNS)),
     "__tide_forecast_series": (
         _forecast_handler,
-        "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "
-        f"upper DOUBLE[], {_SERIES_TYPES})",
+        "STRUCT(steps_ahead BIGINT[], time_codes BIGINT[], forecast DOUBLE[], low DOUBLE[], "
+        f"high DOUBLE[], {_SERIES_TYPES})",
     ),
 }
 

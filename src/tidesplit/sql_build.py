@@ -403,15 +403,15 @@ WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok
         f"     FROM __tide_outliers_keys(tbl, {{keys}}, time, value, {named[OUTLIERS]})",
     )
     forecast = f"""\
--- Future rows per key up to a horizon, with prediction intervals; a series that could not
+-- Future rows per key, steps_ahead of them, with prediction intervals; a series that could not
 -- be split (on_error := 'keep') gives one row with its status and NULL forecasts.
 CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, {inner[FORECAST]}) AS TABLE
 SELECT unnest(__key),
        unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
-       unnest(__f.step) AS step,
+       unnest(__f.steps_ahead) AS steps_ahead,
        unnest(__f.forecast) AS forecast,
-       unnest(__f.lower) AS lower,
-       unnest(__f.upper) AS upper,
+       unnest(__f.low) AS low,
+       unnest(__f.high) AS high,
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              {_udf_call(_LEAD_CALL, FORECAST)} AS __f

@@ -13,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from . import calendar, transform
+from . import arguments, calendar, transform
 from .arguments import whole_number
 from .batch_split import split_batch
 from .calendar import cycle_label
@@ -40,10 +40,9 @@ PROFILE_COLUMNS = (
     "share_down_weighted",
     "remainder_acf1",
 )
-OUTLIER_METHODS = ("stepwise", "mad")
-FORECAST_METHODS = ("damped", "drift", "level", "select")
-SELECTABLE = ("damped", "drift", "level")  # what 'select' chooses from, per series
-DEFAULT_FORECAST_METHOD = "damped"
+OUTLIER_RULES = next(a.choices for a in arguments.of(arguments.OUTLIERS) if a.name == "rule")
+TREND_MODELS = next(a.choices for a in arguments.of(arguments.FORECAST) if a.name == "trend_model")
+SELECTABLE = ("damped", "drift", "flat")  # what 'select' chooses from, per series
 
 
 def _ok(result: RowsResult) -> np.ndarray:
@@ -227,7 +226,7 @@ def _refit_without(
 
 def unusual_points(
     result: RowsResult,
-    method: str = "stepwise",
+    method: str,
     threshold: float | None = None,
     significance: float | None = None,
     params: SplitParams | None = None,
@@ -235,7 +234,7 @@ def unusual_points(
 ) -> Unusual:
     """Points too far out to be ordinary noise.
 
-    ``method='stepwise'`` (the default), our rule: the split given (robust by default,
+    ``method='stepwise'`` (the default rule), ours: the split given (robust by default,
     one robustness pass) marks the points it sets aside (robustness weight below
     ``SET_ASIDE_WEIGHT``); a plain fit without them (same spans, ``params``) gives the
     expected value and the remainder; each remainder's departure from the median of its
@@ -251,12 +250,12 @@ def unusual_points(
 
     The expected value is trend + seasonal, back on the original scale.
     """
-    if method not in OUTLIER_METHODS:
-        raise ParamError(f"method must be one of {', '.join(OUTLIER_METHODS)}, got {method!r}")
+    if method not in OUTLIER_RULES:
+        raise ParamError(f"rule must be one of {', '.join(OUTLIER_RULES)}, got {method!r}")
     if method == "stepwise" and threshold is not None:
-        raise ParamError("threshold goes with method 'mad'; the stepwise test takes significance")
+        raise ParamError("threshold goes with rule 'mad'; the stepwise test takes significance")
     if method == "mad" and significance is not None:
-        raise ParamError("significance goes with method 'stepwise'; method 'mad' takes threshold")
+        raise ParamError("significance goes with rule 'stepwise'; rule 'mad' takes threshold")
     offsets = result.offsets
     count = offsets.size - 1
     lengths = np.diff(offsets)
@@ -539,15 +538,15 @@ def forecast(
     result: RowsResult,
     kind: str,
     time_zone: str | None,
-    horizon: int = 12,
-    level: float = 0.95,
-    method: str = DEFAULT_FORECAST_METHOD,
+    horizon: int,
+    level: float,
+    method: str,
     parallel: bool = True,
     params: SplitParams | None = None,
 ) -> Forecast:
     """Decomposition forecast: seasonal part carried forward from the last cycle, the
     seasonally adjusted series (trend + remainder) forecast by a damped trend, a random walk
-    with drift or one without (``'damped'``, ``'drift'``, ``'level'``), added back and
+    with drift or one without (``'damped'``, ``'drift'``, ``'flat'``), added back and
     inverse-transformed. ``'select'`` (the default) takes, per series, the one of the three
     with the smallest mean absolute error on its own past (rolling origins, see
     ``_rolling_origins``).
@@ -558,8 +557,8 @@ def forecast(
     past is too short for rolling origins (fewer than three cycles before the end), the
     method's own intervals stand.
     """
-    if method not in FORECAST_METHODS:
-        raise ValueError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
+    if method not in TREND_MODELS:
+        raise ValueError(f"method must be one of {', '.join(TREND_MODELS)}, got {method!r}")
     if horizon < 1:
         raise ValueError(f"horizon must be at least 1, got {horizon}")
     if not 0 < level < 1:
@@ -640,29 +639,29 @@ def forecast(
     )
 
 
-def forecast_arguments(
-    horizon: Any = 12, level: Any = 0.95, method: Any = "damped"
-) -> tuple[int, float, str]:
+def forecast_arguments(steps_ahead: Any, coverage: Any, trend_model: Any) -> tuple[int, float, str]:
     """The forecast's arguments checked before any series runs (``ParamError`` names the
-    argument), a whole number of any numeric type taken as the horizon.
+    argument), a whole number of any numeric type taken as the steps ahead.
 
-    >>> forecast_arguments(horizon=6.0)
+    >>> forecast_arguments(6.0, 0.95, "damped")
     (6, 0.95, 'damped')
-    >>> forecast_arguments(horizon=2.5)
+    >>> forecast_arguments(2.5, 0.95, "damped")
     Traceback (most recent call last):
     ...
-    tidesplit.errors.ParamError: horizon must be a whole number, got 2.5
+    tidesplit.errors.ParamError: steps_ahead must be a whole number, got 2.5
     """
-    steps = whole_number("horizon", horizon)
+    steps = whole_number("steps_ahead", steps_ahead)
     if steps is None or steps < 1:
-        raise ParamError(f"horizon must be at least 1, got {horizon!r}")
-    if isinstance(level, bool) or not isinstance(level, (int, float, np.number)):
-        raise ParamError(f"level must be a number between 0 and 1, got {level!r}")
-    if not 0 < level < 1:
-        raise ParamError(f"level must be between 0 and 1, got {level!r}")
-    if method not in FORECAST_METHODS:
-        raise ParamError(f"method must be one of {', '.join(FORECAST_METHODS)}, got {method!r}")
-    return steps, float(level), method
+        raise ParamError(f"steps_ahead must be at least 1, got {steps_ahead!r}")
+    if isinstance(coverage, bool) or not isinstance(coverage, (int, float, np.number)):
+        raise ParamError(f"coverage must be a number between 0 and 1, got {coverage!r}")
+    if not 0 < coverage < 1:
+        raise ParamError(f"coverage must be between 0 and 1, got {coverage!r}")
+    if trend_model not in TREND_MODELS:
+        raise ParamError(
+            f"trend_model must be one of {', '.join(TREND_MODELS)}, got {trend_model!r}"
+        )
+    return steps, float(coverage), trend_model
 
 
 def settle_forecast(
