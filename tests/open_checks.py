@@ -10,7 +10,7 @@ import pandas as pd
 from datasets import OpenSeries
 
 import tidesplit
-from tidesplit.kernel import summary
+from tidesplit.kernel import strengths
 
 
 def as_frame(series: Sequence[OpenSeries]) -> pd.DataFrame:
@@ -51,7 +51,7 @@ def old_rule_flags(series: Sequence[OpenSeries]) -> dict[str, np.ndarray]:
             r = g["remainder"].to_numpy()
             r = r[~np.isnan(r)]
             fences = np.empty((1, 4))
-            summary.remainder_fences(r, np.array([0, r.size]), 0, 3.0, np.ones(1, bool), fences)
+            strengths.remainder_fences(r, np.array([0, r.size]), 0, 3.0, np.ones(1, bool), fences)
             out[key] = (r < fences[0, 0]) | (r > fences[0, 1])
     return out
 

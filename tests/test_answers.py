@@ -13,7 +13,7 @@ from statsmodels.tsa.holtwinters import ExponentialSmoothing
 from statsmodels.tsa.seasonal import STL
 
 import tidesplit
-from tidesplit.kernel import summary
+from tidesplit.kernel import damped, strengths
 
 
 def monthly_frame(y, key="s", start="2000-01-01"):
@@ -30,9 +30,9 @@ def test_strength_formula_by_hand():
     # 4/3; S + R = [3, -1, -1, -1] has 4, so F_S = 2/3; T + R = [1, 0, 3, 2] has 5/3, so
     # F_T = 1/5.
     r = np.array([1.0, -1, 1, -1])
-    assert summary.strength(np.array([2.0, 0, -2, 0]), r) == pytest.approx(2 / 3)
-    assert summary.strength(np.array([0.0, 1, 2, 3]), r) == pytest.approx(0.2)
-    assert summary.strength(np.array([0.0, 0, 0, 0]), r) == 0.0  # clipped at zero
+    assert strengths.strength(np.array([2.0, 0, -2, 0]), r) == pytest.approx(2 / 3)
+    assert strengths.strength(np.array([0.0, 1, 2, 3]), r) == pytest.approx(0.2)
+    assert strengths.strength(np.array([0.0, 0, 0, 0]), r) == 0.0  # clipped at zero
 
 
 def test_strengths_of_pure_cycle_and_of_noise(rng):
@@ -189,7 +189,7 @@ def test_damped_trend_recursion_matches_statsmodels():
         initial_level=l0,
         initial_trend=b0,
     ).fit(smoothing_level=alpha, smoothing_trend=beta_star, damping_trend=phi, optimized=False)
-    level, slope, sse, _ = summary.damped_path(a[1:], alpha, alpha * beta_star, phi, l0, b0)
+    level, slope, sse, _ = damped.damped_path(a[1:], alpha, alpha * beta_star, phi, l0, b0)
     h = np.arange(1, 7)
     ours = level + np.cumsum(phi**h) * slope
     np.testing.assert_allclose(ours, model.forecast(6), rtol=1e-12)
@@ -206,7 +206,7 @@ def test_grid_fit_is_the_best_damped_path(rng):
     values = np.concatenate(series)
     offsets = np.arange(0, values.size + 1, 60)
     out = np.empty((4, 6))
-    summary.damped_fit_serial(values, offsets, np.ones(4, bool), alphas, betas, phis, out)
+    damped.damped_fit_serial(values, offsets, np.ones(4, bool), alphas, betas, phis, out)
     for s, a in enumerate(series):
         seen = np.flatnonzero(~np.isnan(a))
         first, second = seen[0], seen[1]
@@ -215,7 +215,7 @@ def test_grid_fit_is_the_best_damped_path(rng):
         for alpha in alphas:
             for beta in betas[betas <= alpha]:
                 for phi in phis:
-                    level, slope, sse, count = summary.damped_path(
+                    level, slope, sse, count = damped.damped_path(
                         a[first + 1 :], alpha, beta, phi, *start
                     )
                     if best is None or sse < best[0]:

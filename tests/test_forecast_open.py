@@ -10,7 +10,7 @@ from datasets import open_collections
 from open_checks import holdout_forecasts
 
 import tidesplit
-from tidesplit import summaries
+from tidesplit import forecast_ahead
 
 
 @pytest.fixture(scope="module")
@@ -48,9 +48,9 @@ def test_conformal_rank(rng):
     # split conformal prediction (Vovk et al. 2005): the ceil((m + 1) q)-th smallest of m
     values = rng.permutation(np.arange(1.0, 20.0))  # 19 values
     series = np.zeros(19, dtype=np.int64)
-    assert summaries._per_series(values, series, 1, "0.9")[0] == 18.0  # ceil(20 * 0.9)
-    assert summaries._per_series(values, series, 1, "0.99")[0] == 19.0  # too few: largest
-    assert summaries._per_series(values, series, 1, "mean")[0] == 10.0
+    assert forecast_ahead._per_series(values, series, 1, "0.9")[0] == 18.0  # ceil(20 * 0.9)
+    assert forecast_ahead._per_series(values, series, 1, "0.99")[0] == 19.0  # too few: largest
+    assert forecast_ahead._per_series(values, series, 1, "mean")[0] == 10.0
 
 
 def test_intervals_widen_where_the_past_errs_more_than_the_model_says(rng):
@@ -83,7 +83,7 @@ def test_select_takes_each_series_its_best_method_on_the_past(rng):
 
     table = api._Table(frame, "k", "t", "v", answers.FORECAST)
     result = table.split(api._settings("forecast", 12, {}), fill_gaps=True)
-    ahead = summaries.forecast(result, "integer", None, 12, 0.95, "select")
+    ahead = forecast_ahead.forecast(result, "integer", None, 12, 0.95, "select")
     assert ahead.method[0] in ("drift", "damped") and ahead.method[1] in ("flat", "damped")
     assert ahead.method[0] != ahead.method[1]
 

@@ -10,13 +10,14 @@ from datasets import open_collections
 from open_checks import flags, old_rule_flags, spike_recall
 
 import tidesplit
-from tidesplit import summaries
+from tidesplit import unusual
+from tidesplit.kernel import unusual as unusual_kernel
 
 
 def test_critical_values_match_rosner_table():
     # Rosner (1983), Technometrics 25(2), table 1 (from memory): lambda_1 at n = 25 and
     # alpha = 0.05 is 2.82; at n = 50, 3.13. The formula is his equation for lambda_i.
-    values = summaries.stepwise_critical_values(np.array([25, 50]), np.array([1, 1]), 0.05)
+    values = unusual.stepwise_critical_values(np.array([25, 50]), np.array([1, 1]), 0.05)
     assert values[:, 0].round(2).tolist() == [2.82, 3.13]
 
 
@@ -27,9 +28,9 @@ def test_stepwise_finds_what_a_literal_procedure_finds(rng):
     x = rng.standard_t(3, 200)
     x[[10, 50]] += [9.0, -7.0]
     tests = 20
-    critical = summaries.stepwise_critical_values(np.array([200]), np.array([tests]), 0.05)
+    critical = unusual.stepwise_critical_values(np.array([200]), np.array([tests]), 0.05)
     flagged, score = np.empty(200, bool), np.empty(200)
-    summaries.summary.stepwise_extremes(
+    unusual_kernel.stepwise_extremes(
         x, np.array([0, 200]), np.ones(1, bool), critical, np.array([tests]), flagged, score
     )
     keep, order, found = np.ones(200, bool), [], 0

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from . import answers, arguments, summaries
+from . import answers, arguments, forecast_ahead, series_profile, unusual
 from .answers import COMPONENTS
 from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
 from .batch_split import segment_counts
@@ -337,12 +337,12 @@ def profile(
     settings = _settings(PROFILE, period, given)
     table = _Table(data, key, time, value, answers.PROFILE)
     result = table.split(settings, fill_gaps=True)
-    found = summaries.profile(result, table.kind)
+    found = series_profile.profile(result, table.kind)
     out = table.key_frame(np.arange(table.starts.size))
     out["points"] = found.points
     out["missing"] = found.missing
     out["time_step"] = found.step
-    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+    for k, name in enumerate(series_profile.PROFILE_COLUMNS):
         out[name] = found.values[:, k]
     out["strength_by_period"] = found.strength_by_period or [None] * len(out)
     out["peak_position"] = np.where(found.peak >= 0, found.peak, np.nan)
@@ -373,7 +373,7 @@ def outliers(
     (Rosner's 1983 generalized extreme Studentized deviate procedure) at ``significance``
     (default 0.05, the chance of any flag on a series of pure noise); ``rule='mad'``
     flags robust z-scores beyond ``threshold`` (default 3.5). See
-    ``summaries.unusual_points``.
+    ``unusual.unusual_points``.
 
     The split is robust by default, so that the points being judged do not pull the fit
     towards themselves.
@@ -391,7 +391,7 @@ def outliers(
     settings = _settings(OUTLIERS, period, given)
     table = _Table(data, key, time, value, answers.OUTLIERS)
     result = table.split(settings, fill_gaps=True)
-    found = summaries.unusual_points(
+    found = unusual.unusual_points(
         result,
         settings["rule"],
         settings["threshold"],
@@ -428,7 +428,7 @@ def forecast(
     seasonally adjusted series forecast by a damped trend (``trend_model='damped'``), a random
     walk with drift (``'drift'``) or without (``'flat'``), or per series whichever did best
     on its own past (``'select'``), added back and inverse-transformed; intervals
-    calibrated on the series' own past (see ``summaries.forecast``).
+    calibrated on the series' own past (see ``forecast_ahead.forecast``).
 
     Examples
     --------
@@ -438,13 +438,13 @@ def forecast(
     [48, 49, 50]
     """
     settings = _settings(FORECAST, period, given)
-    horizon, level, method = summaries.forecast_arguments(
+    horizon, level, method = forecast_ahead.forecast_arguments(
         settings["steps_ahead"], settings["coverage"], settings["trend_model"]
     )
     on_error = settings["on_error"]
     table = _Table(data, key, time, value, answers.FORECAST)
     result = table.split(settings, fill_gaps=True)
-    ahead = summaries.forecast(
+    ahead = forecast_ahead.forecast(
         result,
         table.kind,
         table.zone,
@@ -453,7 +453,7 @@ def forecast(
         method,
         params=SplitParams.from_settings(settings),
     )
-    ok = summaries.settle_forecast(result, ahead, on_error, table.label)
+    ok = forecast_ahead.settle_forecast(result, ahead, on_error, table.label)
     # steps_ahead rows per series; one row beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     present = np.repeat(ok, counts)

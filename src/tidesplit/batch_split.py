@@ -43,6 +43,20 @@ class BatchResult:
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
 
+    def periods_used(self) -> list[tuple[int, ...]]:
+        """Each series' periods (one, or several with MSTL); () for a series not split."""
+        ok = split_mask(self.status)
+        return [
+            (
+                tuple(self.series_periods[s])
+                if self.series_periods is not None
+                else (int(self.periods[s]),)
+            )
+            if ok[s]
+            else ()
+            for s in range(ok.size)
+        ]
+
 
 def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     """How many ``True`` entries each segment of ``mask`` holds (empty segments give 0).

@@ -18,7 +18,16 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import answers, arguments, arrow_lists, calendar, sql_build, summaries
+from . import (
+    answers,
+    arguments,
+    arrow_lists,
+    calendar,
+    forecast_ahead,
+    series_profile,
+    sql_build,
+    unusual,
+)
 from .answers import COMPONENTS
 from .arguments import SQL_TYPES
 from .batch_split import segment_counts
@@ -294,13 +303,13 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
 
 def _profile_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    found = summaries.profile(result, call.kind)
+    found = series_profile.profile(result, call.kind)
     fields: dict[str, pa.Array] = {
         "points": pa.array(found.points, pa.int64()),
         "missing": pa.array(found.missing, pa.int64()),
         "time_step": pa.array(found.step, pa.string()),
     }
-    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+    for k, name in enumerate(series_profile.PROFILE_COLUMNS):
         fields[name] = pa.array(found.values[:, k], pa.float64(), from_pandas=True)
     fields["strength_by_period"] = pa.array(
         [
@@ -335,7 +344,7 @@ def _audit_handler(call: _Call) -> pa.Array:
 
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    found = summaries.unusual_points(
+    found = unusual.unusual_points(
         result,
         call.settings["rule"],
         call.settings["threshold"],
@@ -359,14 +368,14 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
-    horizon, level, method = summaries.forecast_arguments(
+    horizon, level, method = forecast_ahead.forecast_arguments(
         call.settings["steps_ahead"], call.settings["coverage"], call.settings["trend_model"]
     )
     result = call.split(fill_gaps=True)
-    ahead = summaries.forecast(
+    ahead = forecast_ahead.forecast(
         result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
     )
-    ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
+    ok = forecast_ahead.settle_forecast(result, ahead, call.on_error, call.label)
     # steps_ahead rows per series; one row of NULLs beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)

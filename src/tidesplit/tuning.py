@@ -33,7 +33,7 @@ LINEAR_SHARE = 4
 # flight, so it spreads its series over numba's threads instead.
 PARALLEL_POINTS = 1_000_000
 
-# tide_outliers (see summaries.unusual_points).
+# tide_outliers (see unusual.unusual_points).
 # The stepwise test's significance: the chance that a series of pure Gaussian noise has any
 # point flagged (Rosner 1983 tabulates 0.05 and 0.01).
 DEFAULT_SIGNIFICANCE = 0.05
@@ -50,7 +50,7 @@ SET_ASIDE_ROUNDS = 4
 NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
 DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score; Iglewicz & Hoaglin (1993) suggest 3.5 (from memory)
 
-# tide_forecast (see summaries.forecast).
+# tide_forecast (see forecast_ahead.forecast).
 # Earlier ends each series is forecast from, a cycle apart, to choose a method and
 # to check its intervals on the series' own past.
 ROLLING_ORIGINS = 24

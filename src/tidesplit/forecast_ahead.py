@@ -1,8 +1,6 @@
-"""From components to answers: per-series profiles, unusual points and short forecasts.
-
-Each function takes a split on the regular grid (``split_rows(..., fill_gaps=True)``) and
-returns plain numpy arrays; the fronts turn them into SQL rows or DataFrames.
-"""
+"""Short forecasts by components: the seasonal part carried forward, the seasonally adjusted
+series forecast by a damped trend or a random walk, intervals calibrated on each series' own
+past (rolling origins), from a split on the regular grid."""
 
 from __future__ import annotations
 
@@ -16,303 +14,17 @@ import numpy as np
 from . import arguments, calendar, transform
 from .arguments import whole_number
 from .batch_split import split_batch
-from .calendar import cycle_label
 from .errors import ParamError, SplitError
-from .kernel import summary, threads
+from .kernel import damped, threads
 from .keyed_split import RowsResult
 from .params import SplitParams
 from .status import OK, split_mask
 from .tuning import (
-    CANDIDATE_SHARE,
-    DEFAULT_MAD_THRESHOLD,
-    DEFAULT_SIGNIFICANCE,
-    NEIGHBOUR_REACH,
     ROLLING_ORIGINS,
-    SET_ASIDE_ROUNDS,
-    SET_ASIDE_WEIGHT,
 )
 
-PROFILE_COLUMNS = (
-    "strength_of_trend",
-    "strength_of_season",
-    "seasonal_amplitude",
-    "remainder_sd",
-    "share_down_weighted",
-    "remainder_acf1",
-)
-OUTLIER_RULES = next(a.choices for a in arguments.of(arguments.OUTLIERS) if a.name == "rule")
 TREND_MODELS = next(a.choices for a in arguments.of(arguments.FORECAST) if a.name == "trend_model")
 SELECTABLE = ("damped", "drift", "flat")  # what 'select' chooses from, per series
-
-
-def _ok(result: RowsResult) -> np.ndarray:
-    return split_mask(result.status)
-
-
-@dataclass
-class Profile:
-    """One entry per series."""
-
-    points: np.ndarray  # observed values
-    missing: np.ndarray  # missing values and inserted times on the grid
-    step: list[str | None]
-    values: np.ndarray  # series x PROFILE_COLUMNS
-    peak: np.ndarray  # cycle position of the seasonal peak (shortest period), -1 if none
-    trough: np.ndarray
-    peak_label: list[str | None]
-    trough_label: list[str | None]
-    strength_by_period: list[dict[int, float]] | None
-
-
-def profile(result: RowsResult, kind: str) -> Profile:
-    """Strengths (Wang, Smith & Hyndman 2006), cycle shape and remainder summaries."""
-    batch = result.batch
-    offsets = result.offsets
-    ok = _ok(result)
-    count = offsets.size - 1
-    observed = ~np.isnan(result.remainder) | ~np.isnan(result.weight)
-    points = np.add.reduceat(observed, offsets[:-1]) if observed.size else np.zeros(count)
-    points = np.where(np.diff(offsets) > 0, points, 0)
-    missing = np.diff(offsets) - points
-    periods = np.where(batch.periods > 0, batch.periods, 1)
-    values = np.empty((count, len(PROFILE_COLUMNS)))
-    peak = np.empty(count, dtype=np.int64)
-    trough = np.empty(count, dtype=np.int64)
-    shortest = result.seasonal_parts[0] if result.seasonal_parts is not None else result.seasonal
-    summary.series_summary(
-        result.trend,
-        shortest,
-        result.remainder,
-        result.weight,
-        offsets,
-        periods,
-        ok,
-        values,
-        peak,
-        trough,
-    )
-    if result.seasonal_parts is not None:
-        # with several periods, the seasonal strength is that of their sum
-        joint = np.empty_like(values)
-        summary.series_summary(
-            result.trend,
-            result.seasonal,
-            result.remainder,
-            result.weight,
-            offsets,
-            periods,
-            ok,
-            joint,
-            np.empty(count, np.int64),
-            np.empty(count, np.int64),
-        )
-        values[:, 1] = joint[:, 1]
-    grid = result.grid
-    steps: list[str | None] = [None] * count
-    peak_label: list[str | None] = [None] * count
-    trough_label: list[str | None] = [None] * count
-    for s in np.flatnonzero(ok):
-        if grid is None:
-            continue
-        unit, step = int(grid.unit[s]), int(grid.step[s])
-        steps[s] = calendar.describe_step(unit, step)
-        if result.codes is not None:
-            lo = int(offsets[s])
-            for pos, labels in ((peak[s], peak_label), (trough[s], trough_label)):
-                labels[s] = cycle_label(
-                    int(result.codes[lo + pos]), unit, step, int(periods[s]), kind
-                )
-    by_period = None
-    if result.seasonal_parts is not None:
-        by_period = []
-        for s in range(count):
-            sl = slice(int(offsets[s]), int(offsets[s + 1]))
-            kept = batch.series_periods[s]
-            by_period.append(
-                {
-                    p: float(summary.strength(result.seasonal_parts[k, sl], result.remainder[sl]))
-                    for k, p in enumerate(kept)
-                }
-            )
-    return Profile(
-        points, missing, steps, values, peak, trough, peak_label, trough_label, by_period
-    )
-
-
-@dataclass
-class Unusual:
-    """Per grid row: score, flag, direction and the expected value."""
-
-    score: np.ndarray
-    flagged: np.ndarray
-    direction: list[str | None]
-    expected: np.ndarray  # trend + seasonal, original scale
-    remainder: np.ndarray  # transformed value - (trend + seasonal) of the fit the rule reads
-
-
-def stepwise_critical_values(
-    observed: np.ndarray, tests: np.ndarray, significance: float
-) -> np.ndarray:
-    """Critical values lambda_i of Rosner's (1983) generalized ESD procedure, one row per
-    series of ``observed`` points, ``tests`` steps each (NaN beyond):
-    lambda_i = (n - i) t / sqrt((n - i - 1 + t^2)(n - i + 1)), t the Student t quantile at
-    1 - significance / (2 (n - i + 1)) with n - i - 1 degrees of freedom.
-
-    >>> stepwise_critical_values(np.array([25]), np.array([1]), 0.05).round(3).tolist()
-    [[2.822]]
-    """
-    from scipy.stats import t as student_t
-
-    width = max(int(tests.max(initial=0)), 1)
-    out = np.full((observed.size, width), np.nan)
-    step = np.arange(1, width + 1)
-    for n in np.unique(observed):
-        left = n - step + 1  # points left before step i
-        usable = left >= 3
-        quantile = student_t.ppf(1 - significance / (2 * left[usable]), left[usable] - 2)
-        values = np.full(width, np.nan)
-        values[usable] = (
-            (left[usable] - 1) * quantile / np.sqrt((left[usable] - 2 + quantile**2) * left[usable])
-        )
-        out[observed == n] = values
-    return out
-
-
-def _refit_without(
-    result: RowsResult, params: SplitParams, set_aside: np.ndarray, parallel: bool
-) -> np.ndarray:
-    """trend + seasonal of a plain (non-robust) fit of the transformed series with the
-    ``set_aside`` points left out (as missing), same spans and periods; where a series
-    cannot be fitted so (a cycle position left empty), its own fit."""
-    values = result.trend + result.seasonal + result.remainder
-    fit = result.trend + result.seasonal
-    if not set_aside.any():
-        return fit
-    values[set_aside] = np.nan
-    ok = _ok(result)
-    wanted = _series_periods(result.batch, ok)
-    kinds = sorted({w for w in wanted if w})
-    if not kinds:
-        return fit
-    # the values are already transformed: the refit takes them as they are
-    plain = replace(
-        params,
-        robust=False,
-        inner_loops=None,
-        outer_loops=None,
-        transform="none",
-        boxcox_lambda=None,
-        boxcox_bounds=None,
-    )
-    groups = np.array([kinds.index(w) if w else 0 for w in wanted], dtype=np.int64)
-    group_params = [
-        replace(plain, period=None, periods=w) if params.multi else replace(plain, period=w[0])
-        for w in kinds
-    ]
-    refit = split_batch(
-        values,
-        result.offsets,
-        group_params,
-        groups,
-        status=[OK if k else "not split" for k in ok],
-        on_error="keep",
-        parallel=parallel,
-    )
-    lengths = np.diff(result.offsets)
-    fitted = np.repeat([st.startswith(OK) for st in refit.status], lengths)
-    fit[fitted] = (refit.trend + refit.seasonal)[fitted]
-    return fit
-
-
-def unusual_points(
-    result: RowsResult,
-    method: str,
-    threshold: float | None = None,
-    significance: float | None = None,
-    params: SplitParams | None = None,
-    parallel: bool = True,
-) -> Unusual:
-    """Points too far out to be ordinary noise.
-
-    ``method='stepwise'`` (the default rule), ours: the split given (robust by default,
-    one robustness pass) marks the points it sets aside (robustness weight below
-    ``SET_ASIDE_WEIGHT``); a plain fit without them (same spans, ``params``) gives the
-    expected value and the remainder; each remainder's departure from the median of its
-    neighbours' (two places either side) is tested by Rosner's (1983) generalized extreme
-    Studentized deviate procedure at ``significance`` (default 0.05: on a series of pure
-    Gaussian noise, the chance that any point is flagged is about that), at most one point
-    in ten tested. The score is that departure in standard deviations of the series'
-    unflagged departures.
-
-    ``method='mad'``: beyond ``threshold`` (default 3.5) robust z-scores of the split's
-    remainder, (remainder - median) / (1.4826 MAD), the MAD scaled for normal consistency;
-    the score is that z-score.
-
-    The expected value is trend + seasonal, back on the original scale.
-    """
-    if method not in OUTLIER_RULES:
-        raise ParamError(f"rule must be one of {', '.join(OUTLIER_RULES)}, got {method!r}")
-    if method == "stepwise" and threshold is not None:
-        raise ParamError("threshold goes with rule 'mad'; the stepwise test takes significance")
-    if method == "mad" and significance is not None:
-        raise ParamError("significance goes with rule 'stepwise'; rule 'mad' takes threshold")
-    offsets = result.offsets
-    count = offsets.size - 1
-    lengths = np.diff(offsets)
-    ok = _ok(result)
-    if method == "stepwise":
-        alpha = DEFAULT_SIGNIFICANCE if significance is None else float(significance)
-        if not 0 < alpha < 1:
-            raise ParamError(f"significance must be between 0 and 1, got {alpha}")
-        values = result.trend + result.seasonal + result.remainder
-        set_aside = result.weight < SET_ASIDE_WEIGHT  # NaN weights (missing) compare False
-        for _ in range(SET_ASIDE_ROUNDS):
-            fit = _refit_without(result, params or SplitParams(), set_aside, parallel)
-            r = values - fit
-            # judged again against the refit: a big outlier bends the first fit, and the
-            # points it bent away are set aside with it until a refit without it
-            again = np.empty(r.size, dtype=bool)
-            summary.set_aside_points(r, offsets, SET_ASIDE_WEIGHT, again)
-            if np.array_equal(again, set_aside):
-                break
-            set_aside = again
-        departure = np.empty(r.size)
-        summary.departure_from_neighbours(r, offsets, NEIGHBOUR_REACH, departure)
-        observed = (
-            np.add.reduceat(~np.isnan(departure), offsets[:-1])
-            if r.size
-            else np.zeros(count, np.int64)
-        )
-        observed = np.where(lengths > 0, observed, 0)
-        tests = np.where(ok, np.floor(observed * CANDIDATE_SHARE), 0).astype(np.int64)
-        critical = stepwise_critical_values(observed, tests, alpha)
-        flagged = np.empty(r.size, dtype=bool)
-        score = np.empty(r.size)
-        summary.stepwise_extremes(departure, offsets, ok, critical, tests, flagged, score)
-        high = flagged & (score > 0)
-        low = flagged & (score < 0)
-    else:
-        k = DEFAULT_MAD_THRESHOLD if threshold is None else float(threshold)
-        if not k > 0:
-            raise ParamError(f"threshold must be positive, got {k}")
-        r = result.remainder
-        fit = result.trend + result.seasonal
-        fences = np.empty((count, 4))
-        summary.remainder_fences(r, offsets, 1, k, ok, fences)
-        row = np.repeat(np.arange(count), lengths)
-        lower, upper, centre, scale = (fences[row, c] for c in range(4))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            score = (r - centre) / scale
-        high = r > upper
-        low = r < lower
-        flagged = high | low
-    direction = np.where(high, "high", np.where(low, "low", None)).tolist()
-    expected = fit.copy()
-    lambdas = np.repeat(result.batch.lambdas, lengths)
-    moved = ~np.isnan(lambdas)
-    if moved.any():
-        expected[moved] = transform.inverse(expected[moved], lambdas[moved])
-    return Unusual(score, flagged, direction, expected, r)
 
 
 @dataclass
@@ -373,7 +85,7 @@ def _adjusted_ahead(
     if method == "damped":
         fitted = np.empty((count, 6))
         if given is not None:
-            summary.damped_run_serial(
+            damped.damped_run_serial(
                 adjusted,
                 offsets,
                 ok,
@@ -382,9 +94,9 @@ def _adjusted_ahead(
             )
         else:
             launch = (
-                (lambda *a: threads.launch(summary.damped_fit_batch, *a))
+                (lambda *a: threads.launch(damped.damped_fit_batch, *a))
                 if parallel
-                else summary.damped_fit_serial
+                else damped.damped_fit_serial
             )
             launch(
                 adjusted,
@@ -405,7 +117,7 @@ def _adjusted_ahead(
         )
         return point, spread, fitted[:, :3]
     fitted = np.empty((count, 6))
-    summary.walk_fit(adjusted, offsets, ok, fitted)
+    damped.walk_fit(adjusted, offsets, ok, fitted)
     last, behind, drift, sd_drift, sd_level, seen = (fitted[:, c : c + 1] for c in range(6))
     if method == "drift":
         point = last + (h[None, :] + behind) * drift
@@ -530,7 +242,7 @@ def _per_series(values: np.ndarray, series: np.ndarray, count: int, reduce: str)
     if series.size == 0:
         return out
     rows = np.ascontiguousarray(values, dtype=np.float64).reshape(series.size, -1)
-    summary.rows_by_series(rows, series, -1.0 if reduce == "mean" else float(reduce), out)
+    damped.rows_by_series(rows, series, -1.0 if reduce == "mean" else float(reduce), out)
     return out
 
 
@@ -564,13 +276,13 @@ def forecast(
     if not 0 < level < 1:
         raise ValueError(f"level must be between 0 and 1, got {level}")
     offsets = result.offsets
-    ok = _ok(result)
+    ok = split_mask(result.status)
     count = offsets.size - 1
     y = result.trend + result.seasonal + result.remainder  # transformed observations
     adjusted = y - result.seasonal
     z = NormalDist().inv_cdf(0.5 + level / 2)
     methods = SELECTABLE if method == "select" else (method,)
-    wanted = _series_periods(result.batch, ok)
+    wanted = result.batch.periods_used()
     fits = {m: _adjusted_ahead(adjusted, offsets, ok, horizon, m, parallel) for m in methods}
     past = _rolling_origins(
         y,
@@ -670,7 +382,7 @@ def settle_forecast(
     """Which series have a forecast. One whose forecast came out non-finite (a
     back-transform that overflows far ahead, say) gets a status saying so, or fails the
     call under ``on_error='raise'``; no series reports ``ok`` with a missing forecast."""
-    ok = _ok(result)
+    ok = split_mask(result.status)
     chosen = np.flatnonzero(ok)
     horizon = np.diff(ahead.offsets)
     bad_rows = ~(np.isfinite(ahead.point) & np.isfinite(ahead.lower) & np.isfinite(ahead.upper))
