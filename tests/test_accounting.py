@@ -401,6 +401,8 @@ def test_python_twins_refuse_what_sql_refuses():
         tidesplit.split_table(frame, "k", "t", "v", period=4, robust="yes")
     with pytest.raises(tidesplit.ParamError, match='input column "status" has the name'):
         tidesplit.outliers(frame.rename(columns={"k": "status"}), "status", "t", "v", period=4)
+    with pytest.raises(tidesplit.ParamError, match="fill_gaps needs times"):
+        tidesplit.split(frame["v"], periods=[4, 8], fill_gaps=True)
     with pytest.raises(KeyError, match="the table has k, t, v"):
         tidesplit.split_table(frame, "shop", "t", "v", period=4)
 

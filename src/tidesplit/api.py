@@ -77,6 +77,10 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
     settings = arguments.accept(function, given if period is None else {"period": period, **given})
     if settings["on_error"] != "raise":
         raise ParamError("split() splits one series and raises; split_table() can keep going")
+    if "fill_gaps" in given:
+        raise ParamError(
+            "split() takes consecutive points without times; fill_gaps needs times (split_table)"
+        )
     settings = SplitParams.from_settings(settings)
     # split_rows, so that a period left out is estimated from the data (integer positions)
     result = split_rows(
