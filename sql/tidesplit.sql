@@ -172,6 +172,7 @@ SELECT unnest(__key),
        __parts.period AS __period,
        __parts.periods AS __periods,
        unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
+       __parts.boxcox_lambda AS boxcox_lambda,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              __tide_split_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -206,7 +207,7 @@ FROM (SELECT __key, __time_rows, __value_rows,
 -- positional one.
 CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods) RENAME (__period AS period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'status'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'boxcox_lambda', 'status'],
          [__tide_check_number('period', period),
              __tide_check_number('season_span', season_span),
              __tide_check_number('trend_span', trend_span),
@@ -226,7 +227,7 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
          period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods) RENAME (__period AS period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'status'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'boxcox_lambda', 'status'],
          [__tide_check_number('period', period),
              __tide_check_number('season_span', season_span),
              __tide_check_number('trend_span', trend_span),
@@ -248,7 +249,7 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -270,7 +271,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
          periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),

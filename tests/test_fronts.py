@@ -68,6 +68,12 @@ ANSWERS = {
                  ["expected", "remainder", "score", "weight"]),
     "forecast": ({"period": PERIOD, "steps_ahead": 4}, ["item", "steps_ahead"],
                  ["forecast", "low", "high"]),
+    # several periods through every answer, not only the split
+    "profile_periods": ({"periods": [2, PERIOD]}, ["item"], ["strength_of_season"]),
+    "outliers_periods": ({"periods": [2, PERIOD], "all_rows": True}, ["item", "t"],
+                         ["expected", "score"]),
+    "forecast_periods": ({"periods": [2, PERIOD], "steps_ahead": 3}, ["item", "steps_ahead"],
+                         ["forecast", "low", "high"]),
     "audit": ({"period": PERIOD, "sample": 12}, ["item"],
               ["points_compared", "trend_gap"]),
 }  # fmt: skip
@@ -95,6 +101,7 @@ def _periods(value) -> list | None:
 @pytest.mark.parametrize("answer", sorted(ANSWERS))
 def test_every_front_gives_the_same_answer(fleet_frame, answer):
     args, keys, numbers = ANSWERS[answer]
+    answer = answer.removesuffix("_periods")
     args = {**args, "on_error": "keep"}
     results = {name: front(answer, fleet_frame, args) for name, front in FRONTS.items()}
     first_name, first = next(iter(results.items()))

@@ -147,3 +147,25 @@ def test_refit_keeps_transform_bounds_and_several_periods(rng):
     top = found.loc[found["score"].abs().idxmax()]
     assert top["t"] == 500 and top["direction"] == "high"
     assert len(found) <= 0.005 * len(frame)
+
+
+def test_a_key_is_judged_the_same_alone_and_in_a_batch(rng):
+    # the refit runs for every series, so another series' set-aside points change nothing
+    t = np.arange(96)
+    clean = 10 + np.sin(2 * np.pi * t / 12) + rng.normal(0, 0.1, 96)
+    spiky = clean.copy()
+    spiky[40] += 5
+    frame = pd.DataFrame(
+        {
+            "k": np.repeat(["clean", "spiky"], 96),
+            "t": np.tile(t, 2),
+            "v": np.concatenate([clean, spiky]),
+        }
+    )
+    together = tidesplit.outliers(frame, "k", "t", "v", period=12, all_rows=True)
+    alone = tidesplit.outliers(
+        frame[frame["k"] == "clean"], "k", "t", "v", period=12, all_rows=True
+    )
+    mine = together[together["k"] == "clean"].reset_index(drop=True)
+    np.testing.assert_array_equal(mine["expected"], alone["expected"])
+    np.testing.assert_array_equal(mine["score"], alone["score"])

@@ -24,12 +24,17 @@ def _on_scale(what: str) -> str:
 
 
 # Per series, in every answer that has rows per time: what was used, and whether it split.
-_SERIES = (
+_PERIOD, _LAMBDA, _STATUS = _SERIES = (
     Column(
         "period",
         "BIGINT",
         "the period used for the series (given, or implied by its "
         "time step); NULL for a series left unsplit",
+    ),
+    Column(
+        "boxcox_lambda",
+        "DOUBLE",
+        "the Box-Cox lambda the series was split with (0 for log; NULL without a transform)",
     ),
     Column(
         "status",
@@ -62,7 +67,7 @@ SPLIT_COLUMNS = (
     *_SERIES,
 )
 SPLIT_MULTI_COLUMNS = (
-    *(c for c in SPLIT_COLUMNS if c.name not in ("period", "status")),
+    *(c for c in SPLIT_COLUMNS if c.name not in ("period", "boxcox_lambda", "status")),
     Column("periods", "BIGINT[]", "the periods used for the series, ascending"),
     Column(
         "seasonal_by_period",
@@ -71,7 +76,8 @@ SPLIT_MULTI_COLUMNS = (
         "`{period, seasonal}` per period, ascending; in Python one `seasonal_period_<p>` "
         "column each",
     ),
-    _SERIES[1],
+    _LAMBDA,
+    _STATUS,
 )
 PROFILE_COLUMNS = (
     Column("points", "BIGINT", "observed values"),
@@ -121,21 +127,24 @@ PROFILE_COLUMNS = (
     ),
     Column("trough_position", "BIGINT", "cycle position of the lowest mean seasonal value"),
     Column("trough_label", "VARCHAR", "the same as a name"),
-    _SERIES[0],
+    _PERIOD,
     Column("periods", "BIGINT[]", "the periods used"),
-    Column("boxcox_lambda", "DOUBLE", "the Box-Cox lambda used (NULL without a transform)"),
-    _SERIES[1],
+    _LAMBDA,
+    _STATUS,
 )
 OUTLIERS_COLUMNS = (
     Column("expected", "DOUBLE", "trend + seasonal, on the original scale"),
     Column("remainder", "DOUBLE", _on_scale("the remainder")),
     Column(
-        "score", "DOUBLE", "(remainder - median) / scale, the scale being the IQR or 1.4826 MAD"
+        "score",
+        "DOUBLE",
+        "how far out the point is: its departure from its neighbours in standard deviations "
+        "of the series' ordinary departures (rule 'stepwise'), or its robust z-score ('mad')",
     ),
     Column("direction", "VARCHAR", "`high` or `low` for a flagged point"),
     Column("weight", "DOUBLE", "the robustness weight of the point"),
     Column("is_outlier", "BOOLEAN", "whether the point lies outside the fences"),
-    _SERIES[1],
+    _STATUS,
 )
 FORECAST_COLUMNS = (
     Column(
@@ -154,7 +163,7 @@ FORECAST_COLUMNS = (
         "the low end of the prediction interval that holds `coverage` of future values",
     ),
     Column("high", "DOUBLE", "its high end"),
-    _SERIES[1],
+    _STATUS,
 )
 AUDIT_COLUMNS = (
     Column("reference", "VARCHAR", "the statsmodels function the key was split again with"),

@@ -187,7 +187,9 @@ class _Table:
 
     def label(self, i: int) -> str:
         row = self.first_rows.iloc[i]
-        return "{" + ", ".join(f"{k!r}: {row[k]!r}" for k in self.keys) + "}"
+        # plain Python values, so a key reads as SQL shows it (1, not np.int64(1))
+        shown = {k: row[k].item() if hasattr(row[k], "item") else row[k] for k in self.keys}
+        return "{" + ", ".join(f"{k!r}: {v!r}" for k, v in shown.items()) + "}"
 
     def split(self, settings: dict[str, Any], fill_gaps: bool) -> RowsResult:
         on_error = settings["on_error"]
@@ -270,7 +272,7 @@ def split_table(
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 11)
+    (16, 12)
     """
     multi = given.get("periods") is not None
     settings = _settings(SPLIT_MULTI if multi else SPLIT, period, given)
@@ -315,6 +317,7 @@ def split_table(
     else:
         used = result.batch.periods.astype(float)
         out["period"] = np.repeat(np.where(used > 0, used, np.nan), lengths)
+    out["boxcox_lambda"] = np.repeat(result.batch.lambdas, lengths)
     out["status"] = np.repeat(np.array(result.status, dtype=object), lengths)
     return out
 

@@ -214,7 +214,11 @@ def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     given = _constant_arguments(names, [columns[n] for n in names])
     functions = sql_build.UDFS[udf]
     # the split UDF serves one period and several; a list of periods says which
-    function = arguments.SPLIT_MULTI if given.get("periods") is not None else functions[0]
+    function = (
+        arguments.SPLIT_MULTI
+        if udf == UDF_NAME and given.get("periods") is not None
+        else functions[0]
+    )
     taken = {a.name for a in arguments.of(function)}
     settings = arguments.accept(
         function, {k: v for k, v in given.items() if v is not None and k in taken}

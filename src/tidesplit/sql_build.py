@@ -292,6 +292,7 @@ SELECT unnest(__key),
        __parts.period AS __period,
        __parts.periods AS __periods,
        unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
+       __parts.boxcox_lambda AS boxcox_lambda,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              {_udf_call(_LEAD_CALL, SPLIT, SPLIT_MULTI)} AS __parts

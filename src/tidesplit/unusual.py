@@ -75,8 +75,8 @@ def _refit_without(
     cannot be fitted so (a cycle position left empty), its own fit."""
     values = result.trend + result.seasonal + result.remainder
     fit = result.trend + result.seasonal
-    if not set_aside.any():
-        return fit
+    # every series is refitted, whether or not it set points aside: a series' expected
+    # values must not depend on what other series share its batch
     values[set_aside] = np.nan
     ok = split_mask(result.status)
     wanted = result.batch.periods_used()
