@@ -116,6 +116,7 @@ def local_session(cores: int = 2) -> SparkSession:
         SparkSession.builder.master(f"local[{cores}]")
         .appName("tidesplit")
         .config("spark.ui.enabled", "false")
+        .config("spark.ui.showConsoleProgress", "false")
         .config("spark.sql.shuffle.partitions", str(cores))
         .config("spark.sql.execution.arrow.pyspark.enabled", "true")
         .getOrCreate()
@@ -553,10 +554,12 @@ def outliers(
     Examples
     --------
     >>> spark = local_session()
-    >>> rows = [("a", t, 10.0 + (t % 4) + (9.0 if t == 21 else 0.0)) for t in range(40)]
+    >>> noise = np.random.default_rng(1).normal(0, 0.1, 120)
+    >>> rows = [("a", t, 10.0 + t % 12 / 4 + float(noise[t]) + 5.0 * (t == 30)) for t in range(120)]
     >>> table = spark.createDataFrame(rows, "k string, t long, v double")
-    >>> outliers(table, "k", "t", "v", period=4).select("t", "direction").collect()
-    [Row(t=21, direction='high')]
+    >>> found = outliers(table, "k", "t", "v", period=12)
+    >>> found.where("t = 30").select("t", "direction").collect()
+    [Row(t=30, direction='high')]
     """
     return _run(
         OUTLIERS,
