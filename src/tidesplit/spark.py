@@ -56,37 +56,40 @@ BUCKET = "__tide_bucket"
 # The Spark type of every answer column, declared once here (the names come from
 # ``answers``; a test checks that every one of them has a type). Spark needs the result
 # schema before any data is seen, so it cannot be read off a pandas result.
-_COLUMN_TYPES: dict[str, str] = {
-    "trend": "double",
-    "seasonal": "double",
-    "remainder": "double",
-    "adjusted": "double",
-    "weight": "double",
-    "inserted": "boolean",
-    "period": "bigint",
-    "periods": "array<bigint>",
-    "seasonal_by_period": "array<struct<period: bigint, seasonal: double>>",
-    "status": "string",
-    "points": "bigint",
-    "missing": "bigint",
-    "step": "string",
-    **{name: "double" for name in summaries.PROFILE_COLUMNS},
-    "strength_by_period": "map<bigint, double>",
-    "peak_position": "bigint",
-    "peak_label": "string",
-    "trough_position": "bigint",
-    "trough_label": "string",
-    "boxcox_lambda": "double",
-    "expected": "double",
-    "score": "double",
-    "direction": "string",
-    "is_outlier": "boolean",
-    "forecast": "double",
-    "lower": "double",
-    "upper": "double",
+_DOUBLE, _LONG, _TEXT, _FLAG = st.DoubleType(), st.LongType(), st.StringType(), st.BooleanType()
+_COLUMN_TYPES: dict[str, st.DataType] = {
+    "trend": _DOUBLE,
+    "seasonal": _DOUBLE,
+    "remainder": _DOUBLE,
+    "adjusted": _DOUBLE,
+    "weight": _DOUBLE,
+    "inserted": _FLAG,
+    "period": _LONG,
+    "periods": st.ArrayType(_LONG),
+    "seasonal_by_period": st.ArrayType(
+        st.StructType([st.StructField("period", _LONG), st.StructField("seasonal", _DOUBLE)])
+    ),
+    "status": _TEXT,
+    "points": _LONG,
+    "missing": _LONG,
+    "step": _TEXT,
+    **dict.fromkeys(summaries.PROFILE_COLUMNS, _DOUBLE),
+    "strength_by_period": st.MapType(_LONG, _DOUBLE),
+    "peak_position": _LONG,
+    "peak_label": _TEXT,
+    "trough_position": _LONG,
+    "trough_label": _TEXT,
+    "boxcox_lambda": _DOUBLE,
+    "expected": _DOUBLE,
+    "score": _DOUBLE,
+    "direction": _TEXT,
+    "is_outlier": _FLAG,
+    "forecast": _DOUBLE,
+    "lower": _DOUBLE,
+    "upper": _DOUBLE,
 }
 # where one name means another thing in one answer
-_ANSWER_TYPES: dict[str, dict[str, str]] = {FORECAST: {"step": "bigint"}}
+_ANSWER_TYPES: dict[str, dict[str, st.DataType]] = {FORECAST: {"step": _LONG}}
 
 _TIME_TYPES = (
     st.ByteType,
@@ -238,7 +241,7 @@ def _result_schema(
     }[function]
     types = _COLUMN_TYPES | _ANSWER_TYPES.get(function, {})
     fields = [st.StructField(f.name, f.dataType, True) for f in lead]
-    fields += [st.StructField(name, st._parse_datatype_string(types[name])) for name in answer]
+    fields += [st.StructField(name, types[name]) for name in answer]
     return st.StructType(fields)
 
 
@@ -399,8 +402,23 @@ def _parts(frame: pd.DataFrame, kind: pa.DataType) -> pa.Array:
     return pa.array(out, type=kind)
 
 
+def _hold_threads_to_task() -> None:
+    """Let the kernel use the cores Spark gave this task (``spark.task.cpus``, 1 unless
+    set), not every core of the machine: the executor already runs a task per core, and
+    each asking numba for all of them would put cores x cores threads on the machine."""
+    from pyspark import TaskContext
+
+    context = TaskContext.get()
+    if context is None:
+        return
+    import numba
+
+    numba.set_num_threads(max(1, min(int(context.cpus()), numba.config.NUMBA_NUM_THREADS)))
+
+
 def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
     """One bucket of many keys through the Python front of the plan's function."""
+    _hold_threads_to_task()
     frame = _to_pandas(table, plan)
     counts = frame.groupby(list(plan.keys), dropna=False, sort=False).size()
     if len(counts) and counts.max() > plan.points_per_key_limit:
