@@ -187,6 +187,35 @@ def test_open_datasets_equal_duckdb(con, spark, function, macro, given):
     assert assert_same_table(from_spark, from_duckdb, order) > 0
 
 
+def test_timestamps_are_read_in_the_session_time_zone(con, spark):
+    # daily readings at local midnight across the spring and autumn clock changes: a day is
+    # 23 or 25 hours there, and the step (a day, period 7) is found only in the local zone
+    zone = "America/New_York"
+    days = np.arange(np.datetime64("2025-01-01"), np.datetime64("2025-12-31"))
+    local = pa.array(days.astype("datetime64[us]"))
+    stamps = pa.compute.assume_timezone(local, zone)
+    rng = np.random.default_rng(5)
+    keep = rng.random(days.size) > 0.05  # some days missing: gaps to fill
+    rows = []
+    for key in ("east", "west"):
+        y = 20 + 3 * np.sin(2 * np.pi * np.arange(days.size) / 7) + rng.normal(0, 0.5, days.size)
+        rows.append(pa.table({"site": [key] * int(keep.sum()), "day": stamps.filter(keep),
+                              "load": y[keep]}))  # fmt: skip
+    table = pa.concat_tables(rows)
+    con.execute(f"SET TimeZone = '{zone}'")
+    spark.conf.set("spark.sql.session.timeZone", zone)
+    try:
+        case = ("daily", ["site"], "day", "load")
+        from_spark, from_duckdb, order = run_both(
+            con, spark.createDataFrame(table), table, case, "split_table", "tide_split",
+            {"fill_gaps": True}, buckets=2,
+        )  # fmt: skip
+        assert assert_same_table(from_spark, from_duckdb, order) == 2 * days.size
+        assert set(from_spark.toArrow().column("period").to_pylist()) == {7}
+    finally:
+        spark.conf.unset("spark.sql.session.timeZone")
+
+
 def many_keys(rng: np.random.Generator, count: int, length: int) -> pa.Table:
     """``count`` series of ``length`` points, period 12, with one key too short to split."""
     t = np.arange(length)
