@@ -268,6 +268,11 @@ def test_bad_key_fails_the_job_with_our_message(spark, rng):
         PythonException, match=r"SplitError: series \{'k': 'short'\}: has 10 points"
     ):
         result.collect()
+    # integer keys are named as SQL names them ({'k': 7}, not numpy's np.int64(7))
+    numbered = frame.withColumn("k", sf.when(sf.col("k") == "short", 7).otherwise(sf.hash("k")))
+    result = tide_spark.split_table(numbered, "k", "t", "v", period=12, buckets=2)
+    with pytest.raises(PythonException, match=r"SplitError: series \{'k': 7\}: has 10 points"):
+        result.collect()
 
 
 def test_bad_key_is_kept_with_its_status(spark, rng):

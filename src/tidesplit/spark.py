@@ -20,6 +20,7 @@ from __future__ import annotations
 import inspect
 import math
 import os
+import re
 import sys
 import warnings
 from collections.abc import Sequence
@@ -52,6 +53,7 @@ FEWEST_SERIES_PER_CALL = 256
 # pandas copies) two million points ask for about 1 GB. Raise it where executors hold more.
 POINTS_PER_KEY_LIMIT = 2_000_000
 BUCKET = "__tide_bucket"
+_NUMPY_SCALAR = re.compile(r"np\.(?:int|uint|float)\d+\(([^()]*)\)")
 
 # The Spark type of every answer column, declared once here (the names come from
 # ``answers``; a test checks that every one of them has a type). Spark needs the result
@@ -436,7 +438,12 @@ def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
         OUTLIERS: api.outliers,
         FORECAST: api.forecast,
     }[plan.function]
-    result = front(frame, list(plan.keys), plan.time, plan.value, **plan.given)
+    try:
+        result = front(frame, list(plan.keys), plan.time, plan.value, **plan.given)
+    except SplitError as error:
+        # name the key as SQL does ({'k': 7}): the front shows numpy's scalars as they
+        # print themselves (np.int64(7)), and a bucket's integer keys arrive as such
+        raise SplitError(_NUMPY_SCALAR.sub(r"\1", str(error))) from None
     columns = []
     for field in plan.schema:
         if field.name == "seasonal_by_period":
