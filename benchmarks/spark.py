@@ -7,9 +7,11 @@ For each core count a child process is pinned to that many cores (numba and Duck
 same), reads one Parquet file of invented monthly series (``suite.make_batch``) into DuckDB
 and into a cached Spark DataFrame, warms both up, and times the split (written to a table in
 DuckDB, to Spark's no-op sink) and the profile. The Spark figure includes the counting job
-that sizes the buckets; it is also shown alone. On the largest core count it also times the
-same split with one kernel call per key (``series_per_call=1``) on the first
-``--per-series`` keys, beside the bucketed split of those keys: what batching keys buys.
+that sizes the buckets; it is also shown alone, and so is Spark's floor: the same buckets
+through ``applyInArrow`` handed straight back, the cost of the engine alone. On the largest
+core count it also times the same split with one kernel call per key
+(``series_per_call=1``) on the first ``--per-series`` keys, beside the bucketed split of
+those keys: what batching keys buys.
 """
 
 from __future__ import annotations
@@ -49,6 +51,11 @@ def timed(fn: Any) -> float:
     start = time.perf_counter()
     fn()
     return time.perf_counter() - start
+
+
+def _hand_back(table):  # type: ignore[no-untyped-def]
+    # (no type hints: pyspark chooses its call form from them)
+    return table.drop(["__tide_bucket"])
 
 
 def measure(path: Path, cores: int, per_series: int) -> dict[str, float]:
@@ -92,12 +99,23 @@ def measure(path: Path, cores: int, per_series: int) -> dict[str, float]:
     def sink(result: Any) -> None:
         result.write.format("noop").mode("overwrite").save()
 
-    sink(tide_spark.split_table(small, "id", "t", "v", period=12))  # warm the workers
+    # warm up every worker (Python start, the kernel from numba's cache) and the JVM's code
+    few = frame.where(sf.col("id") < 1_000)
+    for function in (tide_spark.split_table, tide_spark.profile):
+        sink(function(few, "id", "t", "v", period=12, buckets=cores))
     out["spark counting job"] = timed(lambda: tide_spark.measure(frame, ["id"]))
     out["spark split"] = timed(
         lambda: sink(tide_spark.split_table(frame, "id", "t", "v", period=12))
     )
     out["spark profile"] = timed(lambda: sink(tide_spark.profile(frame, "id", "t", "v", period=12)))
+    # Spark's floor: the same buckets through applyInArrow, handed straight back
+    buckets = tide_spark.bucket_count(tide_spark.measure(frame, ["id"]), cores)
+    grouped = frame.withColumn(
+        tide_spark.BUCKET, tide_spark._bucket_column(["id"], buckets)
+    ).groupBy(tide_spark.BUCKET)
+    out["spark floor: buckets handed straight back"] = timed(
+        lambda: sink(grouped.applyInArrow(_hand_back, "id long, t long, v double"))
+    )
     if per_series:
         out[f"spark split, {per_series:,} keys, buckets"] = timed(
             lambda: sink(tide_spark.split_table(small, "id", "t", "v", period=12))
