@@ -325,6 +325,8 @@ def test_bad_arguments_fail_on_the_driver(spark):
         tide_spark.split_table(frame, "k", "t", "w")
     with pytest.raises(ParamError, match="series_per_call must be at least 1"):
         tide_spark.split_table(frame, "k", "t", "v", series_per_call=0)
+    with pytest.raises(ParamError, match="series_per_call or buckets, not both"):
+        tide_spark.split_table(frame, "k", "t", "v", series_per_call=10, buckets=2)
 
 
 def test_signatures_are_the_registry():

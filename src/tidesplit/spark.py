@@ -177,6 +177,11 @@ def bucket_count(
     return max(1, by_series, by_rows, by_cores)
 
 
+def _column(name: str) -> Column:
+    """A column by its exact name, whatever characters it holds."""
+    return sf.col("`" + name.replace("`", "``") + "`")
+
+
 def _resolve(frame: DataFrame, name: str, role: str) -> st.StructField:
     """The field a name means (Spark matches names without regard to case)."""
     matches = [f for f in frame.schema.fields if f.name.lower() == name.lower()]
@@ -255,11 +260,11 @@ def measure(frame: DataFrame, keys: Sequence[str]) -> Sizes:
     >>> measure(table, ["k"])
     Sizes(keys=2, rows=3, longest_key={'k': 'a'}, longest_points=2)
     """
-    per_key = frame.groupBy(*[sf.col(f"`{k}`") for k in keys]).count()
+    per_key = frame.groupBy(*[_column(k) for k in keys]).count()
     row = per_key.agg(
         sf.count(sf.lit(1)).alias("keys"),
         sf.sum("count").alias("rows"),
-        sf.max_by(sf.struct(*[sf.col(f"`{k}`") for k in keys]), sf.col("count")).alias("longest"),
+        sf.max_by(sf.struct(*[_column(k) for k in keys]), sf.col("count")).alias("longest"),
         sf.max("count").alias("most"),
     ).first()
     if row is None or not row["keys"]:
@@ -277,7 +282,7 @@ def _too_long(label: str, points: int, limit: int) -> SplitError:
 
 def _bucket_column(keys: Sequence[str], buckets: int) -> Column:
     # xxhash64 is Spark's stable hash (a fixed seed, the same on every executor and run)
-    return sf.pmod(sf.xxhash64(*[sf.col(f"`{k}`") for k in keys]), sf.lit(buckets)).cast("int")
+    return sf.pmod(sf.xxhash64(*[_column(k) for k in keys]), sf.lit(buckets)).cast("int")
 
 
 def _run(
@@ -289,7 +294,7 @@ def _run(
     period: int | None,
     given: dict[str, Any],
     *,
-    series_per_call: int,
+    series_per_call: int | None,
     buckets: int | None,
     points_per_key_limit: int,
 ) -> DataFrame:
@@ -302,6 +307,8 @@ def _run(
     answer = answers.SPLIT_MULTI if multi else getattr(answers, function.upper())
     key_fields, time_field, value_field = _check_columns(frame, key, time, value, answer)
     keys = [f.name for f in key_fields]
+    if series_per_call is not None and buckets is not None:
+        raise ParamError("give series_per_call or buckets, not both")
     for name, number in (
         ("series_per_call", series_per_call),
         ("points_per_key_limit", points_per_key_limit),
@@ -311,9 +318,9 @@ def _run(
             raise ParamError(f"{name} must be at least 1, got {number!r}")
     if isinstance(value_field.dataType, st.DecimalType):
         # the fronts take binary numbers; decimals become doubles, as in the SQL functions
-        frame = frame.withColumn(value_field.name, sf.col(f"`{value_field.name}`").cast("double"))
+        frame = frame.withColumn(value_field.name, _column(value_field.name).cast("double"))
         value_field = st.StructField(value_field.name, st.DoubleType())
-    frame = frame.select(*[sf.col(f"`{c}`") for c in [*keys, time_field.name, value_field.name]])
+    frame = frame.select(*[_column(c) for c in [*keys, time_field.name, value_field.name]])
 
     sizes = measure(frame, keys)
     if sizes.longest_points > points_per_key_limit:
@@ -339,9 +346,10 @@ def _run(
         # fails on ours; without them it takes the plain table-in, table-out form
         return _split_bucket(plan, table)
 
+    series_per_call = SERIES_PER_CALL if series_per_call is None else series_per_call
     if series_per_call == 1:
         # one call per series: for comparison (benchmarks), never faster
-        grouped = frame.groupBy(*[sf.col(f"`{k}`") for k in keys])
+        grouped = frame.groupBy(*[_column(k) for k in keys])
     else:
         count = buckets or bucket_count(
             sizes, session.sparkContext.defaultParallelism, series_per_call=series_per_call
@@ -474,7 +482,7 @@ def split_table(
     value: str,
     period: int | None = None,
     *,
-    series_per_call: int = SERIES_PER_CALL,
+    series_per_call: int | None = None,
     buckets: int | None = None,
     points_per_key_limit: int = POINTS_PER_KEY_LIMIT,
     **given: Any,
@@ -491,8 +499,9 @@ def split_table(
     period, **given : the named arguments of ``tide_split`` (``periods=[...]`` those of
         ``tide_split_multi``, with a ``seasonal_by_period`` column), checked on the driver.
     series_per_call : about how many series one call of the kernel takes (keys are hashed
-        into buckets of this size); 1 calls it once per key.
-    buckets : the number of buckets, instead of one derived from ``series_per_call``.
+        into buckets of this size; default ``SERIES_PER_CALL``, 4,096); 1 calls it once
+        per key.
+    buckets : the number of buckets, instead of ``series_per_call``.
     points_per_key_limit : the most rows one key may have; a longer key fails the call
         before any kernel runs, naming the key.
 
@@ -533,7 +542,7 @@ def profile(
     value: str,
     period: int | None = None,
     *,
-    series_per_call: int = SERIES_PER_CALL,
+    series_per_call: int | None = None,
     buckets: int | None = None,
     points_per_key_limit: int = POINTS_PER_KEY_LIMIT,
     **given: Any,
@@ -569,7 +578,7 @@ def outliers(
     value: str,
     period: int | None = None,
     *,
-    series_per_call: int = SERIES_PER_CALL,
+    series_per_call: int | None = None,
     buckets: int | None = None,
     points_per_key_limit: int = POINTS_PER_KEY_LIMIT,
     **given: Any,
@@ -607,7 +616,7 @@ def forecast(
     value: str,
     period: int | None = None,
     *,
-    series_per_call: int = SERIES_PER_CALL,
+    series_per_call: int | None = None,
     buckets: int | None = None,
     points_per_key_limit: int = POINTS_PER_KEY_LIMIT,
     **given: Any,
@@ -648,7 +657,7 @@ def _signed(function: Any, *functions: str) -> None:
     lead += [
         inspect.Parameter(name, inspect.Parameter.KEYWORD_ONLY, default=default)
         for name, default in (
-            ("series_per_call", SERIES_PER_CALL),
+            ("series_per_call", None),
             ("buckets", None),
             ("points_per_key_limit", POINTS_PER_KEY_LIMIT),
         )
