@@ -35,7 +35,7 @@ from pyspark.sql import functions as sf
 from pyspark.sql import types as st
 from pyspark.sql.pandas.types import to_arrow_schema
 
-from . import answers, api, arguments, summaries
+from . import answers, api, arguments, forecast_ahead
 from .arguments import FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_MULTI
 from .errors import ParamError, SplitError
 from .params import SplitParams
@@ -55,43 +55,55 @@ POINTS_PER_KEY_LIMIT = 2_000_000
 BUCKET = "__tide_bucket"
 _NUMPY_SCALAR = re.compile(r"np\.(?:int|uint|float)\d+\(([^()]*)\)")
 
-# The Spark type of every answer column, declared once here (the names come from
-# ``answers``; a test checks that every one of them has a type). Spark needs the result
-# schema before any data is seen, so it cannot be read off a pandas result.
-_DOUBLE, _LONG, _TEXT, _FLAG = st.DoubleType(), st.LongType(), st.StringType(), st.BooleanType()
-_COLUMN_TYPES: dict[str, st.DataType] = {
-    "trend": _DOUBLE,
-    "seasonal": _DOUBLE,
-    "remainder": _DOUBLE,
-    "adjusted": _DOUBLE,
-    "weight": _DOUBLE,
-    "inserted": _FLAG,
-    "period": _LONG,
-    "periods": st.ArrayType(_LONG),
-    "seasonal_by_period": st.ArrayType(
-        st.StructType([st.StructField("period", _LONG), st.StructField("seasonal", _DOUBLE)])
-    ),
-    "status": _TEXT,
-    "points": _LONG,
-    "missing": _LONG,
-    "step": _TEXT,
-    **dict.fromkeys(summaries.PROFILE_COLUMNS, _DOUBLE),
-    "strength_by_period": st.MapType(_LONG, _DOUBLE),
-    "peak_position": _LONG,
-    "peak_label": _TEXT,
-    "trough_position": _LONG,
-    "trough_label": _TEXT,
-    "boxcox_lambda": _DOUBLE,
-    "expected": _DOUBLE,
-    "score": _DOUBLE,
-    "direction": _TEXT,
-    "is_outlier": _FLAG,
-    "forecast": _DOUBLE,
-    "lower": _DOUBLE,
-    "upper": _DOUBLE,
+# Spark needs a result's schema before it sees any data, so the answer columns' types are
+# read off their SQL types in ``answers`` (the one definition every front shares).
+_SQL_TO_SPARK: dict[str, st.DataType] = {
+    "DOUBLE": st.DoubleType(),
+    "BIGINT": st.LongType(),
+    "VARCHAR": st.StringType(),
+    "BOOLEAN": st.BooleanType(),
 }
-# where one name means another thing in one answer
-_ANSWER_TYPES: dict[str, dict[str, st.DataType]] = {FORECAST: {"step": _LONG}}
+
+
+def spark_type(sql_type: str) -> st.DataType:
+    """The Spark type of an answer column's SQL type (plain, list, struct or map).
+
+    >>> spark_type("STRUCT(period BIGINT, seasonal DOUBLE)[]").simpleString()
+    'array<struct<period:bigint,seasonal:double>>'
+    >>> spark_type("MAP(BIGINT, DOUBLE)").simpleString()
+    'map<bigint,double>'
+    """
+    text = sql_type.strip()
+    if text.endswith("[]"):
+        return st.ArrayType(spark_type(text[:-2]))
+    head, _, rest = text.partition("(")
+    inner = _top_level_parts(rest[:-1]) if rest else []
+    if head.upper() == "STRUCT":
+        fields = [part.split(None, 1) for part in inner]
+        return st.StructType([st.StructField(n, spark_type(t)) for n, t in fields])
+    if head.upper() == "MAP":
+        return st.MapType(spark_type(inner[0]), spark_type(inner[1]))
+    return _SQL_TO_SPARK[text.upper()]
+
+
+def _top_level_parts(text: str) -> list[str]:
+    """``a BIGINT, b STRUCT(x DOUBLE, y DOUBLE)`` split at its top-level commas."""
+    parts, depth, start = [], 0, 0
+    for i, char in enumerate(text):
+        depth += {"(": 1, ")": -1}.get(char, 0)
+        if char == "," and depth == 0:
+            parts.append(text[start:i].strip())
+            start = i + 1
+    return [*parts, text[start:].strip()]
+
+
+_ANSWER_COLUMNS = {
+    SPLIT: answers.SPLIT_COLUMNS,
+    SPLIT_MULTI: answers.SPLIT_MULTI_COLUMNS,
+    PROFILE: answers.PROFILE_COLUMNS,
+    OUTLIERS: answers.OUTLIERS_COLUMNS,
+    FORECAST: answers.FORECAST_COLUMNS,
+}
 
 _TIME_TYPES = (
     st.ByteType,
@@ -232,13 +244,6 @@ def _result_schema(
     value: st.StructField,
 ) -> st.StructType:
     """The input's key (and time, value) fields, then the answer's columns."""
-    answer = {
-        SPLIT: answers.SPLIT,
-        SPLIT_MULTI: answers.SPLIT_MULTI,
-        PROFILE: answers.PROFILE,
-        OUTLIERS: answers.OUTLIERS,
-        FORECAST: answers.FORECAST,
-    }[function]
     lead = {
         SPLIT: [*keys, time, value],
         SPLIT_MULTI: [*keys, time, value],
@@ -246,9 +251,8 @@ def _result_schema(
         OUTLIERS: [*keys, time, value],
         FORECAST: [*keys, time],
     }[function]
-    types = _COLUMN_TYPES | _ANSWER_TYPES.get(function, {})
     fields = [st.StructField(f.name, f.dataType, True) for f in lead]
-    fields += [st.StructField(name, types[name]) for name in answer]
+    fields += [st.StructField(c.name, spark_type(c.sql_type)) for c in _ANSWER_COLUMNS[function]]
     return st.StructType(fields)
 
 
@@ -302,9 +306,10 @@ def _run(
     settings = arguments.accept(function, given)  # a bad argument fails before any job
     SplitParams.from_settings(settings).check()
     if function == FORECAST:
-        summaries.forecast_arguments(settings["horizon"], settings["level"], settings["method"])
-    multi = function == SPLIT_MULTI
-    answer = answers.SPLIT_MULTI if multi else getattr(answers, function.upper())
+        forecast_ahead.forecast_arguments(
+            settings["steps_ahead"], settings["coverage"], settings["trend_model"]
+        )
+    answer = answers.names(_ANSWER_COLUMNS[function])
     key_fields, time_field, value_field = _check_columns(frame, key, time, value, answer)
     keys = [f.name for f in key_fields]
     if series_per_call is not None and buckets is not None:
@@ -456,20 +461,11 @@ def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
     for field in plan.schema:
         if field.name == "seasonal_by_period":
             columns.append(_parts(result, field.type))
-        elif field.name == "periods" and plan.function == PROFILE:
-            columns.append(_arrow_column(_profile_periods(result), field.type))
         elif field.name == "strength_by_period" and field.name not in result:
             columns.append(pa.nulls(len(result), field.type))
         else:
             columns.append(_arrow_column(result[field.name], field.type))
     return pa.Table.from_arrays(columns, schema=plan.schema)
-
-
-def _profile_periods(result: pd.DataFrame) -> list[Any]:
-    """The periods a series used: the keys of its strengths by period, or its one period."""
-    if "strength_by_period" in result:
-        return [sorted(s) if isinstance(s, dict) else None for s in result["strength_by_period"]]
-    return [None if np.isnan(p) else [int(p)] for p in result["period"].to_numpy(dtype=float)]
 
 
 # ---------------------------------------------------------------- the public functions
@@ -629,7 +625,7 @@ def forecast(
     >>> spark = local_session()
     >>> rows = [("a", t, 10.0 + (t % 4) + 0.5 * t) for t in range(24)]
     >>> table = spark.createDataFrame(rows, "k string, t long, v double")
-    >>> ahead = forecast(table, "k", "t", "v", period=4, horizon=2, method="drift")
+    >>> ahead = forecast(table, "k", "t", "v", period=4, steps_ahead=2, trend_model="drift")
     >>> [row.t for row in ahead.orderBy("t").collect()]
     [24, 25]
     """
