@@ -310,7 +310,242 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
     draw.add_argument("--listed", type=int, help="keys listed in the report (default 5000)")
 
 
-COMMANDS = ("demo", "draw")
+# ----------------------------------------------------------------- split, profile, ...
+
+EXAMPLES = {
+    "split": "tidesplit split --from lake/sales/ --to warehouse.duckdb:sales_split \\\n"
+    "    --key store --key sku --time month --value units --period 12 --robust \\\n"
+    "    --transform log --report split.json",
+    "profile": "tidesplit profile --from 'lake/sales/*.parquet' --to profiles.parquet \\\n"
+    "    --key store --key sku --time month --value units --period 12",
+    "outliers": "tidesplit outliers --from postgresql://etl@db:5432/shop --from-table sales \\\n"
+    "    --to unusual.parquet --key sku --time month --value units --method mad",
+    "forecast": "tidesplit forecast --from warehouse.duckdb:sales \\\n"
+    "    --to postgresql://etl@db/shop --to-table sales_ahead \\\n"
+    "    --key sku --time month --value units --horizon 6",
+}
+WHAT = {
+    "split": "trend, seasonal and remainder of every series, one row per input row "
+    "(tide_split; tide_split_multi with --periods)",
+    "profile": "one row per series: strengths, peak and trough, status (tide_profile)",
+    "outliers": "the unusual rows of every series (tide_outliers)",
+    "forecast": "future rows of every series with intervals (tide_forecast)",
+}
+# Settings of a run besides the SQL function's arguments: (option, job-file name, help).
+PLACES = (
+    (
+        "--from",
+        "from",
+        "the source: a Parquet file, glob or (hive-partitioned) folder, a "
+        "CSV file, FILE.duckdb:TABLE, or a postgresql:// address with --from-table/--from-query",
+    ),
+    (
+        "--to",
+        "to",
+        "the target: FILE.parquet, a folder (with --partition-by COLUMN or not), "
+        "FILE.duckdb:TABLE, or a postgresql:// address with --to-table",
+    ),
+    ("--from-table", "from_table", "the table (or view) to read from PostgreSQL"),
+    ("--from-query", "from_query", "a query to read from PostgreSQL instead of a table"),
+    ("--to-table", "to_table", "the table to write in PostgreSQL"),
+    ("--time", "time", "the time column"),
+    ("--value", "value", "the value column"),
+    (
+        "--partition-by",
+        "partition_by",
+        "a key or answer column to partition a folder target by (hive style: COLUMN=VALUE folders)",
+    ),
+    (
+        "--report",
+        "report",
+        "write what the run did (the last line's figures, the exit code, "
+        "the bad keys and why) to this JSON file",
+    ),
+)
+
+
+def _whole(text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a whole number, not {text!r}") from None
+
+
+def _wholes(text: str) -> list[int]:
+    """A comma list of whole numbers; an empty text is the empty list."""
+    return [_whole(part.strip()) for part in text.split(",") if part.strip()]
+
+
+def _default_help(argument: object, function: str) -> str:
+    if argument.default_text:
+        return argument.default_text
+    default = argument.default_in(function)
+    return str(default).lower() if isinstance(default, bool) else str(default)
+
+
+def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None:
+    """One answer command; its function arguments are written from the registry."""
+    from . import arguments
+    from .elt import COMMANDS, EXIT_CODES, options_of
+
+    exits = "\n".join(f"  {code}  {words}" for code, words in sorted(EXIT_CODES.items()))
+    parser = commands.add_parser(
+        command,
+        help=WHAT[command],
+        description=f"Answer every series of a source with tide_{COMMANDS[command][0]}: "
+        f"{WHAT[command]}. Keys are processed in batches (by a hash of the key), so memory "
+        "follows --batch-rows, not the table; the target is replaced only when the whole "
+        "run has succeeded.",
+        epilog=f"example:\n  {EXAMPLES[command]}\n\nexit codes:\n{exits}",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    places = parser.add_argument_group("source, target and columns")
+    for option, name, words in PLACES[:2]:
+        places.add_argument(option, dest=name, metavar="ADDRESS", help=words)
+    places.add_argument(
+        "--key", action="append", dest="key", help="a key column; repeat for several"
+    )
+    for option, name, words in PLACES[2:]:
+        places.add_argument(option, dest=name, help=words)
+    run = parser.add_argument_group("the run")
+    run.add_argument(
+        "--job",
+        metavar="FILE.toml",
+        help="take the settings from a job file "
+        "(the option names with _ for -); options given here override it",
+    )
+    run.add_argument(
+        "--batch-rows",
+        dest="batch_rows",
+        type=_whole,
+        help="rows per batch of keys (default 2,000,000): what bounds memory",
+    )
+    run.add_argument(
+        "--quiet", action="store_true", default=None, help="no progress bar and no last line"
+    )
+    named = parser.add_argument_group(
+        f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
+    )
+    kinds = {arguments.WHOLE: _whole, arguments.NUMBER: float, arguments.TEXT: str,
+             arguments.WHOLE_LIST: _wholes}  # fmt: skip
+    for argument in options_of(command):
+        function = next(f for f in COMMANDS[command] if f in argument.functions)
+        words = f"{argument.meaning} (default: {_default_help(argument, function)})"
+        words = words.replace("%", "%%")
+        option = "--" + argument.name.replace("_", "-")
+        if argument.kind == arguments.FLAG:
+            named.add_argument(
+                option,
+                dest=argument.name,
+                default=None,
+                action=argparse.BooleanOptionalAction,
+                help=words,
+            )
+            continue
+        named.add_argument(
+            option,
+            dest=argument.name,
+            type=kinds[argument.kind],
+            choices=argument.choices or None,
+            metavar="N,N" if argument.kind == arguments.WHOLE_LIST else None,
+            help=words,
+        )
+    parser.set_defaults(job_command=command)
+
+
+_RUN_SETTINGS = ("from", "to", "from_table", "from_query", "to_table", "key", "time",
+                 "value", "partition_by", "report", "batch_rows", "quiet")  # fmt: skip
+
+
+def read_job_file(path: str, command: str) -> dict[str, object]:
+    """The settings of a TOML job file, checked by name (the nearest known name is
+    suggested for an unknown one)."""
+    import difflib
+    import tomllib
+
+    from .elt import options_of
+    from .errors import ParamError
+
+    try:
+        with open(path, "rb") as handle:
+            settings = tomllib.load(handle)
+    except OSError as error:
+        raise ParamError(f"cannot read the job file {path}: {error}") from error
+    except tomllib.TOMLDecodeError as error:
+        raise ParamError(f"job file {path}: {error}") from error
+    known = [*_RUN_SETTINGS, *(a.name for a in options_of(command))]
+    for name in settings:
+        if name not in known:
+            near = difflib.get_close_matches(name, known, n=1)
+            hint = f"; did you mean {near[0]}?" if near else ""
+            raise ParamError(f"job file {path}: unknown setting {name} of {command}{hint}")
+    if isinstance(settings.get("key"), str):
+        settings["key"] = [settings["key"]]
+    return settings
+
+
+def run_job(args: argparse.Namespace) -> int:
+    """Merge the job file and the options, run, print the last line; the exit code."""
+    from . import elt
+    from .errors import ParamError
+
+    command = args.job_command
+    given = {n: v for n, v in vars(args).items() if v is not None}
+    try:
+        settings = read_job_file(args.job, command) if args.job else {}
+        settings.update(
+            {n: v for n, v in given.items() if n not in ("command", "job", "job_command")}
+        )
+        missing = [n for n in ("from", "to", "key", "time", "value") if not settings.get(n)]
+        if missing:
+            raise ParamError(
+                "missing " + ", ".join("--" + n for n in missing) + " (here or in --job)"
+            )
+        for name in (
+            "from",
+            "to",
+            "time",
+            "value",
+            "from_table",
+            "from_query",
+            "to_table",
+            "partition_by",
+            "report",
+        ):
+            if name in settings and not isinstance(settings[name], str):
+                raise ParamError(f"{name} must be text, got {settings[name]!r}")
+        keys = settings["key"]
+        if not isinstance(keys, list) or not all(isinstance(k, str) for k in keys):
+            raise ParamError(f"key must be a column name or a list of them, got {keys!r}")
+        named = {a.name for a in elt.options_of(command)}
+        job = elt.Job(
+            command,
+            settings["from"],
+            settings["to"],
+            keys,
+            settings["time"],
+            settings["value"],
+            given={n: v for n, v in settings.items() if n in named},
+            source_table=settings.get("from_table"),
+            source_query=settings.get("from_query"),
+            target_table=settings.get("to_table"),
+            partition_by=settings.get("partition_by"),
+            batch_rows=settings.get("batch_rows", elt.DEFAULT_BATCH_ROWS),
+            report=settings.get("report"),
+        )
+    except ParamError as error:
+        print(f"tidesplit {command}: {error}", file=sys.stderr)
+        return elt.EXIT_BAD_ARGUMENTS
+    quiet = bool(settings.get("quiet"))
+    outcome = elt.run(job, show_progress=not quiet)
+    if outcome.message:
+        print(f"tidesplit {command}: {outcome.message}", file=sys.stderr)
+    if not quiet:
+        print(outcome.line())
+    return outcome.exit_code
+
+
+COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -330,11 +565,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
     demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")
     _add_draw(commands)
+    for command in COMMANDS[2:]:
+        _add_job_command(commands, command)
     args = parser.parse_args(argv)
     if args.command == "demo":
         run_demo(args.database, args.shops, args.products, args.years)
     elif args.command == "draw":
         run_draw(args)
+    else:
+        return run_job(args)
     return 0
 
 
