@@ -353,14 +353,12 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
         wanted = ", ".join(quoted(c) for c in columns)
         keys_sql = ", ".join(quoted(k) for k in job.key)
         if source.is_postgres:
-            connection, reader = stream_postgres(source, columns)
-            try:  # one pass over the server: the rows land in local Parquet files
+            # one pass over the server: the rows land in a local Parquet file
+            local = os.path.join(work, "source.parquet")
+            with stream_postgres(source, columns) as reader:
                 con.register("tide_postgres_rows", reader)
-                local = os.path.join(work, "source.parquet")
                 con.execute(f"COPY tide_postgres_rows TO {literal(local)} (FORMAT parquet)")
                 con.unregister("tide_postgres_rows")
-            finally:
-                connection.close()
             relation = f"read_parquet({literal(local)})"
         else:
             relation = source.relation

@@ -23,6 +23,7 @@ import hashlib
 import os
 import shutil
 import tempfile
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -181,20 +182,22 @@ def open_source(
     return Source(address, relation=f"read_parquet({literal(address)})")
 
 
-def stream_postgres(source: Source, columns: list[str]) -> tuple[Any, Any]:
-    """The chosen columns of a PostgreSQL source as a stream of Arrow record batches.
-
-    Returns the connection (close it when the stream is read) and the reader.
-    """
+@contextlib.contextmanager
+def stream_postgres(source: Source, columns: list[str]) -> Iterator[Any]:
+    """The chosen columns of a PostgreSQL source as a stream of Arrow record batches (a
+    reader, open while the context is)."""
     connection = _postgres(source.address)
     wanted = ", ".join(quoted(c) for c in columns)
     try:
-        cursor = connection.cursor()
-        cursor.execute(f"SELECT {wanted} FROM ({source.postgres_query}) AS tide_source")
-        return connection, cursor.fetch_record_batch()
-    except Exception as error:
+        with connection.cursor() as cursor:
+            try:
+                cursor.execute(f"SELECT {wanted} FROM ({source.postgres_query}) AS tide_source")
+                reader = cursor.fetch_record_batch()
+            except Exception as error:
+                raise UnreachableError(f"cannot read {shown(source.address)}: {error}") from error
+            yield reader
+    finally:
         connection.close()
-        raise UnreachableError(f"cannot read {shown(source.address)}: {error}") from error
 
 
 _attached: dict[int, dict[str, str]] = {}
