@@ -5,12 +5,14 @@ from __future__ import annotations
 import json
 
 import adbc_driver_postgresql.dbapi as postgres
+import duckdb
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 from elt_data import KEYS, NEGATIVE, SHORT, monthly_sales
 from elt_postgres import postgres_server
 from test_elt import COLUMNS, _assert_same, _sql_answer
+from test_elt_kill import KILLS, fingerprint_sql, kill_at_random_moments
 
 from tidesplit import cli, elt
 
@@ -113,3 +115,28 @@ def test_hostile_postgres_names_inject_nothing(server, tmp_path):
     quoted = '"' + out.replace('"', '""') + '"'
     assert _read(server, f"SELECT count(*) AS n FROM {quoted}")["n"][0].as_py() == rows.num_rows
     assert _read(server, "SELECT count(*) AS n FROM guard")["n"][0].as_py() == 1
+
+
+def test_kill_a_run_into_postgres(server, tmp_path):
+    """Runs into a PostgreSQL table killed at random moments leave the previous table
+    whole; the next run writes the complete table and leaves no stage table."""
+    source = tmp_path / "sales.parquet"
+    pq.write_table(monthly_sales(keys=1_200), source)
+
+    def fingerprint() -> tuple:
+        con = duckdb.connect()
+        con.register("killed_split", _read(server, "SELECT * FROM killed_split"))
+        return con.sql(fingerprint_sql("killed_split")).fetchall()[0]
+
+    def leftovers() -> list[str]:
+        names = _read(server, "SELECT tablename FROM pg_tables WHERE tablename LIKE 'tide_%'")
+        return names["tablename"].to_pylist()
+
+    fell = kill_at_random_moments(
+        ["split", "--from", str(source), "--to", server, "--to-table", "killed_split",
+         *COLUMNS, "--batch-rows", "5000"],
+        fingerprint,
+        leftovers,
+        41,
+    )  # fmt: skip
+    assert sum(fell.values()) == KILLS
