@@ -75,6 +75,9 @@ def test_split_gives_the_numbers_of_sql_batch_by_batch(sales, tmp_path, batch_ro
         table, "split", ", period := 12, transform := 'log', robust := true, on_error := 'keep'"
     )
     _assert_same(pq.read_table(target), expected, ["store", "sku", "month"])
+    mask = os.umask(0)
+    os.umask(mask)
+    assert os.stat(target).st_mode & 0o777 == 0o666 & ~mask  # as any new file, not private
     done = json.loads(Path(report).read_text())
     assert done["exit_code"] == elt.EXIT_KEPT
     assert (done["keys"], done["keys_split"], done["keys_kept"]) == (KEYS, KEYS - 2, 2)
@@ -268,7 +271,22 @@ def test_hostile_names_inject_nothing(tmp_path):
         assert con.sql(f"SELECT count(*) FROM {quoted_out}").fetchall() == [(rows.num_rows,)]
 
 
-def test_every_command_has_help_with_an_example_and_every_argument(capsys):
+def test_every_command_has_help_with_an_example(capsys):
+    for command in cli.COMMANDS:
+        with pytest.raises(SystemExit) as done:
+            cli.main([command, "--help"])
+        assert done.value.code == 0
+        assert f"example:\n  tidesplit {command} " in capsys.readouterr().out
+
+
+def test_the_progress_bar_is_off_without_a_terminal():
+    bar = elt._Progress(10, show=True)  # the test run's stderr is captured: no terminal
+    assert bar.bar is None
+    bar.advance(10, 100)
+    bar.close()
+
+
+def test_every_command_has_help_with_every_argument(capsys):
     for command, functions in elt.COMMANDS.items():
         with pytest.raises(SystemExit) as done:
             cli.main([command, "--help"])

@@ -3,15 +3,35 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from collections.abc import Sequence
 
-DEMO_SQL = """
-CREATE OR REPLACE TABLE weekly_split AS
-SELECT * FROM tide_split(weekly_units, ['shop', 'product'], 'week', 'units',
-                         period := 52, robust := true, transform := 'log')
-""".strip()
+# The demo's two jobs, as a user would type them (the folder and database filled in).
+DEMO_WEEKLY = [
+    "split", "--from", "{folder}/weekly_units.parquet", "--to", "{database}:weekly_split",
+    "--key", "shop", "--key", "product", "--time", "week", "--value", "units",
+    "--period", "52", "--robust", "--transform", "log",
+]  # fmt: skip
+DEMO_HOURLY = [
+    "split", "--from", "{folder}/hourly_loads.parquet", "--to", "{database}:hourly_split",
+    "--key", "meter", "--time", "reading_at", "--value", "kwh", "--periods", "", "--fill-gaps",
+]  # fmt: skip
+
+
+def _demo_job(template: list[str], folder: str, database: str) -> tuple[list[str], float]:
+    """Run one of the demo's jobs through the command line; its arguments and seconds."""
+    import shlex
+
+    argv = [part.format(folder=folder, database=database) for part in template]
+    print("  tidesplit " + " ".join(shlex.quote(part) for part in argv) + "\n")
+    started = time.perf_counter()
+    code = main(argv)
+    if code != 0:
+        raise SystemExit(code)
+    return argv, time.perf_counter() - started
+
 
 STRENGTH_SQL = """
 SELECT product,
@@ -37,28 +57,56 @@ def _ends(rows: list[tuple], each: int = 3) -> list[tuple]:
 
 
 def run_demo(database: str | None, shops: int, products: int, years: int) -> None:
-    """Build the invented shop-sales table, split every series in one query, summarise."""
+    """Write the invented shop sales to Parquet, split every series with ``tidesplit
+    split`` into a DuckDB file as a scheduled job would, and summarise."""
+    import shutil
+    import tempfile
+
+    import pyarrow.parquet as pq
+
     import tidesplit
+    from tidesplit.examples.meter_loads import hourly_loads
     from tidesplit.examples.retail_chain import weekly_units
 
-    table = weekly_units(shops=shops, products=products, years=years)
-    con = tidesplit.connect(database)
-    con.register("__demo_units", table)
-    con.execute("CREATE OR REPLACE TABLE weekly_units AS SELECT * FROM __demo_units")
-    con.unregister("__demo_units")
-    series = shops * products
-    print(
-        f"Lantern Lane Grocers (invented): {shops} shops x {products} products, "
-        f"{years} years of weekly units = {table.num_rows:,} rows in table weekly_units."
-    )
-    print("\nSplitting every series in one query (the first run compiles the kernel):\n")
-    print("  " + DEMO_SQL.replace("\n", "\n  "))
-    started = time.perf_counter()
-    con.execute(DEMO_SQL)
-    elapsed = time.perf_counter() - started
-    rows_out = con.sql("SELECT count(*) FROM weekly_split").fetchall()[0][0]
-    print(f"\n{series:,} series, {rows_out:,} rows back (one per input row) in {elapsed:.2f} s.")
+    scratch = tempfile.mkdtemp(prefix="tidesplit-demo-")
+    try:
+        folder = os.path.dirname(os.path.abspath(database)) if database else scratch
+        database = database or os.path.join(scratch, "demo.duckdb")
+        table = weekly_units(shops=shops, products=products, years=years)
+        pq.write_table(table, os.path.join(folder, "weekly_units.parquet"))
+        series = shops * products
+        print(
+            f"Lantern Lane Grocers (invented): {shops} shops x {products} products, "
+            f"{years} years of weekly units = {table.num_rows:,} rows in "
+            f"{folder}/weekly_units.parquet."
+        )
+        print("\nSplitting every series with the command line (the first run compiles "
+              "the kernel):\n")  # fmt: skip
+        _, elapsed = _demo_job(DEMO_WEEKLY, folder, database)
+        loads = hourly_loads()
+        pq.write_table(loads, os.path.join(folder, "hourly_loads.parquet"))
+        con = tidesplit.connect(database)
+        for name in ("weekly_units", "hourly_loads"):  # the inputs beside the answers
+            con.execute(
+                f"CREATE OR REPLACE TABLE {name} AS "
+                f"SELECT * FROM read_parquet('{folder}/{name}.parquet')"
+            )
+        rows_out = con.sql("SELECT count(*) FROM weekly_split").fetchall()[0][0]
+        print(
+            f"\n{series:,} series, {rows_out:,} rows back (one per input row) in "
+            f"{elapsed:.2f} s (with the start of the job)."
+        )
+        _weekly_summary(con)
+        con.close()
+        _hourly_demo(folder, database, loads.num_rows)
+        where = database if scratch not in database else "a temporary database"
+        print(f"\nTables weekly_units, weekly_split, hourly_loads and hourly_split are in {where}.")
+    finally:
+        shutil.rmtree(scratch, ignore_errors=True)
 
+
+def _weekly_summary(con: object) -> None:
+    """What the weekly split shows: strengths, the data-entry slip, the closed week."""
     _print_rows(
         "Most and least seasonal products (tide_profile's strengths, 0..1, mean over shops):",
         _ends(con.sql(STRENGTH_SQL).fetchall()),
@@ -84,33 +132,18 @@ def run_demo(database: str | None, shops: int, products: int, years: int) -> Non
         closed,
         ("shop", "week", "rows", "with trend", "with remainder"),
     )
-    _hourly_demo(con)
-    where = database or "an in-memory database"
-    print(f"\nTables weekly_units, weekly_split, hourly_loads and hourly_split are in {where}.")
 
 
-HOURLY_SQL = """
-CREATE OR REPLACE TABLE hourly_split AS
-SELECT * FROM tide_split_multi(hourly_loads, 'meter', 'reading_at', 'kwh', fill_gaps := true)
-""".strip()
-
-
-def _hourly_demo(con: object) -> None:
+def _hourly_demo(folder: str, database: str, readings: int) -> None:
     """Two cycles and gaps: hourly meter loads through tide_split_multi."""
-    from tidesplit.examples.meter_loads import hourly_loads
+    import tidesplit
 
-    table = hourly_loads()
-    con.register("__demo_loads", table)
-    con.execute("CREATE OR REPLACE TABLE hourly_loads AS SELECT * FROM __demo_loads")
-    con.unregister("__demo_loads")
     print(
-        f"\nBrackwater Energy Cooperative (invented): {table.num_rows:,} hourly readings "
+        f"\nBrackwater Energy Cooperative (invented): {readings:,} hourly readings "
         "with holes. Two cycles (day and week) are implied by the hourly step:\n"
     )
-    print("  " + HOURLY_SQL.replace("\n", "\n  "))
-    started = time.perf_counter()
-    con.execute(HOURLY_SQL)
-    elapsed = time.perf_counter() - started
+    _, elapsed = _demo_job(DEMO_HOURLY, folder, database)
+    con = tidesplit.connect(database)
     rows = con.sql(
         "SELECT meter, count(*) FILTER (WHERE inserted) AS hours_inserted, "
         "round(max(tide_part(seasonal_by_period, 24)) "
@@ -119,6 +152,7 @@ def _hourly_demo(con: object) -> None:
         "- min(tide_part(seasonal_by_period, 168)), 1) AS week_swing "
         "FROM hourly_split GROUP BY meter ORDER BY meter"
     ).fetchall()
+    con.close()
     _print_rows(
         f"Split in {elapsed:.2f} s; the gaps came back as inserted hours (kWh swing per cycle):",
         rows,
@@ -265,6 +299,9 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
         "key under several spans (--spans), and a self-contained HTML report (--report). "
         "Pictures are PNG or SVG by the file name. Keys are named by their values joined "
         "by ' / ' (for example 'Quayside / sun cream').",
+        epilog="example:\n  tidesplit draw demo.duckdb --table weekly_units --key shop "
+        "--key product \\\n    --time week --value units --period 52 --fleet fleet.png",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     draw.add_argument("source", help="a DuckDB database file (with --table) or a Parquet file")
     draw.add_argument("--table", help="the table or view to read from a DuckDB file")
@@ -557,10 +594,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     demo = commands.add_parser(
         "demo",
         help="split an invented shop-sales table and print a summary",
-        description="Build an invented table of weekly unit sales, split every series with "
-        "one tide_split query, and print what came out.",
+        description="Build an invented table of weekly unit sales, write it to Parquet, "
+        "split every series with tidesplit split (the tide_split query on batches of keys) "
+        "into a DuckDB file, and print what came out.",
+        epilog="example:\n  tidesplit demo --database demo.duckdb",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    demo.add_argument("--database", help="DuckDB file to keep the tables in (default: memory)")
+    demo.add_argument(
+        "--database", help="DuckDB file to keep the tables in (default: a temporary one)"
+    )
     demo.add_argument("--shops", type=int, default=12, help="number of shops (default 12)")
     demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
     demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")

@@ -73,6 +73,8 @@ def answer_columns(function: str) -> tuple[str, ...]:
 
 
 DEFAULT_BATCH_ROWS = 2_000_000
+STAGE_FLUSH_ROWS = 100_000  # rows a thread buffers before writing to the batch files
+DUCKDB_MEMORY = "2GB"  # DuckDB's own cap (it spills beyond); the kernel's arrays are apart
 BATCH_COLUMN = "tide_batch"  # the staging files' partition column
 _MULTI_ONLY = {a.name for a in arguments.of(arguments.SPLIT_MULTI)} - {
     a.name for a in arguments.of(arguments.SPLIT)
@@ -135,6 +137,8 @@ class Job:
             reasons.append(f"the column name {BATCH_COLUMN} is used by the batching")
         if reasons:
             raise ParamError("; ".join(reasons))
+        if self.report and not os.path.isdir(os.path.dirname(os.path.abspath(self.report))):
+            raise ParamError(f"no folder to hold the report {self.report}")
         if arguments.whole_number("batch_rows", self.batch_rows) < 1:
             raise ParamError(f"batch_rows must be at least 1, got {self.batch_rows}")
         return {name: settled[name] for name in self.given}
@@ -276,7 +280,7 @@ def run(job: Job, *, show_progress: bool = False) -> Outcome:
         outcome.keys_split = outcome.keys_kept = outcome.rows_out = 0
     outcome.seconds = round(time.perf_counter() - started, 3)
     outcome.outcome = EXIT_CODES[outcome.exit_code]
-    if job.report:
+    if job.report and os.path.isdir(os.path.dirname(os.path.abspath(job.report))):
         _write_report(job.report, outcome)
     return outcome
 
@@ -303,10 +307,13 @@ def _shown(address: str) -> str:
 
 def _write_report(path: str, outcome: Outcome) -> None:
     """The report file, written aside and renamed so a reader never sees half of one."""
+    from .endpoints import usual_mode
+
     folder = os.path.dirname(os.path.abspath(path))
     handle, aside = tempfile.mkstemp(prefix=".tide-report-", suffix=".json", dir=folder)
     with os.fdopen(handle, "w") as out:
         out.write(outcome.as_json() + "\n")
+    usual_mode(aside)
     os.replace(aside, path)
 
 
@@ -316,7 +323,7 @@ def _key_counts(con: Any, relation: str, key: list[str]) -> Any:
 
     keys = ", ".join(quoted(k) for k in key)
     counted = con.sql(
-        f"SELECT hash({keys}) AS h, count(*) AS n FROM {relation} GROUP BY ALL"
+        f"SELECT hash({keys}) AS h, count(*) AS n FROM {relation} GROUP BY {keys}"
     ).fetchnumpy()
     return counted["h"], counted["n"]
 
@@ -347,6 +354,12 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
     try:
         con.execute(f"SET temp_directory = {literal(os.path.join(work, 'spill'))}")
         con.execute("SET preserve_insertion_order = false")
+        # Bounded memory (measured on 360 million rows in 180 batches: 6.0 GiB with
+        # DuckDB's defaults, 1.3 GiB so): no cache of the files read (each is read once or
+        # twice), partitioned writes flushed early, and a cap on what DuckDB holds.
+        con.execute("SET enable_external_file_cache = false")
+        con.execute(f"SET partitioned_write_flush_threshold = {STAGE_FLUSH_ROWS}")
+        con.execute(f"SET memory_limit = '{DUCKDB_MEMORY}'")
         source = open_source(con, job.source, job.source_table, job.source_query)
         target = open_target(con, job.target, job.target_table, job.partition_by)
         columns = list(dict.fromkeys([*job.key, job.time, job.value]))

@@ -275,6 +275,14 @@ class Target:
         raise NotImplementedError
 
 
+def usual_mode(path: str, folder: bool = False) -> None:
+    """Give a file (or folder) made by ``tempfile`` (private: 0600, 0700) the mode a plain
+    new file would have under the umask, since it becomes the output."""
+    mask = os.umask(0)
+    os.umask(mask)
+    os.chmod(path, (0o777 if folder else 0o666) & ~mask)
+
+
 def _fsync(path: str) -> None:
     descriptor = os.open(path, os.O_RDONLY)
     try:
@@ -302,6 +310,7 @@ class ParquetFile(Target):
         except OSError as error:
             raise UnreachableError(f"cannot write into {self.folder}: {error}") from error
         os.close(handle)
+        usual_mode(name)
         self.aside, self.target, self.writer = name, str(target), None
 
     def write(self, result: pa.Table, batch: int) -> None:
@@ -361,6 +370,7 @@ class ParquetFolder(Target):
             self.aside = tempfile.mkdtemp(prefix=f".{target.name}.tide-", dir=parent)
         except OSError as error:
             raise UnreachableError(f"cannot write into {parent}: {error}") from error
+        usual_mode(self.aside, folder=True)
         self.target, self.previous = str(target), str(previous)
 
     def write(self, result: pa.Table, batch: int) -> None:
