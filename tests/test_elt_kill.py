@@ -65,6 +65,8 @@ def kill_at_random_moments(
     before = fingerprint()
     assert before != after and before[0] == after[0]
     moments = random.Random(seed)
+    # where the kills fell: before anything was written aside, while it was (a leftover
+    # is found after the kill), or after the output was replaced
     fell = {"before_writing": 0, "while_writing_aside": 0, "after_replacing": 0}
     for _ in range(KILLS):
         process = start([*arguments, *KILLED])
@@ -73,8 +75,9 @@ def kill_at_random_moments(
         process.wait()
         found = fingerprint()  # complete and readable: either whole output, nothing else
         assert found in (before, after)
-        if found == after:  # the next kills then find this output as the previous one
+        if found == after:  # killed after the run had put its output in place
             fell["after_replacing"] += 1
+            run_to_the_end([*arguments, *BEFORE])  # so the next kill finds `before` again
         elif leftovers():
             fell["while_writing_aside"] += 1
         else:
