@@ -277,6 +277,11 @@ def test_every_command_has_help_with_an_example(capsys):
             cli.main([command, "--help"])
         assert done.value.code == 0
         assert f"example:\n  tidesplit {command} " in capsys.readouterr().out
+    readme = (Path(__file__).parent.parent / "README.md").read_text()
+    for command in elt.COMMANDS:  # each documented, beside the exit codes
+        assert f"`tidesplit {command}`" in readme
+    for code in elt.EXIT_CODES:
+        assert f"\n| {code} | " in readme
 
 
 def test_the_progress_bar_is_off_without_a_terminal():

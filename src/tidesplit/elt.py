@@ -219,7 +219,7 @@ class _Progress:
         if show and sys.stderr.isatty():
             from tqdm import tqdm
 
-            self.bar = tqdm(total=total, unit="key", unit_scale=True, file=sys.stderr)
+            self.bar = tqdm(total=total, unit=" keys", unit_scale=True, file=sys.stderr)
         self.started, self.rows = time.perf_counter(), 0
 
     def advance(self, keys: int, rows: int) -> None:
