@@ -191,6 +191,8 @@ def test_exit_codes_for_arguments_and_places(sales, tmp_path, capsys):
     refused = "postgresql://nobody@127.0.0.1:1/none"
     code = cli.main(["split", "--from", refused, "--from-table", "t", "--to", out, *COLUMNS])
     assert code == elt.EXIT_UNREACHABLE
+    code = cli.main(["split", "--from", source, "--to", refused, "--to-table", "t", *COLUMNS])
+    assert code == elt.EXIT_UNREACHABLE
     assert not os.path.exists(out)
     clean = str(tmp_path / "clean.parquet")
     pq.write_table(monthly_sales(keys=30), clean)
@@ -200,6 +202,7 @@ def test_exit_codes_for_arguments_and_places(sales, tmp_path, capsys):
     pq.write_table(monthly_sales(keys=6), clean)  # skus 0 to 5: no bad series
     assert cli.main(good) == elt.EXIT_OK
     assert len(set(elt.EXIT_CODES)) == 6
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []  # no leftovers
 
 
 def test_job_file_with_options_overriding_it(sales, tmp_path):

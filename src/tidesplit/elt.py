@@ -362,6 +362,8 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
         con.execute(f"SET memory_limit = '{DUCKDB_MEMORY}'")
         source = open_source(con, job.source, job.source_table, job.source_query)
         target = open_target(con, job.target, job.target_table, job.partition_by)
+        target.open()  # before any long read: an unreachable target fails at once
+        opened = True
         columns = list(dict.fromkeys([*job.key, job.time, job.value]))
         wanted = ", ".join(quoted(c) for c in columns)
         keys_sql = ", ".join(quoted(k) for k in job.key)
@@ -389,8 +391,6 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
         by_batch = (hashes % np.uint64(batches)).astype(np.int64)
         keys_of = np.bincount(by_batch, minlength=batches)
         rows_of = np.bincount(by_batch, weights=counts, minlength=batches).astype(np.int64)
-        target.open()
-        opened = True
         if batches > 1:  # one streaming pass writes each batch's rows to its own files
             staged = os.path.join(work, "batches")
             con.execute(
