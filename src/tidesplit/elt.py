@@ -432,9 +432,6 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
     finally:
         if opened:
             target.abort()
-        from .endpoints import forget
-
-        forget(con)
         con.close()
         shutil.rmtree(work, ignore_errors=True)
 

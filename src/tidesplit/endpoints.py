@@ -200,34 +200,33 @@ def stream_postgres(source: Source, columns: list[str]) -> Iterator[Any]:
         connection.close()
 
 
-_attached: dict[int, dict[str, str]] = {}
-
-
 def attach(con: duckdb.DuckDBPyConnection, path: str, *, read_only: bool) -> str:
     """Attach a DuckDB file once per connection; the alias it is known by.
 
     A file attached read-only is attached again for writing when a later call needs it
-    (the source and the target can be one file)."""
+    (the source and the target can be one file).
+
+    >>> import duckdb, os, tempfile
+    >>> con, path = duckdb.connect(), os.path.join(tempfile.mkdtemp(), "w.duckdb")
+    >>> alias = attach(con, path, read_only=False)
+    >>> alias == attach(con, path, read_only=True), alias.startswith("tide_db_")
+    (True, True)
+    """
     real = os.path.realpath(path)
-    known = _attached.setdefault(id(con), {})
     alias = "tide_db_" + hashlib.sha1(real.encode()).hexdigest()[:12]
-    mode = known.get(real)
-    if mode == "rw" or (mode == "ro" and read_only):
+    found = con.execute(
+        "SELECT readonly FROM duckdb_databases() WHERE database_name = ?", [alias]
+    ).fetchall()
+    if found and (read_only or not found[0][0]):
         return alias
-    if mode == "ro":
+    if found:
         con.execute(f"DETACH {quoted(alias)}")
     try:
         options = " (READ_ONLY)" if read_only else ""
         con.execute(f"ATTACH {literal(real)} AS {quoted(alias)}{options}")
     except duckdb.Error as error:
         raise UnreachableError(f"cannot open {path}: {error}") from error
-    known[real] = "ro" if read_only else "rw"
     return alias
-
-
-def forget(con: duckdb.DuckDBPyConnection) -> None:
-    """Forget what ``attach`` remembers of a connection about to close."""
-    _attached.pop(id(con), None)
 
 
 # ---------------------------------------------------------------------------- targets
@@ -277,7 +276,13 @@ class Target:
 
 def usual_mode(path: str, folder: bool = False) -> None:
     """Give a file (or folder) made by ``tempfile`` (private: 0600, 0700) the mode a plain
-    new file would have under the umask, since it becomes the output."""
+    new file would have under the umask, since it becomes the output.
+
+    >>> import os, tempfile
+    >>> handle, path = tempfile.mkstemp(); os.close(handle); usual_mode(path)
+    >>> oct(os.stat(path).st_mode & 0o600)
+    '0o600'
+    """
     mask = os.umask(0)
     os.umask(mask)
     os.chmod(path, (0o777 if folder else 0o666) & ~mask)
