@@ -408,9 +408,28 @@ def _whole(text: str) -> int:
         raise argparse.ArgumentTypeError(f"a whole number, not {text!r}") from None
 
 
-def _wholes(text: str) -> list[int]:
-    """A comma list of whole numbers; an empty text is the empty list."""
-    return [_whole(part.strip()) for part in text.split(",") if part.strip()]
+def _is_list(argument: object) -> bool:
+    from . import arguments
+
+    return arguments.SQL_TYPES[argument.kind].endswith("[]")
+
+
+def _option_type(argument: object) -> object:
+    """How an option's text becomes the value its kind holds (lists: comma-separated);
+    the registry checks the value after."""
+    from . import arguments
+
+    whole = argument.kind in (arguments.WHOLE, arguments.WHOLE_LIST)
+    if _is_list(argument):
+        one = _whole if whole else float
+
+        def comma_list(text: str) -> list:
+            return [one(part.strip()) for part in text.split(",") if part.strip()]
+
+        return comma_list
+    if argument.kind == arguments.TEXT:
+        return str
+    return _whole if whole else float
 
 
 def _default_help(argument: object, function: str) -> str:
@@ -463,8 +482,6 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
     named = parser.add_argument_group(
         f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
     )
-    kinds = {arguments.WHOLE: _whole, arguments.NUMBER: float, arguments.TEXT: str,
-             arguments.WHOLE_LIST: _wholes}  # fmt: skip
     for argument in options_of(command):
         function = next(f for f in COMMANDS[command] if f in argument.functions)
         words = f"{argument.meaning} (default: {_default_help(argument, function)})"
@@ -482,9 +499,9 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
         named.add_argument(
             option,
             dest=argument.name,
-            type=kinds[argument.kind],
+            type=_option_type(argument),
             choices=argument.choices or None,
-            metavar="N,N" if argument.kind == arguments.WHOLE_LIST else None,
+            metavar="N,N" if _is_list(argument) else None,
             help=words,
         )
     parser.set_defaults(job_command=command)
