@@ -9,13 +9,22 @@ CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
     (t DATE) AS epoch_us(t),
     (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
     (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ');
+    (t HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
     (c, sample TIMESTAMP) AS make_timestamp(c),
     (c, sample TIMESTAMPTZ) AS timezone('UTC', make_timestamp(c)),
-    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE);
+    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE),
+    (c, sample VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
+    (c, sample DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (c, sample BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- Why an argument's type is refused (NULL when it is fine), one macro per kind.
 CREATE OR REPLACE TEMP MACRO __tide_check_number(name, x) AS
@@ -98,8 +107,11 @@ CREATE OR REPLACE TEMP MACRO __tide_grid_value_rows(source, value_rows) AS
 CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
     list_filter(parts, lambda part: part.period = period)[1].seasonal;
 
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack(trend := parts.trend, seasonal := parts.seasonal, remainder := parts.remainder, adjusted := parts.adjusted, weight := parts.weight, period := parts.period, boxcox_lambda := parts.boxcox_lambda, status := parts.status);
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
-CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise') AS
+CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise') AS
     CASE WHEN __tide_refuse([__tide_check_number('period', period),
              __tide_check_number('season_span', season_span),
              __tide_check_number('trend_span', trend_span),
@@ -114,8 +126,9 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
              __tide_check_number('outer_loops', outer_loops),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_text('on_error', on_error)])
-    THEN __tide_split_series(NULL, NULL, NULL, NULL, values,
+    THEN __tide_list_parts(__tide_split_series(NULL, NULL, NULL, NULL, values,
         TRY_CAST(period AS DOUBLE),
         NULL,
         TRY_CAST(season_span AS DOUBLE),
@@ -134,14 +147,15 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
         NULL,
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
         NULL,
-        TRY_CAST(on_error AS VARCHAR))
+        TRY_CAST(on_error AS VARCHAR)))
     END;
 
 -- With fill_gaps the rows are those of the regular grid, input rows picked by their source
 -- and inserted times rebuilt from their codes; without, the input rows as they came.
 -- fill_gaps is a constant, so DuckDB folds the CASE and keeps one branch.
-CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, fill_gaps := NULL, on_error := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := NULL, on_error := NULL) AS TABLE
 SELECT unnest(__key),
        unnest(CASE WHEN coalesce(fill_gaps, false)
                    THEN __tide_grid_time_rows(__parts.source, __parts.time_codes, __time_rows)
@@ -151,13 +165,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              __tide_split_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -180,6 +194,7 @@ FROM (SELECT __key, __time_rows, __value_rows,
         TRY_CAST(iterations AS DOUBLE),
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(fill_gaps AS BOOLEAN),
         TRY_CAST(on_error AS VARCHAR)) AS __parts
       FROM __tide_grouped(tbl, keys, time, value),
@@ -189,7 +204,7 @@ FROM (SELECT __key, __time_rows, __value_rows,
 -- One key column by name, or a list of them (exact names, not patterns). Arguments
 -- after the value column are taken by name only: by_name_only catches a stray
 -- positional one.
-CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods) RENAME (__period AS period)
      FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'status'],
          [__tide_check_number('period', period),
@@ -206,9 +221,10 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
              __tide_check_number('outer_loops', outer_loops),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, fill_gaps := fill_gaps, on_error := on_error)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
+         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods) RENAME (__period AS period)
      FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'status'],
          [__tide_check_number('period', period),
@@ -225,13 +241,14 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
              __tide_check_number('outer_loops', outer_loops),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, fill_gaps := fill_gaps, on_error := on_error));
+         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error));
 
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
-CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -248,11 +265,12 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
              __tide_check_number('iterations', iterations),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, fill_gaps := fill_gaps, on_error := on_error)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
+         periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'status', 'periods', 'seasonal_by_period'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -269,11 +287,12 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
              __tide_check_number('iterations', iterations),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, fill_gaps := fill_gaps, on_error := on_error));
+         periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error));
 
 -- Per-series answers, one row per key.
-CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, on_error := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL) AS TABLE
 SELECT unnest(__key), unnest(__p)
 FROM (SELECT __key,
              __tide_profile_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -296,9 +315,10 @@ FROM (SELECT __key,
         TRY_CAST(iterations AS DOUBLE),
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR)) AS __p
       FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'period', 'periods', 'boxcox_lambda', 'status'])
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'time_step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'period', 'periods', 'boxcox_lambda', 'status'])
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -315,17 +335,18 @@ FROM (SELECT __key,
              __tide_check_number('iterations', iterations),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_text('on_error', on_error)]) AS __ok) AS __checked
       WHERE __checked.__ok);
 
-CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise') AS TABLE
-    (SELECT * FROM __tide_profile_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise') AS TABLE
-    (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error));
+CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise') AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise') AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error));
 
--- Points whose remainder lies outside the fences (all rows with all_rows := true); every row
+-- Points too far out to be noise (all rows with all_rows := true); every row
 -- of a series that could not be split, with its status.
-CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, on_error := NULL, method := NULL, threshold := NULL, all_rows := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, rule := NULL, significance := NULL, threshold := NULL, all_rows := NULL) AS TABLE
 SELECT * FROM (
     SELECT unnest(__key),
            unnest(__time_rows, recursive := true),
@@ -358,8 +379,10 @@ SELECT * FROM (
         TRY_CAST(iterations AS DOUBLE),
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR),
-        TRY_CAST(method AS VARCHAR),
+        TRY_CAST(rule AS VARCHAR),
+        TRY_CAST(significance AS DOUBLE),
         TRY_CAST(threshold AS DOUBLE),
         TRY_CAST(all_rows AS BOOLEAN)) AS __o
           FROM __tide_grouped(tbl, keys, time, value),
@@ -380,27 +403,29 @@ SELECT * FROM (
              __tide_check_number('iterations', iterations),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
-             __tide_check_text('on_error', on_error), __tide_check_text('method', method),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
+             __tide_check_text('on_error', on_error), __tide_check_text('rule', rule),
+             __tide_check_number('significance', significance),
              __tide_check_number('threshold', threshold), __tide_check_flag('all_rows', all_rows)]) AS __ok) AS __checked
           WHERE __checked.__ok))
 WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok');
 
-CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise', method := 'iqr', threshold := 3.0, all_rows := false) AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error, method := method, threshold := threshold, all_rows := all_rows)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise', method := 'iqr', threshold := 3.0, all_rows := false) AS TABLE
+     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error, method := method, threshold := threshold, all_rows := all_rows));
+     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows));
 
--- Future rows per key up to a horizon, with prediction intervals; a series that could not
+-- Future rows per key, steps_ahead of them, with prediction intervals; a series that could not
 -- be split (on_error := 'keep') gives one row with its status and NULL forecasts.
-CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, on_error := NULL, horizon := NULL, level := NULL, method := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, steps_ahead := NULL, coverage := NULL, trend_model := NULL) AS TABLE
 SELECT unnest(__key),
        unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
-       unnest(__f.step) AS step,
+       unnest(__f.steps_ahead) AS steps_ahead,
        unnest(__f.forecast) AS forecast,
-       unnest(__f.lower) AS lower,
-       unnest(__f.upper) AS upper,
+       unnest(__f.low) AS low,
+       unnest(__f.high) AS high,
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              __tide_forecast_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -423,12 +448,13 @@ FROM (SELECT __key, __time_rows,
         TRY_CAST(iterations AS DOUBLE),
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(on_error AS VARCHAR),
-        TRY_CAST(horizon AS DOUBLE),
-        TRY_CAST(level AS DOUBLE),
-        TRY_CAST(method AS VARCHAR)) AS __f
+        TRY_CAST(steps_ahead AS DOUBLE),
+        TRY_CAST(coverage AS DOUBLE),
+        TRY_CAST(trend_model AS VARCHAR)) AS __f
       FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['step', 'forecast', 'lower', 'upper', 'status'])
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['steps_ahead', 'forecast', 'low', 'high', 'status'])
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -445,11 +471,70 @@ FROM (SELECT __key, __time_rows,
              __tide_check_number('iterations', iterations),
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
-             __tide_check_text('on_error', on_error), __tide_check_number('horizon', horizon),
-             __tide_check_number('level', level), __tide_check_text('method', method)]) AS __ok) AS __checked
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
+             __tide_check_text('on_error', on_error),
+             __tide_check_number('steps_ahead', steps_ahead),
+             __tide_check_number('coverage', coverage),
+             __tide_check_text('trend_model', trend_model)]) AS __ok) AS __checked
       WHERE __checked.__ok);
 
-CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise', horizon := 12, level := 0.95, method := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error, horizon := horizon, level := level, method := method)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, on_error := 'raise', horizon := 12, level := 0.95, method := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, on_error := on_error, horizon := horizon, level := level, method := method));
+CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model));
+
+-- A sample of keys split again by statsmodels under the same settings: the largest
+-- difference of each component, or why statsmodels cannot follow.
+CREATE OR REPLACE TEMP MACRO __tide_audit_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, sample := NULL) AS TABLE
+SELECT unnest(__key), unnest(__a)
+FROM (SELECT __key,
+             __tide_audit_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
+        current_setting('TimeZone'), __values,
+        TRY_CAST(period AS DOUBLE),
+        TRY_CAST(periods AS DOUBLE[]),
+        TRY_CAST(season_span AS DOUBLE),
+        TRY_CAST(season_spans AS DOUBLE[]),
+        TRY_CAST(trend_span AS DOUBLE),
+        TRY_CAST(lowpass_span AS DOUBLE),
+        TRY_CAST(season_degree AS DOUBLE),
+        TRY_CAST(trend_degree AS DOUBLE),
+        TRY_CAST(lowpass_degree AS DOUBLE),
+        TRY_CAST(season_jump AS DOUBLE),
+        TRY_CAST(trend_jump AS DOUBLE),
+        TRY_CAST(lowpass_jump AS DOUBLE),
+        TRY_CAST(robust AS BOOLEAN),
+        TRY_CAST(inner_loops AS DOUBLE),
+        TRY_CAST(outer_loops AS DOUBLE),
+        TRY_CAST(iterations AS DOUBLE),
+        TRY_CAST(transform AS VARCHAR),
+        TRY_CAST(boxcox_lambda AS DOUBLE),
+        TRY_CAST(boxcox_bounds AS DOUBLE[]),
+        TRY_CAST(on_error AS VARCHAR),
+        TRY_CAST(sample AS DOUBLE)) AS __a
+      FROM (SELECT * FROM __tide_grouped(tbl, keys, time, value)
+            ORDER BY hash(CAST(__key AS VARCHAR)) LIMIT sample),
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['reference', 'points_compared', 'trend_gap', 'seasonal_gap', 'remainder_gap', 'status'])
+          || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
+             __tide_check_number('season_span', season_span),
+             __tide_check_numbers('season_spans', season_spans),
+             __tide_check_number('trend_span', trend_span),
+             __tide_check_number('lowpass_span', lowpass_span),
+             __tide_check_number('season_degree', season_degree),
+             __tide_check_number('trend_degree', trend_degree),
+             __tide_check_number('lowpass_degree', lowpass_degree),
+             __tide_check_number('season_jump', season_jump),
+             __tide_check_number('trend_jump', trend_jump),
+             __tide_check_number('lowpass_jump', lowpass_jump),
+             __tide_check_flag('robust', robust), __tide_check_number('inner_loops', inner_loops),
+             __tide_check_number('outer_loops', outer_loops),
+             __tide_check_number('iterations', iterations),
+             __tide_check_text('transform', transform),
+             __tide_check_number('boxcox_lambda', boxcox_lambda),
+             __tide_check_numbers('boxcox_bounds', boxcox_bounds),
+             __tide_check_text('on_error', on_error), __tide_check_number('sample', sample)]) AS __ok) AS __checked
+      WHERE __checked.__ok);
+
+CREATE OR REPLACE TEMP MACRO tide_audit(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', sample := 20) AS TABLE
+    (SELECT * FROM __tide_audit_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, sample := sample)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', sample := 20) AS TABLE
+    (SELECT * FROM __tide_audit_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, sample := sample));

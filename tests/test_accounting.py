@@ -6,6 +6,8 @@ The fleet (tests/fleet.py) holds series of known kinds; the checks know what eac
 
 from __future__ import annotations
 
+import re
+
 import duckdb
 import numpy as np
 import pandas as pd
@@ -135,14 +137,14 @@ def test_forecast_gives_every_key_its_rows_or_its_status(fleet_in_one_call):
     con, fleet, _ = fleet_in_one_call
     out = con.sql(
         f"SELECT * FROM tide_forecast(fleet, {KEYS}, 't', 'v', period := {PERIOD}, "
-        "horizon := 3, on_error := 'keep')"
+        "steps_ahead := 3, on_error := 'keep')"
     ).df()
     check_status(fleet, {key_of(r): r.status for r in out.itertuples()})
     counts = out.groupby(["item"])["status"].agg(["size", "first"])
     ok = counts["first"].str.startswith("ok")
     assert (counts.loc[ok, "size"] == 3).all() and (counts.loc[~ok, "size"] == 1).all()
     good = out[out["status"].str.startswith("ok")]
-    assert good[["t", "step", "forecast", "lower", "upper"]].notna().all().all()
+    assert good[["t", "steps_ahead", "forecast", "low", "high"]].notna().all().all()
     assert out.loc[~out["status"].str.startswith("ok"), ["t", "forecast"]].isna().all().all()
 
 
@@ -190,7 +192,7 @@ def test_python_twins_account_for_every_row(fleet_in_one_call):
     )
     check_status(fleet, {key_of(r): r.status for r in unusual.itertuples()})
     ahead = tidesplit.forecast(
-        given, ["shop", "item"], "t", "v", period=PERIOD, horizon=3, on_error="keep"
+        given, ["shop", "item"], "t", "v", period=PERIOD, steps_ahead=3, on_error="keep"
     )
     check_status(fleet, {key_of(r): r.status for r in ahead.itertuples()})
     assert len(ahead) == sum(3 if k in fleet.grid else 1 for k in fleet.kinds)
@@ -301,7 +303,7 @@ def test_values_too_large_to_split_are_refused_with_their_time(con):
         )
         rows = con.sql(
             "SELECT count(*), count(forecast), any_value(status) FROM tide_forecast(e, 'k', 't', "
-            "'v', period := 4, horizon := 3, on_error := 'keep')"
+            "'v', period := 4, steps_ahead := 3, on_error := 'keep')"
         ).fetchall()
         assert rows[0][:2] == (1, 0)
         assert rows[0][2].startswith("value 1.5e+") and "at time 0 is beyond 1e+150" in rows[0][2]
@@ -319,7 +321,7 @@ def test_a_forecast_that_overflows_after_the_back_transform_is_said(con):
     )
     row = con.sql(
         "SELECT count(*), count(forecast), any_value(status) FROM tide_forecast(grow, 'k', 't', "
-        "'v', period := 4, horizon := 2000, transform := 'log', method := 'drift', "
+        "'v', period := 4, steps_ahead := 2000, transform := 'log', trend_model := 'drift', "
         "on_error := 'keep')"
     ).fetchall()[0]
     assert row[:2] == (1, 0) and row[2].startswith("the forecast is not finite from step")
@@ -361,10 +363,13 @@ def test_an_argument_no_series_can_use_fails_the_query_under_keep_too(con):
         ("tide_split(f, 'k', 't', 'v', 4)", "give every argument after the value column by name"),
         ("tide_split_multi(f, 'k', 't', 'v', 7)", "give every argument after the value column"),
         (
-            "tide_forecast(f, 'k', 't', 'v', period := 4, horizon := 2.5)",
-            "horizon must be a whole number, got 2.5",
+            "tide_forecast(f, 'k', 't', 'v', period := 4, steps_ahead := 2.5)",
+            "steps_ahead must be a whole number, got 2.5",
         ),
-        ("tide_forecast(f, 'k', 't', 'v', period := 4, level := 'high')", "level must be a number"),
+        (
+            "tide_forecast(f, 'k', 't', 'v', period := 4, coverage := 'high')",
+            "coverage must be a number",
+        ),
         ("tide_split(f, 'k', 't', 'v', period := '12')", "period must be a number, got VARCHAR"),
         ("tide_split_multi(f, 'k', 't', 'v', periods := ['a'])", "periods must be a list of"),
         (
@@ -388,14 +393,16 @@ def test_arguments_are_checked_even_on_an_empty_table(con):
 
 def test_python_twins_refuse_what_sql_refuses():
     frame = pd.DataFrame({"k": "a", "t": np.arange(40), "v": 5.0 + np.sin(np.arange(40))})
-    with pytest.raises(tidesplit.ParamError, match="horizon must be a whole number"):
-        tidesplit.forecast(frame, "k", "t", "v", period=4, horizon=2.5)
+    with pytest.raises(tidesplit.ParamError, match="steps_ahead must be a whole number"):
+        tidesplit.forecast(frame, "k", "t", "v", period=4, steps_ahead=2.5)
     with pytest.raises(tidesplit.ParamError, match=r"unknown argument.*fill_gaps"):
         tidesplit.profile(frame, "k", "t", "v", period=4, fill_gaps=True)
     with pytest.raises(tidesplit.ParamError, match="robust must be true or false"):
         tidesplit.split_table(frame, "k", "t", "v", period=4, robust="yes")
     with pytest.raises(tidesplit.ParamError, match='input column "status" has the name'):
         tidesplit.outliers(frame.rename(columns={"k": "status"}), "status", "t", "v", period=4)
+    with pytest.raises(tidesplit.ParamError, match="fill_gaps needs times"):
+        tidesplit.split(frame["v"], periods=[4, 8], fill_gaps=True)
     with pytest.raises(KeyError, match="the table has k, t, v"):
         tidesplit.split_table(frame, "shop", "t", "v", period=4)
 
@@ -462,3 +469,28 @@ def test_split_list_over_many_groups_in_one_call(fleet_in_one_call):
             np.testing.assert_allclose(total[seen] + remainder[seen], values[seen], rtol=1e-9)
         else:
             assert all(v is None for v in parts["trend"]), item
+
+
+@pytest.mark.parametrize(
+    ("args", "words"),
+    [
+        ("period := 4, inner_loops := 1e9", "inner_loops must be at most 100, got 1e+09"),
+        ("period := 4, robust := true, outer_loops := 1000", "outer_loops must be at most 100"),
+        ("period := 4, season_jump := 1e300", "season_jump must be at most 10,000,000"),
+        ("period := 1e300", "period must be at most 10,000,000"),
+    ],
+)
+def test_arguments_beyond_their_bounds_are_refused_before_any_work(con, args, words):
+    con.execute("CREATE TABLE f AS SELECT 'a' k, i t, 5.0 + sin(i) v FROM range(40) r(i)")
+    for keep in ("", ", on_error := 'keep'"):
+        with pytest.raises(duckdb.Error, match=re.escape(words)):
+            con.sql(f"SELECT * FROM tide_split(f, 'k', 't', 'v', {args}{keep})").fetchall()
+    with pytest.raises(duckdb.Error, match="steps_ahead must be at most 100,000"):
+        con.sql(
+            "SELECT * FROM tide_forecast(f, 'k', 't', 'v', period := 4, steps_ahead := 1e9)"
+        ).fetchall()
+    with pytest.raises(duckdb.Error, match="steps_ahead must be a whole number, got nan"):
+        con.sql(
+            "SELECT * FROM tide_forecast(f, 'k', 't', 'v', period := 4, "
+            "steps_ahead := 'NaN'::DOUBLE)"
+        ).fetchall()

@@ -221,3 +221,25 @@ def test_split_estimates_a_missing_period():
     assert tidesplit.split(cycle(96, 12)).period == 12
     with pytest.raises(tidesplit.SplitError, match="no seasonal cycle found"):
         tidesplit.split(np.random.default_rng(0).normal(size=96))
+
+
+@pytest.mark.parametrize(
+    ("column", "words"),
+    [
+        ("CAST(i AS VARCHAR)", "the time column holds text"),
+        ("CAST(i AS DOUBLE)", "the time column holds fractional numbers"),
+        ("make_time(i % 24, 0, 0)", "the time column holds times of day without a date"),
+        ("to_hours(i)", "the time column holds intervals"),
+        ("i % 2 = 0", "the time column holds true/false"),
+    ],
+)
+def test_a_time_column_of_another_type_is_refused_by_name(con, column, words):
+    con.execute(
+        f"CREATE TABLE s AS SELECT i % 3 AS k, {column} AS t, i * 1.0 AS v FROM range(60) r(i)"
+    )
+    for fill in ("false", "true"):
+        with pytest.raises(duckdb.Error, match=words) as caught:
+            con.sql(
+                f"SELECT * FROM tide_split(s, 'k', 't', 'v', period := 4, fill_gaps := {fill})"
+            ).fetchall()
+        assert "__tide" not in str(caught.value)  # no internal name in the message

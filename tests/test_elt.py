@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import shlex
 from pathlib import Path
 
 import duckdb
@@ -98,10 +99,10 @@ def test_split_gives_the_numbers_of_sql_batch_by_batch(sales, tmp_path, batch_ro
     ("command", "named", "by"),
     [
         ("profile", {"period": 12}, ["store", "sku"]),
-        ("outliers", {"period": 12, "method": "mad", "all_rows": True},
+        ("outliers", {"period": 12, "rule": "mad", "all_rows": True},
          ["store", "sku", "month"]),
-        ("forecast", {"period": 12, "horizon": 3, "robust": False, "method": "drift"},
-         ["store", "sku", "step"]),
+        ("forecast", {"period": 12, "steps_ahead": 3, "robust": False, "trend_model": "drift"},
+         ["store", "sku", "steps_ahead"]),
     ],
 )  # fmt: skip
 def test_answers_give_the_numbers_of_sql_into_duckdb(sales, tmp_path, command, named, by):
@@ -182,7 +183,7 @@ def test_exit_codes_for_arguments_and_places(sales, tmp_path, capsys):
         cli.main([*base, "--period", "twelve"])
     assert raised.value.code == elt.EXIT_BAD_ARGUMENTS
     with pytest.raises(SystemExit) as raised:
-        cli.main([*base, "--horizon", "3"])  # forecast's, not split's
+        cli.main([*base, "--steps-ahead", "3"])  # forecast's, not split's
     assert raised.value.code == elt.EXIT_BAD_ARGUMENTS
     missing = str(tmp_path / "nothing*.parquet")
     assert cli.main(["split", "--from", missing, "--to", out, *COLUMNS]) == elt.EXIT_UNREACHABLE
@@ -280,6 +281,9 @@ def test_every_command_has_help_with_an_example(capsys):
             cli.main([command, "--help"])
         assert done.value.code == 0
         assert f"example:\n  tidesplit {command} " in capsys.readouterr().out
+    for example in cli.EXAMPLES.values():  # every example parses as it stands
+        words = shlex.split(example.replace("\\\n", " "))
+        assert cli.build_parser().parse_args(words[1:]).job_command == words[1]
     readme = (Path(__file__).parent.parent / "README.md").read_text()
     for command in elt.COMMANDS:  # each documented, beside the exit codes
         assert f"`tidesplit {command}`" in readme

@@ -86,7 +86,7 @@ def test_keep_goes_on_and_accounts_for_every_row(con, case):
     for name in ("trend", "seasonal", "remainder", "adjusted", "weight"):
         assert flagged[name].isna().all()
     fine = out[out["shop"] != "bad"]
-    assert (fine["status"] == "ok").all() and fine["trend"].notna().all()
+    assert fine["status"].str.startswith("ok").all() and fine["trend"].notna().all()
     # the input values come back untouched, bad series included
     np.testing.assert_array_equal(np.sort(flagged["v"].to_numpy()), np.sort(rows["v"].to_numpy()))
 

@@ -94,6 +94,17 @@ def test_readme_argument_table_is_the_registry():
     assert arguments.markdown_table() in README.read_text()
 
 
+@pytest.mark.parametrize(
+    "columns",
+    ["SPLIT_COLUMNS", "PROFILE_COLUMNS", "OUTLIERS_COLUMNS", "FORECAST_COLUMNS", "AUDIT_COLUMNS"],
+)
+def test_readme_column_tables_are_the_answers(columns):
+    # README's column tables are written from answers.py (answers.markdown_table)
+    from tidesplit import answers
+
+    assert answers.markdown_table(getattr(answers, columns)) in README.read_text()
+
+
 def test_shipped_sql_is_written_from_the_registry():
     # sql/tidesplit.sql is plain SQL, written by python -m tidesplit.sql_build
     from tidesplit import sql_build

@@ -8,7 +8,7 @@ from conftest import seasonal_series
 
 import tidesplit
 from tidesplit import SplitParams
-from tidesplit.decompose import _run_kernel
+from tidesplit.batch_split import _run_kernel
 from tidesplit.kernel import linear
 
 

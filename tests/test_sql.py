@@ -234,3 +234,29 @@ def test_arguments_must_be_constants(con):
     )
     with pytest.raises(duckdb.Error, match="period must be the same for every series"):
         con.sql("SELECT tide_split_list(list(v ORDER BY t), 4 + k) FROM t GROUP BY k").fetchall()
+
+
+def test_table_names_schema_qualified_dotted_and_quoted(con):
+    con.execute("CREATE SCHEMA analytics")
+    con.execute(
+        "CREATE TABLE analytics.sales AS SELECT i % 3 AS k, i // 3 AS t, sin(i) AS v "
+        "FROM range(60) r(i)"
+    )
+    con.execute('CREATE TABLE "odd.name" AS SELECT * FROM analytics.sales')
+    con.execute('CREATE TABLE "say ""when""" AS SELECT * FROM analytics.sales')
+    for name in ("analytics.sales", "'analytics.sales'", "'\"odd.name\"'", '\'"say ""when"""\''):
+        rows = con.sql(
+            f"SELECT count(*) FROM tide_split({name}, 'k', 't', 'v', period := 4)"
+        ).fetchall()
+        assert rows == [(60,)], name
+
+
+def test_a_cursor_is_registered_in_one_cheap_call(con):
+    con.execute("CREATE TABLE s AS SELECT i % 3 AS k, i // 3 AS t, sin(i) AS v FROM range(60) r(i)")
+    cursor = con.cursor()
+    with pytest.raises(duckdb.Error, match="tide_split does not exist"):
+        cursor.sql("SELECT * FROM tide_split(s, 'k', 't', 'v', period := 4)").fetchall()
+    tidesplit.register(cursor)  # the UDFs are shared already; only the macros are made
+    assert cursor.sql(
+        "SELECT count(*) FROM tide_split(s, 'k', 't', 'v', period := 4)"
+    ).fetchall() == [(60,)]

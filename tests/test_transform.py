@@ -4,6 +4,7 @@ published value, and the transform inside a split."""
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from conftest import seasonal_series
 from datasets import AIRLINE_PASSENGERS
@@ -36,13 +37,13 @@ def test_airline_series_is_typed_in_correctly():
     assert (AIRLINE_PASSENGERS[0], AIRLINE_PASSENGERS[-1]) == (112, 432)
 
 
-def _scipy_guerrero(y, period):
+def _scipy_guerrero(y, period, bounds=(0, 1)):
     means = np.empty(y.size // period + 1)
     sds = np.empty(y.size // period + 1)
     count = block_moments(y, period, means, sds)
     found = minimize_scalar(
         lambda lam: objective(lam, means, sds, count),
-        bounds=(-1, 2),
+        bounds=bounds,
         method="bounded",
         options={"xatol": 1e-9},
     )
@@ -52,10 +53,57 @@ def _scipy_guerrero(y, period):
 def test_guerrero_airline_lambda():
     # Guerrero's (1993) lambda for the airline series is about -0.29 (a value widely printed
     # in forecasting course notes for this series; our figure is also checked against
-    # scipy's bounded minimiser of the same objective below)
-    lam = transform.guerrero_lambda(AIRLINE_PASSENGERS, 12)
+    # scipy's bounded minimiser of the same objective below), searched in [-1, 2]
+    lam = transform.guerrero_lambda(AIRLINE_PASSENGERS, 12, bounds=(-1, 2))
     assert lam == pytest.approx(-0.29, abs=0.01)
-    assert lam == pytest.approx(_scipy_guerrero(AIRLINE_PASSENGERS, 12), abs=1e-5)
+    assert lam == pytest.approx(_scipy_guerrero(AIRLINE_PASSENGERS, 12, (-1, 2)), abs=1e-5)
+    # in the default [0, 1], from the log to no transform, the criterion wants to go past
+    # the log: the choice is the bound itself, and the split says so in its status
+    assert transform.guerrero_lambda(AIRLINE_PASSENGERS, 12) == 0.0
+    table = tidesplit.split_table(
+        pd.DataFrame({"k": "a", "t": range(144), "v": AIRLINE_PASSENGERS}),
+        "k",
+        "t",
+        "v",
+        period=12,
+        transform="boxcox",
+    )
+    assert set(table["status"]) == {"ok; Box-Cox lambda at the bound 0 of [0, 1]"}
+    wide = tidesplit.split_table(
+        pd.DataFrame({"k": "a", "t": range(144), "v": AIRLINE_PASSENGERS}),
+        "k",
+        "t",
+        "v",
+        period=12,
+        transform="boxcox",
+        boxcox_bounds=[-1, 2],
+    )
+    assert set(wide["status"]) == {"ok"}
+
+
+def test_lambda_counts_the_newest_cycles():
+    # whole cycles are counted back from the newest point: appending a partial cycle moves
+    # the blocks to end there, so the newest data always counts and the oldest partial
+    # cycle is the one left out
+    y = AIRLINE_PASSENGERS[:138].copy()  # 11.5 years
+    means = np.empty(20)
+    sds = np.empty(20)
+    kept = block_moments(y, 12, means, sds)
+    assert kept == 11
+    assert means[kept - 1] == pytest.approx(y[-12:].mean())
+    assert means[0] == pytest.approx(y[6:18].mean())
+
+
+def test_bounds_are_checked_and_used_only_with_boxcox():
+    y = AIRLINE_PASSENGERS
+    with pytest.raises(ValueError, match="lower < upper"):
+        tidesplit.split(y, period=12, transform="boxcox", boxcox_bounds=[1, 0])
+    with pytest.raises(ValueError, match="goes with transform 'boxcox'"):
+        tidesplit.split(y, period=12, transform="log", boxcox_bounds=[0, 1])
+    with pytest.raises(ValueError, match="goes with transform 'boxcox'"):
+        tidesplit.split(y, period=12, transform="boxcox", boxcox_lambda=0.5, boxcox_bounds=[0, 1])
+    inside = tidesplit.split(y, period=12, transform="boxcox", boxcox_bounds=[-0.5, 0.5])
+    assert inside.boxcox_lambda == pytest.approx(-0.29, abs=0.01)
 
 
 @pytest.mark.parametrize("seed", range(6))
@@ -75,7 +123,7 @@ def test_guerrero_matches_scipy_minimiser(seed):
 def test_guerrero_skips_missing_values_and_needs_spread():
     y = AIRLINE_PASSENGERS.copy()
     y[[5, 40, 41]] = np.nan
-    assert -1 <= transform.guerrero_lambda(y, 12) <= 2
+    assert 0 <= transform.guerrero_lambda(y, 12) <= 1
     assert np.isnan(transform.guerrero_lambda(np.full(48, 3.0), 12))
 
 

@@ -25,6 +25,7 @@ __all__ = [
     "Split",
     "SplitError",
     "SplitParams",
+    "audit",
     "connect",
     "forecast",
     "outliers",
@@ -45,8 +46,9 @@ _HOMES = {
     "profile": "api",
     "outliers": "api",
     "forecast": "api",
-    "split_batch": "decompose",
-    "BatchResult": "decompose",
+    "audit": "api",
+    "split_batch": "batch_split",
+    "BatchResult": "batch_split",
     "SplitParams": "params",
 }
 

@@ -1,43 +1,204 @@
-"""The columns each answer puts beside the input's key, time and value columns.
+"""The columns each answer puts beside the input's key, time and value columns, defined once.
 
-The SQL macros and the Python functions both refuse an input column named like one of these
+README's column tables are written from these (a test keeps them equal), the SQL UDFs'
+per-series results take their types from them, and every front gives these columns in this
+order (tested across fronts). The fronts also refuse an input column named like one of them
 (DuckDB would otherwise rename one of the two silently, and pandas overwrite one).
 """
 
 from __future__ import annotations
 
-from .summaries import PROFILE_COLUMNS
+from typing import NamedTuple
 
-SPLIT = (
-    "trend",
-    "seasonal",
-    "remainder",
-    "adjusted",
-    "weight",
-    "inserted",
-    "period",
-    "status",
+
+class Column(NamedTuple):
+    """One column of an answer: its name, its SQL type and what it means."""
+
+    name: str
+    sql_type: str
+    meaning: str
+
+
+def _on_scale(what: str) -> str:
+    return f"{what}, on the transformed scale"
+
+
+# Per series, in every answer that has rows per time: what was used, and whether it split.
+_SERIES = (
+    Column(
+        "period",
+        "BIGINT",
+        "the period used for the series (given, or implied by its "
+        "time step); NULL for a series left unsplit",
+    ),
+    Column(
+        "status",
+        "VARCHAR",
+        "`ok` (or `ok; ...` with a note), or why the series was left "
+        "unsplit (with `on_error := 'keep'`)",
+    ),
 )
-# several periods: the periods used, and one part per period (SQL: a list of structs;
-# Python: one seasonal_period_<period> column each, which are refused by prefix)
-SPLIT_MULTI = (*(c for c in SPLIT if c != "period"), "periods", "seasonal_by_period")
-PROFILE = (
-    "points",
-    "missing",
-    "step",
-    *PROFILE_COLUMNS,
-    "strength_by_period",
-    "peak_position",
-    "peak_label",
-    "trough_position",
-    "trough_label",
-    "period",
-    "periods",
-    "boxcox_lambda",
-    "status",
+SPLIT_COLUMNS = (
+    Column("trend", "DOUBLE", _on_scale("the trend")),
+    Column("seasonal", "DOUBLE", _on_scale("the seasonal part (with several periods, their sum)")),
+    Column(
+        "remainder", "DOUBLE", "transformed value - trend - seasonal; NULL where the value is NULL"
+    ),
+    Column(
+        "adjusted",
+        "DOUBLE",
+        "the seasonally adjusted series (value without its seasonal part), on the original scale",
+    ),
+    Column(
+        "weight",
+        "DOUBLE",
+        "the robustness weight of the point (1 without `robust`); NULL where the value is NULL",
+    ),
+    Column(
+        "inserted",
+        "BOOLEAN",
+        "true for a row added into a gap by `fill_gaps := true` (its value is NULL)",
+    ),
+    *_SERIES,
 )
-OUTLIERS = ("expected", "remainder", "score", "direction", "weight", "is_outlier", "status")
-FORECAST = ("step", "forecast", "lower", "upper", "status")
+SPLIT_MULTI_COLUMNS = (
+    *(c for c in SPLIT_COLUMNS if c.name not in ("period", "status")),
+    Column("periods", "BIGINT[]", "the periods used for the series, ascending"),
+    Column(
+        "seasonal_by_period",
+        "STRUCT(period BIGINT, seasonal DOUBLE)[]",
+        "one "
+        "`{period, seasonal}` per period, ascending; in Python one `seasonal_period_<p>` "
+        "column each",
+    ),
+    _SERIES[1],
+)
+PROFILE_COLUMNS = (
+    Column("points", "BIGINT", "observed values"),
+    Column("missing", "BIGINT", "missing values plus times missing inside the series"),
+    Column(
+        "time_step",
+        "VARCHAR",
+        "the time step found (`1 month`, `1 hour`, `15 minutes`, `3` for integers)",
+    ),
+    Column(
+        "strength_of_trend",
+        "DOUBLE",
+        "F = max(0, 1 - Var(R) / Var(T + R)) (Wang, Smith & Hyndman 2006)",
+    ),
+    Column(
+        "strength_of_season",
+        "DOUBLE",
+        "the same for the (summed) seasonal part S: max(0, 1 - Var(R) / Var(S + R))",
+    ),
+    Column(
+        "seasonal_amplitude",
+        "DOUBLE",
+        "range of the mean seasonal part by cycle position (transformed scale)",
+    ),
+    Column("remainder_sd", "DOUBLE", "standard deviation of the remainder"),
+    Column(
+        "share_down_weighted",
+        "DOUBLE",
+        "share of observed points with robustness weight "
+        "below 0.5 (our threshold; 0 without `robust`)",
+    ),
+    Column("remainder_acf1", "DOUBLE", "lag-1 autocorrelation of the remainder"),
+    Column(
+        "strength_by_period",
+        "MAP(BIGINT, DOUBLE)",
+        "with `periods`: each period's seasonal strength",
+    ),
+    Column(
+        "peak_position",
+        "BIGINT",
+        "cycle position (from 0) of the highest mean seasonal value, shortest period",
+    ),
+    Column(
+        "peak_label",
+        "VARCHAR",
+        "the same as a month, weekday, `Q1`..`Q4`, `week 12` or `13:00` for calendar data",
+    ),
+    Column("trough_position", "BIGINT", "cycle position of the lowest mean seasonal value"),
+    Column("trough_label", "VARCHAR", "the same as a name"),
+    _SERIES[0],
+    Column("periods", "BIGINT[]", "the periods used"),
+    Column("boxcox_lambda", "DOUBLE", "the Box-Cox lambda used (NULL without a transform)"),
+    _SERIES[1],
+)
+OUTLIERS_COLUMNS = (
+    Column("expected", "DOUBLE", "trend + seasonal, on the original scale"),
+    Column("remainder", "DOUBLE", _on_scale("the remainder")),
+    Column(
+        "score", "DOUBLE", "(remainder - median) / scale, the scale being the IQR or 1.4826 MAD"
+    ),
+    Column("direction", "VARCHAR", "`high` or `low` for a flagged point"),
+    Column("weight", "DOUBLE", "the robustness weight of the point"),
+    Column("is_outlier", "BOOLEAN", "whether the point lies outside the fences"),
+    _SERIES[1],
+)
+FORECAST_COLUMNS = (
+    Column(
+        "steps_ahead",
+        "BIGINT",
+        "1 to the `steps_ahead` asked for: steps after the series' last time",
+    ),
+    Column(
+        "forecast",
+        "DOUBLE",
+        "the point forecast, on the original scale (the median when transformed)",
+    ),
+    Column(
+        "low",
+        "DOUBLE",
+        "the low end of the prediction interval that holds `coverage` of future values",
+    ),
+    Column("high", "DOUBLE", "its high end"),
+    _SERIES[1],
+)
+AUDIT_COLUMNS = (
+    Column("reference", "VARCHAR", "the statsmodels function the key was split again with"),
+    Column("points_compared", "BIGINT", "points of the series' grid compared"),
+    Column("trend_gap", "DOUBLE", "the largest absolute difference of the trend"),
+    Column("seasonal_gap", "DOUBLE", "the same for the seasonal part"),
+    Column("remainder_gap", "DOUBLE", "the same for the remainder"),
+    Column("status", "VARCHAR", "`ok`, or why the key was not compared (statsmodels cannot "
+           "follow, or the key was not split)"),
+)  # fmt: skip
+
+
+def names(columns: tuple[Column, ...]) -> tuple[str, ...]:
+    return tuple(c.name for c in columns)
+
+
+SPLIT = names(SPLIT_COLUMNS)
+# the per-point components of a split, on every front
+COMPONENTS = SPLIT[:5]
+SPLIT_MULTI = names(SPLIT_MULTI_COLUMNS)
+PROFILE = names(PROFILE_COLUMNS)
+OUTLIERS = names(OUTLIERS_COLUMNS)
+FORECAST = names(FORECAST_COLUMNS)
+AUDIT = names(AUDIT_COLUMNS)
+
+
+def markdown_table(columns: tuple[Column, ...]) -> str:
+    """An answer's columns as README shows them.
+
+    >>> markdown_table(AUDIT_COLUMNS).splitlines()[2]
+    '| `reference` | the statsmodels function the key was split again with |'
+    """
+    lines = ["| column | meaning |", "| --- | --- |"]
+    lines += [f"| `{c.name}` | {c.meaning} |" for c in columns]
+    return "\n".join(lines)
+
+
+def struct_type(columns: tuple[Column, ...]) -> str:
+    """The SQL STRUCT of one row of these columns (a UDF's result per series).
+
+    >>> struct_type(AUDIT_COLUMNS)[:40]
+    'STRUCT(reference VARCHAR, points_compare'
+    """
+    return "STRUCT(" + ", ".join(f"{c.name} {c.sql_type}" for c in columns) + ")"
 
 
 def name_clashes(keys: list[str], time: str, value: str, answer: tuple[str, ...]) -> list[str]:

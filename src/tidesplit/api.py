@@ -10,15 +10,14 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from . import answers, arguments, summaries
-from .arguments import FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
-from .decompose import segment_counts
+from . import answers, arguments, forecast_ahead, series_profile, unusual
+from .answers import COMPONENTS
+from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
+from .batch_split import segment_counts
 from .errors import ParamError
+from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
-from .rows import RowsResult, split_rows
 from .status import OK, split_mask
-
-COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
 
 @dataclass(frozen=True)
@@ -78,6 +77,10 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
     settings = arguments.accept(function, given if period is None else {"period": period, **given})
     if settings["on_error"] != "raise":
         raise ParamError("split() splits one series and raises; split_table() can keep going")
+    if "fill_gaps" in given:
+        raise ParamError(
+            "split() takes consecutive points without times; fill_gaps needs times (split_table)"
+        )
     settings = SplitParams.from_settings(settings)
     # split_rows, so that a period left out is estimated from the data (integer positions)
     result = split_rows(
@@ -338,21 +341,22 @@ def profile(
     settings = _settings(PROFILE, period, given)
     table = _Table(data, key, time, value, answers.PROFILE)
     result = table.split(settings, fill_gaps=True)
-    found = summaries.profile(result, table.kind)
+    found = series_profile.profile(result, table.kind)
     out = table.key_frame(np.arange(table.starts.size))
     out["points"] = found.points
     out["missing"] = found.missing
-    out["step"] = found.step
-    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+    out["time_step"] = found.step
+    for k, name in enumerate(series_profile.PROFILE_COLUMNS):
         out[name] = found.values[:, k]
-    if found.strength_by_period is not None:
-        out["strength_by_period"] = found.strength_by_period
+    out["strength_by_period"] = found.strength_by_period or [None] * len(out)
     out["peak_position"] = np.where(found.peak >= 0, found.peak, np.nan)
     out["peak_label"] = found.peak_label
     out["trough_position"] = np.where(found.trough >= 0, found.trough, np.nan)
     out["trough_label"] = found.trough_label
     used = result.batch.periods
     out["period"] = np.where(used > 0, used, np.nan)
+    several = result.batch.series_periods or [(int(u),) if u > 0 else () for u in used]
+    out["periods"] = [list(p) if p else None for p in several]
     out["boxcox_lambda"] = result.batch.lambdas
     out["status"] = result.status
     return out
@@ -366,8 +370,14 @@ def outliers(
     period: int | None = None,
     **given: Any,
 ) -> pd.DataFrame:
-    """Rows whose remainder lies outside fences, with a score, the direction and the
+    """Rows whose remainder is too far out to be noise, with a score, the direction and the
     expected value (trend + seasonal, on the original scale); all rows with ``all_rows``.
+
+    ``rule='stepwise'`` (default) tests the most extreme remainders one after another
+    (Rosner's 1983 generalized extreme Studentized deviate procedure) at ``significance``
+    (default 0.05, the chance of any flag on a series of pure noise); ``rule='mad'``
+    flags robust z-scores beyond ``threshold`` (default 3.5). See
+    ``unusual.unusual_points``.
 
     The split is robust by default, so that the points being judged do not pull the fit
     towards themselves.
@@ -385,11 +395,17 @@ def outliers(
     settings = _settings(OUTLIERS, period, given)
     table = _Table(data, key, time, value, answers.OUTLIERS)
     result = table.split(settings, fill_gaps=True)
-    found = summaries.unusual_points(result, settings["method"], settings["threshold"])
+    found = unusual.unusual_points(
+        result,
+        settings["rule"],
+        settings["threshold"],
+        settings["significance"],
+        SplitParams.from_settings(settings),
+    )
     rows = result.source >= 0
     out = table.frame[[*table.keys, table.time, table.value]].copy()
     out["expected"] = found.expected[rows]
-    out["remainder"] = result.remainder[rows]
+    out["remainder"] = found.remainder[rows]
     out["score"] = found.score[rows]
     out["direction"] = np.array(found.direction, dtype=object)[rows]
     out["weight"] = result.weight[rows]
@@ -409,45 +425,116 @@ def forecast(
     period: int | None = None,
     **given: Any,
 ) -> pd.DataFrame:
-    """Future rows per series up to ``horizon`` steps, with prediction intervals at ``level``.
+    """Future rows per series, ``steps_ahead`` of them, with prediction intervals that are to
+    hold ``coverage`` of future values.
 
     The decomposition forecast: the seasonal part carried forward from the last cycle, the
-    seasonally adjusted series forecast by a damped trend (``method='damped'``) or drift
-    (``'drift'``), added back and inverse-transformed.
+    seasonally adjusted series forecast by a damped trend (``trend_model='damped'``), a random
+    walk with drift (``'drift'``) or without (``'flat'``), or per series whichever did best
+    on its own past (``'select'``), added back and inverse-transformed; intervals
+    calibrated on the series' own past (see ``forecast_ahead.forecast``).
 
     Examples
     --------
     >>> t = np.arange(48)
     >>> frame = pd.DataFrame({"k": "a", "t": t, "v": 10 + 0.1 * t + np.sin(2 * np.pi * t / 12)})
-    >>> forecast(frame, "k", "t", "v", period=12, horizon=3, method="drift")["t"].tolist()
+    >>> forecast(frame, "k", "t", "v", period=12, steps_ahead=3, trend_model="drift")["t"].tolist()
     [48, 49, 50]
     """
     settings = _settings(FORECAST, period, given)
-    horizon, level, method = summaries.forecast_arguments(
-        settings["horizon"], settings["level"], settings["method"]
+    horizon, level, method = forecast_ahead.forecast_arguments(
+        settings["steps_ahead"], settings["coverage"], settings["trend_model"]
     )
     on_error = settings["on_error"]
     table = _Table(data, key, time, value, answers.FORECAST)
     result = table.split(settings, fill_gaps=True)
-    ahead = summaries.forecast(result, table.kind, table.zone, horizon, level, method)
-    ok = summaries.settle_forecast(result, ahead, on_error, table.label)
-    # horizon rows per series; one row beside the status of a series left unsplit
+    ahead = forecast_ahead.forecast(
+        result,
+        table.kind,
+        table.zone,
+        horizon,
+        level,
+        method,
+        params=SplitParams.from_settings(settings),
+    )
+    ok = forecast_ahead.settle_forecast(result, ahead, on_error, table.label)
+    # steps_ahead rows per series; one row beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     present = np.repeat(ok, counts)
     out = table.key_frame(np.repeat(np.arange(ok.size), counts))
     times = _codes_to_times(ahead.codes, table.kind, table.zone).to_numpy()
     out[table.time] = _with_gaps(pd.Series(times, index=np.flatnonzero(present)), present.size)
     for name, values in (
-        ("step", ahead.step),
+        ("steps_ahead", ahead.step),
         ("forecast", ahead.point),
-        ("lower", ahead.lower),
-        ("upper", ahead.upper),
+        ("low", ahead.lower),
+        ("high", ahead.upper),
     ):
         column = np.full(present.size, np.nan)
         column[present] = values
         out[name] = column
-    out["step"] = out["step"].astype("Int64")
+    out["steps_ahead"] = out["steps_ahead"].astype("Int64")
     out["status"] = np.repeat(np.array(result.status, dtype=object), counts)
+    return out
+
+
+def audit(
+    data: Any,
+    key: str | Sequence[str],
+    time: str,
+    value: str,
+    period: int | None = None,
+    **given: Any,
+) -> pd.DataFrame:
+    """Split a sample of the series again with statsmodels' STL (or MSTL with several
+    periods) under the same settings, and give the largest difference of each component.
+
+    A check an ELT job or an auditor can run on a fleet's numbers against the reference
+    implementation. ``sample`` keys (default 20) are chosen by a hash of the key. Where
+    statsmodels cannot follow the settings (missing values on the series' grid, a fixed
+    seasonal pattern, settings its functions do not take), the status says so and no
+    difference is given.
+
+    Examples
+    --------
+    >>> t = np.arange(96)
+    >>> frame = pd.DataFrame({"k": np.repeat(["a", "b"], 48), "t": np.tile(t[:48], 2),
+    ...                       "v": 10 + np.sin(2 * np.pi * t / 12) + 0.01 * t})
+    >>> found = audit(frame, "k", "t", "v", period=12)
+    >>> found["reference"].tolist(), bool(found["trend_gap"].max() < 1e-8)
+    (['statsmodels STL', 'statsmodels STL'], True)
+    """
+    from .crosscheck import audit as _audit
+    from .crosscheck import sample_by_hash
+
+    settings = _settings(AUDIT, period, given)
+    table = _Table(data, key, time, value, answers.AUDIT)
+    chosen = sample_by_hash([table.label(i) for i in range(table.starts.size)], settings["sample"])
+    rows = np.concatenate(
+        [np.arange(table.offsets[i], table.offsets[i + 1]) for i in chosen]
+        or [np.zeros(0, dtype=np.int64)]
+    )
+    lengths = np.diff(table.offsets)[chosen]
+    params = SplitParams.from_settings(settings)
+    result = split_rows(
+        table.values[rows],
+        np.concatenate(([0], np.cumsum(lengths))).astype(np.int64),
+        params,
+        codes=table.frame["__code"].to_numpy()[rows],
+        kind=table.kind,
+        time_zone=table.zone,
+        label=lambda i: table.label(int(chosen[i])),
+        status=[table.status[i] for i in chosen],
+        on_error=settings["on_error"],
+        fill_gaps=True,
+    )
+    found = _audit(result, params)
+    out = table.key_frame(chosen)
+    out["reference"] = found.reference
+    out["points_compared"] = found.compared
+    for k, name in enumerate(("trend_gap", "seasonal_gap", "remainder_gap")):
+        out[name] = found.gaps[:, k]
+    out["status"] = found.status
     return out
 
 
@@ -455,3 +542,4 @@ _signed(split_table, SPLIT, SPLIT_MULTI)
 _signed(profile, PROFILE)
 _signed(outliers, OUTLIERS)
 _signed(forecast, FORECAST)
+_signed(audit, AUDIT)

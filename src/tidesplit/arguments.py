@@ -3,7 +3,7 @@
 From this registry come the SQL macros' signatures and type checks (``sql_build``), the
 Python functions' signatures and their checks (``accept``), and the argument table in
 README (``markdown_table``; a test keeps the two equal). Checks of a value's range that
-depend on other settings (a span odd and at least 3, a horizon of at least 1) live beside
+depend on other settings (a span odd and at least 3, at least one step ahead) live beside
 the rule that uses them (``params``, ``answers``) and raise the same ``ParamError``.
 """
 
@@ -25,8 +25,9 @@ SPLIT_LIST = "split_list"
 PROFILE = "profile"
 OUTLIERS = "outliers"
 FORECAST = "forecast"
-FUNCTIONS = (SPLIT, SPLIT_MULTI, SPLIT_LIST, PROFILE, OUTLIERS, FORECAST)
-_ANSWERS = (PROFILE, OUTLIERS, FORECAST)
+AUDIT = "audit"
+FUNCTIONS = (SPLIT, SPLIT_MULTI, SPLIT_LIST, PROFILE, OUTLIERS, FORECAST, AUDIT)
+_ANSWERS = (PROFILE, OUTLIERS, FORECAST, AUDIT)
 _ONE_PERIOD = (SPLIT, SPLIT_LIST, *_ANSWERS)
 _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
@@ -37,8 +38,9 @@ NUMBER = "number"
 FLAG = "true or false"
 TEXT = "text"
 WHOLE_LIST = "list of whole numbers"
+NUMBER_LIST = "list of numbers"
 SQL_TYPES = {WHOLE: "DOUBLE", NUMBER: "DOUBLE", FLAG: "BOOLEAN", TEXT: "VARCHAR",
-             WHOLE_LIST: "DOUBLE[]"}  # fmt: skip
+             WHOLE_LIST: "DOUBLE[]", NUMBER_LIST: "DOUBLE[]"}  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -56,6 +58,9 @@ class Argument:
     default_for: tuple[tuple[str, Any], ...] = ()
     # True for the settings of the decomposition itself (they make up ``SplitParams``)
     decomposition: bool = True
+    # the largest value (each entry, for a list) taken: a bound on the work and memory an
+    # argument can ask for, checked before any series runs
+    most: float | None = None
 
     def default_in(self, function: str) -> Any:
         return dict(self.default_for).get(function, self.default)
@@ -68,6 +73,7 @@ REGISTRY: tuple[Argument, ...] = (
         "points per seasonal cycle (12 for monthly data with a yearly cycle)",
         _ONE_PERIOD,
         default_text="implied by the time step",
+        most=10_000_000,
     ),
     Argument(
         "periods",
@@ -75,6 +81,7 @@ REGISTRY: tuple[Argument, ...] = (
         "several seasonal periods (MSTL); `[]` takes those the time step implies",
         _SEVERAL_PERIODS,
         default_text="implied by the step (tide_split_multi); one period (answers)",
+        most=10_000_000,
     ),
     Argument(
         "season_span",
@@ -84,6 +91,7 @@ REGISTRY: tuple[Argument, ...] = (
         "weighted mean of each cycle position)",
         _EVERY_SPLIT,
         default_text="13 (common practice); 7 + 4 i for the i-th of several periods",
+        most=10_000_001,
     ),
     Argument(
         "season_spans",
@@ -91,6 +99,7 @@ REGISTRY: tuple[Argument, ...] = (
         "one season span per period",
         _SEVERAL_PERIODS,
         default_text="7 + 4 i (Bandara et al. 2021)",
+        most=10_000_001,
     ),
     Argument(
         "trend_span",
@@ -98,6 +107,7 @@ REGISTRY: tuple[Argument, ...] = (
         "loess span of the trend smoothing, odd >= 3",
         _EVERY_SPLIT,
         default_text="smallest odd >= 1.5 period / (1 - 1.5 / season_span)",
+        most=10_000_001,
     ),
     Argument(
         "lowpass_span",
@@ -105,6 +115,7 @@ REGISTRY: tuple[Argument, ...] = (
         "loess span of the low-pass filter, odd >= 3",
         _EVERY_SPLIT,
         default_text="smallest odd >= period",
+        most=10_000_001,
     ),
     Argument(
         "season_degree",
@@ -133,6 +144,7 @@ REGISTRY: tuple[Argument, ...] = (
         "fit the seasonal loess every k-th point and interpolate",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "trend_jump",
@@ -140,6 +152,7 @@ REGISTRY: tuple[Argument, ...] = (
         "the same for the trend",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "lowpass_jump",
@@ -147,6 +160,7 @@ REGISTRY: tuple[Argument, ...] = (
         "the same for the low-pass filter",
         _EVERY_SPLIT,
         default_text="about a tenth of the span",
+        most=10_000_000,
     ),
     Argument(
         "robust",
@@ -161,14 +175,18 @@ REGISTRY: tuple[Argument, ...] = (
         WHOLE,
         "passes of the inner loop",
         _EVERY_SPLIT,
-        default_text="2, or 1 with robust",
+        default_text="2, or 1 with robust; 2 in tide_outliers",
+        default_for=((OUTLIERS, 2),),
+        most=100,
     ),
     Argument(
         "outer_loops",
         WHOLE,
         "robustness passes (only with robust)",
         _EVERY_SPLIT,
-        default_text="0, or 10 with robust",
+        default_text="0, or 10 with robust; 1 in tide_outliers (see there)",
+        default_for=((OUTLIERS, 1),),
+        most=100,
     ),
     Argument(
         "iterations",
@@ -176,6 +194,7 @@ REGISTRY: tuple[Argument, ...] = (
         "rounds over the periods (MSTL)",
         _SEVERAL_PERIODS,
         default_text="2 (Bandara et al. 2021)",
+        most=100,
     ),
     Argument(
         "transform",
@@ -191,6 +210,14 @@ REGISTRY: tuple[Argument, ...] = (
         "the Box-Cox lambda; left out with 'boxcox', chosen per series by Guerrero's (1993) method",
         _EVERY_SPLIT,
         default_text="chosen per series",
+    ),
+    Argument(
+        "boxcox_bounds",
+        NUMBER_LIST,
+        "the interval Guerrero's lambda is chosen in (only with 'boxcox' and no "
+        "boxcox_lambda; see Choosing lambda)",
+        _EVERY_SPLIT,
+        default_text="[0, 1] (ours: from the log to no transform)",
     ),
     Argument(
         "fill_gaps",
@@ -210,21 +237,29 @@ REGISTRY: tuple[Argument, ...] = (
         decomposition=False,
     ),
     Argument(
-        "method",
+        "rule",
         TEXT,
-        "how a remainder is judged unusual: fences beyond the quartiles "
-        "('iqr') or robust z-scores ('mad')",
+        "how a point is judged unusual: our stepwise test, or robust z-scores of the "
+        "remainder; see tide_outliers",
         (OUTLIERS,),
-        default="iqr",
-        choices=("iqr", "mad"),
+        default="stepwise",
+        choices=("stepwise", "mad"),
+        decomposition=False,
+    ),
+    Argument(
+        "significance",
+        NUMBER,
+        "the stepwise test's significance: the chance of any flag on a series of pure noise",
+        (OUTLIERS,),
+        default_text="0.05 (with 'stepwise')",
         decomposition=False,
     ),
     Argument(
         "threshold",
         NUMBER,
-        "the multiplier of the fences or z-scores",
+        "the robust z-score beyond which 'mad' flags",
         (OUTLIERS,),
-        default=3.0,
+        default_text="3.5 (with 'mad')",
         decomposition=False,
     ),
     Argument(
@@ -236,29 +271,42 @@ REGISTRY: tuple[Argument, ...] = (
         decomposition=False,
     ),
     Argument(
-        "horizon",
+        "steps_ahead",
         WHOLE,
         "how many steps ahead to forecast",
         (FORECAST,),
         default=12,
         decomposition=False,
+        most=100_000,
     ),
     Argument(
-        "level",
+        "coverage",
         NUMBER,
-        "the coverage of the prediction intervals",
+        "the share of future values the prediction intervals are to hold",
         (FORECAST,),
         default=0.95,
         decomposition=False,
     ),
     Argument(
-        "method",
+        "trend_model",
         TEXT,
-        "the forecast of the seasonally adjusted series",
+        "the forecast of the seasonally adjusted series: a damped trend, a random walk with "
+        "drift, one without (flat), or per series the one of those that did best on its own "
+        "past",
         (FORECAST,),
         default="damped",
-        choices=("damped", "drift"),
+        choices=("damped", "drift", "flat", "select"),
         decomposition=False,
+    ),
+    Argument(
+        "sample",
+        WHOLE,
+        "how many keys to split again with the reference implementation (chosen by a hash "
+        "of the key)",
+        (AUDIT,),
+        default=20,
+        decomposition=False,
+        most=100_000,
     ),
 )
 
@@ -276,7 +324,7 @@ def of(function: str) -> tuple[Argument, ...]:
     """The arguments a function takes, in the registry's order.
 
     >>> [a.name for a in of("forecast")][-3:]
-    ['horizon', 'level', 'method']
+    ['steps_ahead', 'coverage', 'trend_model']
     """
     return tuple(a for a in REGISTRY if function in a.functions)
 
@@ -299,9 +347,13 @@ def _check_kind(argument: Argument, value: Any) -> Any:
     if kind == WHOLE_LIST:
         if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
             raise ParamError(f"{name} must be a list of whole numbers, got {value!r}")
-        return tuple(whole_number(name, v) for v in value)
+        return tuple(_at_most(argument, whole_number(name, v)) for v in value)
+    if kind == NUMBER_LIST:
+        if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
+            raise ParamError(f"{name} must be a list of numbers, got {value!r}")
+        return tuple(_check_kind(Argument(name, NUMBER, "", ()), v) for v in value)
     if kind == WHOLE:
-        return whole_number(name, value)
+        return _at_most(argument, whole_number(name, value))
     if isinstance(value, bool) or (
         not isinstance(value, (int, float)) and not hasattr(value, "__float__")
     ):
@@ -309,13 +361,19 @@ def _check_kind(argument: Argument, value: Any) -> Any:
     number = float(value)
     if not math.isfinite(number):
         raise ParamError(f"{name} must be finite, got {value!r}")
-    return number
+    return _at_most(argument, number)
+
+
+def _at_most(argument: Argument, value: Any) -> Any:
+    if argument.most is not None and value is not None and value > argument.most:
+        raise ParamError(f"{argument.name} must be at most {argument.most:,.0f}, got {value:g}")
+    return value
 
 
 def whole_number(name: str, value: Any) -> int | None:
     """A whole number given as any numeric type (None stays None); ``ParamError`` otherwise.
 
-    >>> whole_number("horizon", 12.0), whole_number("horizon", None)
+    >>> whole_number("steps_ahead", 12.0), whole_number("steps_ahead", None)
     (12, None)
     """
     if value is None:
@@ -337,7 +395,7 @@ def accept(function: str, given: Mapping[str, Any]) -> dict[str, Any]:
 
     An unknown name is refused with the nearest known one suggested.
 
-    >>> accept("forecast", {"horizon": 6.0})["horizon"], accept("forecast", {})["level"]
+    >>> accept("forecast", {"steps_ahead": 6.0})["steps_ahead"], accept("forecast", {})["coverage"]
     (6, 0.95)
     >>> accept("split", {"sesonal_span": 7})
     Traceback (most recent call last):
@@ -398,6 +456,8 @@ def markdown_table() -> str:
         meaning = argument.meaning
         if argument.choices:
             meaning += f" ({', '.join(repr(c) for c in argument.choices)})"
+        if argument.most is not None:
+            meaning += f"; at most {argument.most:,.0f}"
         lines.append(f"| `{argument.name}` | {_default_words(argument)} | {takers} | {meaning} |")
     return "\n".join(lines)
 

@@ -25,6 +25,7 @@ import numpy as np
 from . import memory
 from .kernel import grid
 from .status import OK
+from .tuning import MAX_GROWTH, PERIOD_PEAK_FLOOR
 
 US_PER_MINUTE = 60_000_000
 US_PER_HOUR = 60 * US_PER_MINUTE
@@ -34,10 +35,6 @@ US_PER_WEEK = 7 * US_PER_DAY
 UNIT_NUMBER = 0  # integer time: steps in its own units
 UNIT_MICROSECOND = 1
 UNIT_MONTH = 2
-
-# A series may have at most this many grid points per observed point once gaps are filled
-# (common practice guard against a stray time far from the rest).
-MAX_GROWTH = 10
 
 
 def time_kind(sql_type: str | None) -> str:
@@ -411,7 +408,7 @@ def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
         return 0
     top = min(max_lag or n // 2, n - 2)
     acf = np.array([np.dot(y[: n - k], y[k:]) / denom for k in range(top + 2)])
-    threshold = max(0.3, 2 / np.sqrt(n))
+    threshold = max(PERIOD_PEAK_FLOOR, 2 / np.sqrt(n))
     for k in range(2, top + 1):
         if acf[k] > threshold and acf[k] >= acf[k - 1] and acf[k] >= acf[k + 1]:
             return k

@@ -356,10 +356,10 @@ EXAMPLES = {
     "profile": "tidesplit profile --from 'lake/sales/*.parquet' --to profiles.parquet \\\n"
     "    --key store --key sku --time month --value units --period 12",
     "outliers": "tidesplit outliers --from postgresql://etl@db:5432/shop --from-table sales \\\n"
-    "    --to unusual.parquet --key sku --time month --value units --method mad",
+    "    --to unusual.parquet --key sku --time month --value units --rule mad",
     "forecast": "tidesplit forecast --from warehouse.duckdb:sales \\\n"
     "    --to postgresql://etl@db/shop --to-table sales_ahead \\\n"
-    "    --key sku --time month --value units --horizon 6",
+    "    --key sku --time month --value units --steps-ahead 6",
 }
 WHAT = {
     "split": "trend, seasonal and remainder of every series, one row per input row "
@@ -604,6 +604,18 @@ COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast")
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tidesplit`` command."""
+    args = build_parser().parse_args(argv)
+    if args.command == "demo":
+        run_demo(args.database, args.shops, args.products, args.years)
+    elif args.command == "draw":
+        run_draw(args)
+    else:
+        return run_job(args)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The parser of every command."""
     parser = argparse.ArgumentParser(
         prog="tidesplit", description="Seasonal-trend decomposition of keyed series in DuckDB."
     )
@@ -626,14 +638,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     _add_draw(commands)
     for command in COMMANDS[2:]:
         _add_job_command(commands, command)
-    args = parser.parse_args(argv)
-    if args.command == "demo":
-        run_demo(args.database, args.shops, args.products, args.years)
-    elif args.command == "draw":
-        run_draw(args)
-    else:
-        return run_job(args)
-    return 0
+    return parser
 
 
 if __name__ == "__main__":

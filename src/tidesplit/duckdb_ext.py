@@ -18,14 +18,25 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import arguments, batch, calendar, sql_build, summaries
+from . import (
+    answers,
+    arguments,
+    arrow_lists,
+    calendar,
+    forecast_ahead,
+    series_profile,
+    sql_build,
+    unusual,
+)
+from .answers import COMPONENTS
 from .arguments import SQL_TYPES
-from .decompose import segment_counts
+from .batch_split import segment_counts
 from .errors import ParamError
 from .kernel import grid
+from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
-from .rows import COMPONENTS, RowsResult, split_rows
 from .status import OK
+from .tuning import PARALLEL_POINTS
 
 UDF_NAME = "__tide_split_series"
 
@@ -53,10 +64,6 @@ RESULT_TYPE = (
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
     "boxcox_lambda DOUBLE, status VARCHAR)"
 )
-# DuckDB runs UDF calls (up to 2048 series each) on its own threads, so a call normally
-# uses one thread. A call this large (a few very long series) is likely the only one in
-# flight, so it spreads its series over numba's threads instead.
-PARALLEL_POINTS = 1_000_000
 
 
 def _column_values(col: pa.Array) -> tuple[bool, Any]:
@@ -175,18 +182,18 @@ class _Call:
 
 def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     labels = columns["label"]
-    offsets, child, null_rows = batch.list_layout(columns["values"])
-    flat = batch.float_values(child)
+    offsets, child, null_rows = arrow_lists.list_layout(columns["values"])
+    flat = arrow_lists.float_values(child)
     status = [OK] * len(null_rows)
     for i in np.flatnonzero(null_rows):
         status[i] = "the list of values is NULL"
     time_lists = columns["time_codes"]
     codes = None
     if time_lists.null_count < len(time_lists):
-        time_offsets, time_child, _ = batch.list_layout(time_lists)
+        time_offsets, time_child, _ = arrow_lists.list_layout(time_lists)
         if not np.array_equal(time_offsets, offsets):
             raise ValueError(f"{UDF_NAME}: times and values differ in length")
-        codes, time_nulls = batch.int_values(time_child)
+        codes, time_nulls = arrow_lists.int_values(time_child)
         nulls_per_series = segment_counts(time_nulls, offsets) if time_nulls.any() else []
         for i in np.flatnonzero(nulls_per_series):
             if status[i] == OK:
@@ -245,8 +252,8 @@ def _split_handler(call: _Call) -> pa.Array:
     out_offsets = result.offsets
     nulls = call.null_rows if call.null_rows.any() else None
     fields = {
-        part: batch.float_lists(getattr(result, part), out_offsets, nulls)
-        for part in ("trend", "seasonal", "remainder", "adjusted", "weight")
+        part: arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
+        for part in COMPONENTS
     }
     if result.seasonal_parts is not None:
         fields["seasonal_by_period"] = _per_row_parts(
@@ -283,7 +290,12 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     period_offsets = np.concatenate(([0], np.cumsum(kept))).astype(np.int64)
     return {
         "period": pa.array(used, type=pa.int64(), mask=used == 0),
-        "periods": _lists(flat, period_offsets, pa.int64()),
+        # NULL for a series left unsplit, as period is
+        "periods": pa.ListArray.from_arrays(
+            pa.array(period_offsets.astype(np.int32)),
+            pa.array(flat, pa.int64()),
+            mask=pa.array(used == 0),
+        ),
         "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
         "status": pa.array(result.status, type=pa.string()),
     }
@@ -291,13 +303,13 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
 
 def _profile_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    found = summaries.profile(result, call.kind)
+    found = series_profile.profile(result, call.kind)
     fields: dict[str, pa.Array] = {
         "points": pa.array(found.points, pa.int64()),
         "missing": pa.array(found.missing, pa.int64()),
-        "step": pa.array(found.step, pa.string()),
+        "time_step": pa.array(found.step, pa.string()),
     }
-    for k, name in enumerate(summaries.PROFILE_COLUMNS):
+    for k, name in enumerate(series_profile.PROFILE_COLUMNS):
         fields[name] = pa.array(found.values[:, k], pa.float64(), from_pandas=True)
     fields["strength_by_period"] = pa.array(
         [
@@ -314,14 +326,37 @@ def _profile_handler(call: _Call) -> pa.Array:
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
+def _audit_handler(call: _Call) -> pa.Array:
+    from .crosscheck import audit
+
+    result = call.split(fill_gaps=True)
+    found = audit(result, call.params)
+    fields = {
+        "reference": pa.array(found.reference, pa.string()),
+        "points_compared": pa.array(found.compared, pa.int64()),
+        "trend_gap": pa.array(found.gaps[:, 0], pa.float64(), from_pandas=True),
+        "seasonal_gap": pa.array(found.gaps[:, 1], pa.float64(), from_pandas=True),
+        "remainder_gap": pa.array(found.gaps[:, 2], pa.float64(), from_pandas=True),
+        "status": pa.array(found.status, pa.string()),
+    }
+    return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
+
+
 def _outlier_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
-    found = summaries.unusual_points(result, call.settings["method"], call.settings["threshold"])
+    found = unusual.unusual_points(
+        result,
+        call.settings["rule"],
+        call.settings["threshold"],
+        call.settings["significance"],
+        call.params,
+        parallel=False,
+    )
     # back to the input rows (the grid's inserted times have no value to judge)
     offsets = call.offsets
     direction = np.array(found.direction, dtype=object)
     fields = {
-        "remainder": _lists(call.at_input_rows(result, result.remainder), offsets, pa.float64()),
+        "remainder": _lists(call.at_input_rows(result, found.remainder), offsets, pa.float64()),
         "expected": _lists(call.at_input_rows(result, found.expected), offsets, pa.float64()),
         "score": _lists(call.at_input_rows(result, found.score), offsets, pa.float64()),
         "is_outlier": _lists(call.at_input_rows(result, found.flagged), offsets, pa.bool_()),
@@ -333,13 +368,15 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
-    horizon, level, method = summaries.forecast_arguments(
-        call.settings["horizon"], call.settings["level"], call.settings["method"]
+    horizon, level, method = forecast_ahead.forecast_arguments(
+        call.settings["steps_ahead"], call.settings["coverage"], call.settings["trend_model"]
     )
     result = call.split(fill_gaps=True)
-    ahead = summaries.forecast(result, call.kind, call.zone, horizon, level, method, parallel=False)
-    ok = summaries.settle_forecast(result, ahead, call.on_error, call.label)
-    # horizon rows per series; one row of NULLs beside the status of a series left unsplit
+    ahead = forecast_ahead.forecast(
+        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
+    )
+    ok = forecast_ahead.settle_forecast(result, ahead, call.on_error, call.label)
+    # steps_ahead rows per series; one row of NULLs beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)
     offsets = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
     present = np.repeat(ok, counts)
@@ -354,11 +391,11 @@ def _forecast_handler(call: _Call) -> pa.Array:
         return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
 
     fields = {
-        "step": rows(ahead.step, pa.int64()),
+        "steps_ahead": rows(ahead.step, pa.int64()),
         "time_codes": rows(ahead.codes, pa.int64()),
         "forecast": rows(ahead.point, pa.float64()),
-        "lower": rows(ahead.lower, pa.float64()),
-        "upper": rows(ahead.upper, pa.float64()),
+        "low": rows(ahead.lower, pa.float64()),
+        "high": rows(ahead.upper, pa.float64()),
     }
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
@@ -367,23 +404,17 @@ def _forecast_handler(call: _Call) -> pa.Array:
 _SERIES_TYPES = "period BIGINT, periods BIGINT[], boxcox_lambda DOUBLE, status VARCHAR"
 UDFS: dict[str, tuple[Any, str]] = {
     UDF_NAME: (_split_handler, RESULT_TYPE),
-    "__tide_profile_series": (
-        _profile_handler,
-        "STRUCT(points BIGINT, missing BIGINT, step VARCHAR, "
-        + ", ".join(f"{n} DOUBLE" for n in summaries.PROFILE_COLUMNS)
-        + ", strength_by_period MAP(BIGINT, DOUBLE), peak_position BIGINT, "
-        "peak_label VARCHAR, trough_position BIGINT, trough_label VARCHAR, "
-        f"{_SERIES_TYPES})",
-    ),
+    "__tide_profile_series": (_profile_handler, answers.struct_type(answers.PROFILE_COLUMNS)),
     "__tide_outlier_series": (
         _outlier_handler,
         "STRUCT(remainder DOUBLE[], expected DOUBLE[], score DOUBLE[], is_outlier BOOLEAN[], "
         f"direction VARCHAR[], weight DOUBLE[], {_SERIES_TYPES})",
     ),
+    "__tide_audit_series": (_audit_handler, answers.struct_type(answers.AUDIT_COLUMNS)),
     "__tide_forecast_series": (
         _forecast_handler,
-        "STRUCT(step BIGINT[], time_codes BIGINT[], forecast DOUBLE[], lower DOUBLE[], "
-        f"upper DOUBLE[], {_SERIES_TYPES})",
+        "STRUCT(steps_ahead BIGINT[], time_codes BIGINT[], forecast DOUBLE[], low DOUBLE[], "
+        f"high DOUBLE[], {_SERIES_TYPES})",
     ),
 }
 
@@ -393,7 +424,9 @@ def _as_udf(udf: str, handler: Any) -> Any:
     names = [n for n, _ in udf_types(udf)]
 
     def call(*columns: Any) -> pa.Array:
-        decoded = _decode(udf, {n: batch.as_array(c) for n, c in zip(names, columns, strict=True)})
+        decoded = _decode(
+            udf, {n: arrow_lists.as_array(c) for n, c in zip(names, columns, strict=True)}
+        )
         return handler(decoded)
 
     call.__signature__ = udf_signature(names)  # type: ignore[attr-defined]

@@ -64,8 +64,8 @@ COMMANDS = {
 def answer_columns(function: str) -> tuple[str, ...]:
     """The columns a function puts beside the key, time and value (from ``answers``).
 
-    >>> answer_columns("forecast")
-    ('step', 'forecast', 'lower', 'upper', 'status')
+    >>> answer_columns("forecast")[-1]
+    'status'
     """
     from . import answers  # loads the numeric core: only when a job runs
 

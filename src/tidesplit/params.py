@@ -14,12 +14,14 @@ import numpy as np
 from . import arguments
 from .errors import ParamError
 from .kernel import layout as _k
+from .tuning import DEFAULT_SEASON_SPAN
 
 TRANSFORMS = next(a.choices for a in arguments.REGISTRY if a.name == "transform")
 ON_ERROR = next(a.choices for a in arguments.REGISTRY if a.name == "on_error")
 
-# Common practice (the paper asks only for an odd number of at least 7).
-DEFAULT_SEASON_SPAN = 13
+# Where Guerrero's lambda is searched by default: from the log (0, a multiplicative split)
+# to no transform (1, an additive one).
+DEFAULT_BOXCOX_BOUNDS = (0.0, 1.0)
 
 
 def smallest_odd_at_least(x: float) -> int:
@@ -99,6 +101,7 @@ class SplitParams:
     periods: tuple[int, ...] | None = None
     season_spans: tuple[int, ...] | None = None
     iterations: int | None = None
+    boxcox_bounds: tuple[float, float] | None = None  # Guerrero's search interval
 
     @classmethod
     def from_kwargs(cls, **kwargs: Any) -> SplitParams:
@@ -113,7 +116,7 @@ class SplitParams:
             raise ParamError(
                 f"unknown argument(s) {', '.join(unknown)}; known: {', '.join(sorted(known))}"
             )
-        for name in ("periods", "season_spans"):
+        for name in ("periods", "season_spans", "boxcox_bounds"):
             if kwargs.get(name) is not None:
                 kwargs[name] = tuple(kwargs[name])
         return cls(**kwargs)
@@ -257,6 +260,7 @@ class SplitParams:
             lam = 0.0
         elif transform == "none":
             lam = None
+        bounds = _check_bounds(self.boxcox_bounds, transform, lam)
         given_jumps = [
             as_int(name, getattr(self, name))
             for name in ("season_jump", "trend_jump", "lowpass_jump")
@@ -290,7 +294,30 @@ class SplitParams:
             outer_loops=outer,
             transform=transform,
             boxcox_lambda=lam,
+            boxcox_bounds=bounds,
         )
+
+
+def _check_bounds(
+    given: tuple[float, ...] | None, transform: str, lam: float | None
+) -> tuple[float, float]:
+    """Guerrero's search interval: [0, 1] (from the log to no transform) unless given;
+    given, it must be two finite numbers, lower first, and be used (a Box-Cox transform
+    whose lambda is to be chosen)."""
+    if given is None:
+        return DEFAULT_BOXCOX_BOUNDS
+    if transform != "boxcox" or lam is not None:
+        raise ParamError(
+            "boxcox_bounds is the interval the Box-Cox lambda is chosen in: it goes with "
+            "transform 'boxcox' and no boxcox_lambda"
+        )
+    try:
+        lower, upper = (float(v) for v in given)
+    except (TypeError, ValueError):
+        raise ParamError(f"boxcox_bounds must be two numbers, got {given!r}") from None
+    if not (math.isfinite(lower) and math.isfinite(upper) and lower < upper):
+        raise ParamError(f"boxcox_bounds must be finite with lower < upper, got {given!r}")
+    return (lower, upper)
 
 
 def _check_span(name: str, span: int) -> None:
@@ -325,6 +352,7 @@ class ResolvedParams:
     outer_loops: int
     transform: str
     boxcox_lambda: float | None  # None with boxcox: chosen per series (Guerrero 1993)
+    boxcox_bounds: tuple[float, float] = (0.0, 1.0)  # the interval it is chosen in
 
     def settings_row(self) -> np.ndarray:
         """The kernel's integer settings row for the first period."""

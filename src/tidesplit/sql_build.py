@@ -12,9 +12,11 @@ from __future__ import annotations
 
 from . import answers
 from .arguments import (
+    AUDIT,
     FLAG,
     FORECAST,
     NUMBER,
+    NUMBER_LIST,
     OUTLIERS,
     PROFILE,
     REGISTRY,
@@ -44,6 +46,7 @@ UDFS = {
     "__tide_profile_series": (PROFILE,),
     "__tide_outlier_series": (OUTLIERS,),
     "__tide_forecast_series": (FORECAST,),
+    "__tide_audit_series": (AUDIT,),
 }
 UDF_OF = {f: udf for udf, functions in UDFS.items() for f in functions}
 
@@ -55,6 +58,7 @@ _CHECK_MACRO = {
     FLAG: "__tide_check_flag",
     TEXT: "__tide_check_text",
     WHOLE_LIST: "__tide_check_numbers",
+    NUMBER_LIST: "__tide_check_numbers",
 }
 _NUMBER = r"U?(TINYINT|SMALLINT|INTEGER|BIGINT|HUGEINT)|FLOAT|DOUBLE|DECIMAL\(\d+,\d+\)"
 _KIND_CHECKS = "\n".join(
@@ -68,6 +72,29 @@ _KIND_CHECKS = "\n".join(
         ("__tide_check_numbers", f'^((({_NUMBER})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
     )
 )
+
+
+# Time column types refused, each with a message that names what to give instead.
+_TIME_REFUSALS = (
+    ("VARCHAR", "the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ "
+     "(CAST it first)"),
+    ("DOUBLE", "the time column holds fractional numbers; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("HUGEINT", "the time column holds integers wider than BIGINT; give BIGINT, DATE, "
+     "TIMESTAMP or TIMESTAMPTZ"),
+    ("TIME", "the time column holds times of day without a date; give DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("INTERVAL", "the time column holds intervals; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+    ("BOOLEAN", "the time column holds true/false; give integers, DATE, TIMESTAMP or "
+     "TIMESTAMPTZ"),
+)  # fmt: skip
+
+
+def _time_refusals(lead: str) -> str:
+    return ",\n".join(
+        f"    ({lead} {sql_type}) AS error('{message}')" for sql_type, message in _TIME_REFUSALS
+    )
 
 
 def udf_arguments(udf: str) -> tuple[Argument, ...]:
@@ -143,15 +170,14 @@ CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
     (t TIMESTAMP) AS epoch_us(t),
     (t TIMESTAMPTZ) AS epoch_us(t),
     (t DATE) AS epoch_us(t),
-    (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
-    (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ');
+{time_refusals};
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
     (c, sample TIMESTAMP) AS make_timestamp(c),
     (c, sample TIMESTAMPTZ) AS timezone('UTC', make_timestamp(c)),
-    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE);
+    (c, sample DATE) AS CAST(make_timestamp(c) AS DATE),
+{time_refusals_from};
 
 -- Why an argument's type is refused (NULL when it is fine), one macro per kind.
 {kind_checks}
@@ -226,11 +252,16 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
 
 
 def _split_list() -> str:
+    fields = (*answers.COMPONENTS, "period", "boxcox_lambda", "status")
+    picked = ", ".join(f"{f} := parts.{f}" for f in fields)
     return f"""\
+-- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack({picked});
+
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, {_signature(SPLIT_LIST)}) AS
     CASE WHEN __tide_refuse({_checks(SPLIT_LIST)})
-    THEN {_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)}
+    THEN __tide_list_parts({_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)})
     END;
 """
 
@@ -254,13 +285,13 @@ SELECT unnest(__key),
                    ELSE __value_rows END, recursive := true),
        unnest(__parts.trend) AS trend,
        unnest(__parts.seasonal) AS seasonal,
-       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
+       unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              {_udf_call(_LEAD_CALL, SPLIT, SPLIT_MULTI)} AS __parts
@@ -294,7 +325,9 @@ def render() -> str:
     parts = [
         "-- The SQL functions of tidesplit, loaded by tidesplit.register().\n"
         "-- Written by tidesplit/sql_build.py from the argument registry; do not edit by hand.\n",
-        HELPERS.replace("{kind_checks}", _KIND_CHECKS),
+        HELPERS.replace("{kind_checks}", _KIND_CHECKS)
+        .replace("{time_refusals}", _time_refusals("t"))
+        .replace("{time_refusals_from}", _time_refusals("c, sample")),
         _split_list(),
         _split_keys(),
         "-- One key column by name, or a list of them (exact names, not patterns). Arguments\n"
@@ -323,10 +356,11 @@ def render() -> str:
 def _answer_macros() -> str:
     named = {
         f: _named(f).replace("period := period", "period := __tide_by_name(by_name_only, period)")
-        for f in (PROFILE, OUTLIERS, FORECAST)
+        for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     inner = {
-        f: ", ".join(f"{a.name} := NULL" for a in of(f)) for f in (PROFILE, OUTLIERS, FORECAST)
+        f: ", ".join(f"{a.name} := NULL" for a in of(f))
+        for f in (PROFILE, OUTLIERS, FORECAST, AUDIT)
     }
     profile = f"""\
 -- Per-series answers, one row per key.
@@ -342,7 +376,7 @@ FROM (SELECT __key,
         PROFILE, f"SELECT * FROM __tide_profile_keys(tbl, {{keys}}, time, value, {named[PROFILE]})"
     )
     outliers = f"""\
--- Points whose remainder lies outside the fences (all rows with all_rows := true); every row
+-- Points too far out to be noise (all rows with all_rows := true); every row
 -- of a series that could not be split, with its status.
 CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, {inner[OUTLIERS]}) AS TABLE
 SELECT * FROM (
@@ -369,15 +403,15 @@ WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok
         f"     FROM __tide_outliers_keys(tbl, {{keys}}, time, value, {named[OUTLIERS]})",
     )
     forecast = f"""\
--- Future rows per key up to a horizon, with prediction intervals; a series that could not
+-- Future rows per key, steps_ahead of them, with prediction intervals; a series that could not
 -- be split (on_error := 'keep') gives one row with its status and NULL forecasts.
 CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, {inner[FORECAST]}) AS TABLE
 SELECT unnest(__key),
        unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
-       unnest(__f.step) AS step,
+       unnest(__f.steps_ahead) AS steps_ahead,
        unnest(__f.forecast) AS forecast,
-       unnest(__f.lower) AS lower,
-       unnest(__f.upper) AS upper,
+       unnest(__f.low) AS low,
+       unnest(__f.high) AS high,
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              {_udf_call(_LEAD_CALL, FORECAST)} AS __f
@@ -389,7 +423,20 @@ FROM (SELECT __key, __time_rows,
         FORECAST,
         f"SELECT * FROM __tide_forecast_keys(tbl, {{keys}}, time, value, {named[FORECAST]})",
     )
-    return "\n".join([profile, outliers, forecast])
+    audit = f"""\
+-- A sample of keys split again by statsmodels under the same settings: the largest
+-- difference of each component, or why statsmodels cannot follow.
+CREATE OR REPLACE TEMP MACRO __tide_audit_keys(tbl, keys, time, value, {inner[AUDIT]}) AS TABLE
+SELECT unnest(__key), unnest(__a)
+FROM (SELECT __key,
+             {_udf_call(_LEAD_CALL, AUDIT)} AS __a
+      FROM (SELECT * FROM __tide_grouped(tbl, keys, time, value)
+            ORDER BY hash(CAST(__key AS VARCHAR)) LIMIT sample),
+           {_refusals(AUDIT, answers.AUDIT)}
+      WHERE __checked.__ok);
+
+""" + _public(AUDIT, f"SELECT * FROM __tide_audit_keys(tbl, {{keys}}, time, value, {named[AUDIT]})")
+    return "\n".join([profile, outliers, forecast, audit])
 
 
 if __name__ == "__main__":

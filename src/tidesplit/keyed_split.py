@@ -13,11 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import calendar, memory
-from .decompose import BatchResult, split_batch
+from .answers import COMPONENTS
+from .batch_split import BatchResult, split_batch
 from .params import SplitParams
 from .status import OK
-
-COMPONENTS = ("trend", "seasonal", "remainder", "adjusted", "weight")
 
 
 @dataclass

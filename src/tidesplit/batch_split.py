@@ -19,6 +19,7 @@ from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
 from .status import OK, split_mask, with_note
+from .tuning import LARGEST_MAGNITUDE, LINEAR_SHARE
 
 
 @dataclass
@@ -42,6 +43,20 @@ class BatchResult:
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
 
+    def periods_used(self) -> list[tuple[int, ...]]:
+        """Each series' periods (one, or several with MSTL); () for a series not split."""
+        ok = split_mask(self.status)
+        return [
+            (
+                tuple(self.series_periods[s])
+                if self.series_periods is not None
+                else (int(self.periods[s]),)
+            )
+            if ok[s]
+            else ()
+            for s in range(ok.size)
+        ]
+
 
 def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     """How many ``True`` entries each segment of ``mask`` holds (empty segments give 0).
@@ -51,11 +66,6 @@ def segment_counts(mask: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     """
     running = np.concatenate(([0], np.cumsum(mask, dtype=np.int64)))
     return running[offsets[1:]] - running[offsets[:-1]]
-
-
-# Finite values beyond this magnitude are refused: sums of squares in the fits and in the
-# answers (variances, forecast errors) could overflow, which would give NaN with status ok.
-LARGEST_MAGNITUDE = 1e150
 
 
 def _point_text(describe_point: Callable[[int, int], str] | None, s: int, i: int) -> str:
@@ -275,7 +285,7 @@ def _run_kernel(
     for members, n, row in _equal_shape_groups(candidates, lengths, settings):
         if not linear.eligible(n, row):
             continue
-        if members.size < max(2, n // 4) and not linear.is_cached(n, row):
+        if members.size < max(2, n // LINEAR_SHARE) and not linear.is_cached(n, row):
             continue  # too few series to pay for building the matrices
         if members.size == (members[-1] - members[0] + 1):
             # consecutive series of one length: a reshaped view, no gather
@@ -361,6 +371,47 @@ def split_batch(
     if groups is None:
         groups = np.zeros(count, dtype=np.int64)
     status = [OK] * count if status is None else list(status)
+    plan = _plan(params, groups, lengths, status)
+    _check_inputs(values, offsets, plan, status, describe_point, describe_phase)
+    _choose_lambdas(values, offsets, plan, status)
+    ok = _settle(status, on_error, label)
+    y, back = _transform(values, offsets, plan, ok, status, describe_point)
+    if back is not None:
+        ok = _settle(status, on_error, label)
+    plan.settings[:, :, COL_ACTIVE] = ok[:, None]
+    trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
+    if _check_output(values, offsets, trend, seasonal, plan.settings, status, describe_phase).size:
+        ok = _settle(status, on_error, label)
+        rows = np.repeat(~ok, lengths)
+        trend[rows] = seasonal[rows] = weight[rows] = np.nan
+        if parts is not None:
+            parts[:, rows] = np.nan
+    return _assemble(
+        values, offsets, y, trend, seasonal, weight, parts, plan, ok, back, status, describe_point
+    )
+
+
+@dataclass
+class _Plan:
+    """What each series is split with: kernel settings rows and what comes before them."""
+
+    settings: np.ndarray  # series x periods x N_SETTINGS
+    n_periods: np.ndarray  # periods kept per series (MSTL drops the long ones)
+    periods: np.ndarray  # (shortest) period per series, 0 where none
+    lambdas: np.ndarray  # Box-Cox lambda per series, NaN until chosen or without one
+    transformed: np.ndarray  # per series: a transform applies
+    auto_lambda: np.ndarray  # per series: lambda to be chosen from the data
+    transform_names: dict[int, str]
+    dropped: dict[int, tuple[int, ...]]  # series -> periods MSTL dropped
+    multi: bool
+    lambda_bounds: np.ndarray  # series x 2: where Guerrero's lambda is searched
+
+
+def _plan(
+    params: Sequence[SplitParams], groups: np.ndarray, lengths: np.ndarray, status: list[str]
+) -> _Plan:
+    """Resolve each group's parameters into the settings of its series."""
+    count = lengths.size
     resolved_groups: dict[int, ResolvedParams] = {}
     for g, group_params in enumerate(params):
         try:
@@ -371,87 +422,142 @@ def split_batch(
             for s in np.flatnonzero(groups == g):
                 if status[s] == OK:
                     status[s] = str(exc)
-    multi = any(p.multi for p in params)
     width = max((len(r.periods) for r in resolved_groups.values()), default=1)
-    settings = np.zeros((count, width, N_SETTINGS), dtype=np.int64)
-    n_periods = np.zeros(count, dtype=np.int64)
-    lambdas = np.full(count, np.nan)
-    periods = np.zeros(count, dtype=np.int64)
-    transformed = np.zeros(count, dtype=bool)
-    auto_lambda = np.zeros(count, dtype=bool)
-    transform_names: dict[int, str] = {}
-    dropped: dict[int, tuple[int, ...]] = {}
+    plan = _Plan(
+        settings=np.zeros((count, width, N_SETTINGS), dtype=np.int64),
+        n_periods=np.zeros(count, dtype=np.int64),
+        periods=np.zeros(count, dtype=np.int64),
+        lambdas=np.full(count, np.nan),
+        transformed=np.zeros(count, dtype=bool),
+        auto_lambda=np.zeros(count, dtype=bool),
+        transform_names={},
+        dropped={},
+        multi=any(p.multi for p in params),
+        lambda_bounds=np.zeros((count, 2)),
+    )
     for g, resolved in resolved_groups.items():
         members = np.flatnonzero(groups == g)
         if members.size == 0:
             continue
         rows = resolved.settings_rows()
-        settings[members, : rows.shape[0]] = rows
-        periods[members] = resolved.period
-        n_periods[members] = rows.shape[0]
+        plan.settings[members, : rows.shape[0]] = rows
+        plan.periods[members] = resolved.period
+        plan.n_periods[members] = rows.shape[0]
         if params[g].multi:
             # MSTL drops periods that are not shorter than half the series
             keep = (np.asarray(resolved.periods)[None, :] * 2 < lengths[members, None]).sum(1)
             for s, kept in zip(members, keep, strict=True):
                 if kept < len(resolved.periods):
-                    dropped[int(s)] = resolved.periods[kept:]
-            n_periods[members] = np.maximum(keep, 1)
+                    plan.dropped[int(s)] = resolved.periods[kept:]
+            plan.n_periods[members] = np.maximum(keep, 1)
         if resolved.transform != "none":
-            transformed[members] = True
-            transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
+            plan.transformed[members] = True
+            plan.transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
             if resolved.boxcox_lambda is None:
-                auto_lambda[members] = True
+                plan.auto_lambda[members] = True
+                plan.lambda_bounds[members] = resolved.boxcox_bounds
             else:
-                lambdas[members] = resolved.boxcox_lambda
+                plan.lambdas[members] = resolved.boxcox_lambda
+    return plan
+
+
+def _check_inputs(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    plan: _Plan,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+    describe_phase: Callable[[int, int, int], str] | None,
+) -> None:
+    """Every check of the input, for each kept period (each needs every cycle position
+    observed, not only the shortest)."""
     wording = (describe_point, describe_phase)
-    _check_series(values, offsets, periods, transformed, transform_names, status, *wording)
-    for k in range(1, width):
-        # every kept period needs each of its cycle positions observed, not only the shortest
-        longer = np.where(n_periods > k, settings[:, k, COL_PERIOD], 0)
-        _check_series(values, offsets, longer, transformed, transform_names, status, *wording)
+    names = plan.transform_names
+    _check_series(values, offsets, plan.periods, plan.transformed, names, status, *wording)
+    for k in range(1, plan.settings.shape[1]):
+        longer = np.where(plan.n_periods > k, plan.settings[:, k, COL_PERIOD], 0)
+        _check_series(values, offsets, longer, plan.transformed, names, status, *wording)
 
+
+def _choose_lambdas(
+    values: np.ndarray, offsets: np.ndarray, plan: _Plan, status: list[str]
+) -> None:
+    """Guerrero's lambda for each series that asks for one."""
+    if not plan.auto_lambda.any():
+        return
     ok = np.array([s == OK for s in status], dtype=bool)
-    if auto_lambda.any():
-        chosen = transform.guerrero_lambdas(values, offsets, periods, auto_lambda & ok)
-        lambdas[auto_lambda] = chosen[auto_lambda]
-        for s in np.flatnonzero(auto_lambda & ok & np.isnan(lambdas)):
-            status[s] = "Box-Cox lambda cannot be chosen: fewer than two cycles with spread"
-    ok = _settle(status, on_error, label)
+    chosen = transform.guerrero_lambdas(
+        values, offsets, plan.periods, plan.auto_lambda & ok, plan.lambda_bounds
+    )
+    plan.lambdas[plan.auto_lambda] = chosen[plan.auto_lambda]
+    for s in np.flatnonzero(plan.auto_lambda & ok & np.isnan(plan.lambdas)):
+        status[s] = "Box-Cox lambda cannot be chosen: fewer than two cycles with spread"
+        ok[s] = False
+    for s, note in enumerate(transform.bound_notes(chosen, plan.lambda_bounds)):
+        if note and ok[s]:
+            status[s] = with_note(status[s], note)
 
-    any_transform = bool((transformed & ok).any())
-    point_lambda = np.repeat(lambdas, lengths) if any_transform else None
-    point_transformed = np.repeat(transformed & ok, lengths) if any_transform else None
+
+def _transform(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    plan: _Plan,
+    ok: np.ndarray,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """The values the kernel splits, and which points were transformed (None: none was)."""
     y = memory.copy(values)
-    if any_transform:
-        y[point_transformed] = transform.forward(
-            values[point_transformed], point_lambda[point_transformed]
-        )
-        _check_transformed(y, offsets, transformed & ok, lambdas, status, describe_point)
-        ok = _settle(status, on_error, label)
-    settings[:, :, COL_ACTIVE] = ok[:, None]
+    if not (plan.transformed & ok).any():
+        return y, None
+    back = np.repeat(plan.transformed & ok, np.diff(offsets))
+    y[back] = transform.forward(values[back], np.repeat(plan.lambdas, np.diff(offsets))[back])
+    _check_transformed(y, offsets, plan.transformed & ok, plan.lambdas, status, describe_point)
+    return y, back
 
-    parts = None
-    if multi:
-        trend, parts, weight = _run_multi_kernel(
-            y, offsets, settings, n_periods, params, groups, parallel
-        )
-        seasonal = parts.sum(axis=0)
-    else:
-        trend, seasonal, weight = _run_kernel(y, offsets, settings[:, 0], parallel)
-    failed = _check_output(values, offsets, trend, seasonal, settings, status, describe_phase)
-    if failed.size:
-        ok = _settle(status, on_error, label)
-        rows = np.repeat(~ok, lengths)
-        trend[rows] = seasonal[rows] = weight[rows] = np.nan
-        if parts is not None:
-            parts[:, rows] = np.nan
+
+def _run(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    plan: _Plan,
+    params: Sequence[SplitParams],
+    groups: np.ndarray,
+    parallel: bool,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+    """Trend, seasonal, weights and (with several periods) the parts, of the active series."""
+    if not plan.multi:
+        return (*_run_kernel(y, offsets, plan.settings[:, 0], parallel), None)
+    trend, parts, weight = _run_multi_kernel(
+        y, offsets, plan.settings, plan.n_periods, params, groups, parallel
+    )
+    return trend, parts.sum(axis=0), weight, parts
+
+
+def _assemble(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    y: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+    parts: np.ndarray | None,
+    plan: _Plan,
+    ok: np.ndarray,
+    back: np.ndarray | None,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> BatchResult:
+    """Remainder, the seasonally adjusted series back on the original scale, the notes."""
+    lengths = np.diff(offsets)
     series_periods = None
-    if multi:
+    if plan.multi:
         series_periods = [
-            tuple(int(p) for p in settings[s, : n_periods[s], COL_PERIOD]) if ok[s] else ()
-            for s in range(count)
+            tuple(int(p) for p in plan.settings[s, : plan.n_periods[s], COL_PERIOD])
+            if ok[s]
+            else ()
+            for s in range(lengths.size)
         ]
-        for s, gone in dropped.items():
+        for s, gone in plan.dropped.items():
             if ok[s]:
                 shown = ", ".join(str(p) for p in gone)
                 status[s] = with_note(
@@ -460,13 +566,14 @@ def split_batch(
     remainder = np.subtract(y, trend, out=memory.empty(y.size))
     remainder -= seasonal
     adjusted = np.subtract(y, seasonal, out=memory.empty(y.size))
-    if any_transform:
-        back = point_transformed & np.repeat(ok, lengths)
-        adjusted[back] = transform.inverse(adjusted[back], point_lambda[back])
+    lambdas = plan.lambdas
+    if back is not None:
+        back = back & np.repeat(ok, lengths)
+        adjusted[back] = transform.inverse(adjusted[back], np.repeat(lambdas, lengths)[back])
         _note_unreachable(values, offsets, adjusted, lambdas, back, status, describe_point)
-    missing = np.isnan(values)
-    weight[missing] = np.nan
+    weight[np.isnan(values)] = np.nan
     lambdas[~ok] = np.nan
+    periods = plan.periods
     periods[~ok] = 0
     return BatchResult(
         offsets=offsets,

@@ -1,5 +1,5 @@
-"""Per-series summaries of split components: strengths, cycle shape, remainder fences and
-forecasts of the seasonally adjusted series. Flat layout, NaN for missing, as elsewhere."""
+"""Forecasts of the seasonally adjusted series: the damped trend's recursion and its grid
+fit, random walks, and reductions per series. Flat layout, NaN for missing."""
 
 from __future__ import annotations
 
@@ -7,155 +7,6 @@ import math
 
 import numpy as np
 from numba import njit, prange
-
-
-@njit(nogil=True, cache=True)
-def _variance(x: np.ndarray, y: np.ndarray, use_y: bool) -> float:
-    """Sample variance of x (+ y) over the points where both are defined."""
-    count = 0
-    total = 0.0
-    for i in range(x.shape[0]):
-        v = x[i] + (y[i] if use_y else 0.0)
-        if not math.isnan(v):
-            count += 1
-            total += v
-    if count < 2:
-        return math.nan
-    mean = total / count
-    squares = 0.0
-    for i in range(x.shape[0]):
-        v = x[i] + (y[i] if use_y else 0.0)
-        if not math.isnan(v):
-            squares += (v - mean) ** 2
-    return squares / (count - 1)
-
-
-@njit(nogil=True, cache=True)
-def strength(component: np.ndarray, remainder: np.ndarray) -> float:
-    """max(0, 1 - Var(R) / Var(C + R)) over the points where R is defined (Wang, Smith &
-    Hyndman 2006)."""
-    joint = _variance(component, remainder, True)
-    if not joint > 0.0:
-        return math.nan
-    return max(0.0, 1.0 - _variance(remainder, remainder, False) / joint)
-
-
-@njit(nogil=True, cache=True)
-def series_summary(
-    trend: np.ndarray,
-    seasonal: np.ndarray,
-    remainder: np.ndarray,
-    weight: np.ndarray,
-    offsets: np.ndarray,
-    periods: np.ndarray,
-    active: np.ndarray,
-    out: np.ndarray,
-    peak: np.ndarray,
-    trough: np.ndarray,
-) -> None:
-    """Per active series, into ``out`` columns: trend strength, seasonal strength, seasonal
-    amplitude (range of the mean seasonal by cycle position), remainder sd, share of points
-    with robustness weight below 0.5, lag-1 autocorrelation of the remainder; and the cycle
-    positions of the seasonal peak and trough."""
-    for s in range(offsets.shape[0] - 1):
-        for c in range(out.shape[1]):
-            out[s, c] = math.nan
-        peak[s] = -1
-        trough[s] = -1
-        if not active[s]:
-            continue
-        lo = offsets[s]
-        hi = offsets[s + 1]
-        t = trend[lo:hi]
-        se = seasonal[lo:hi]
-        r = remainder[lo:hi]
-        out[s, 0] = strength(t, r)
-        out[s, 1] = strength(se, r)
-        p = periods[s]
-        sums = np.zeros(p)
-        for i in range(hi - lo):
-            sums[i % p] += se[i]
-        counts = np.zeros(p)
-        for i in range(hi - lo):
-            counts[i % p] += 1.0
-        best = 0
-        worst = 0
-        for k in range(p):
-            sums[k] /= counts[k]
-            if sums[k] > sums[best]:
-                best = k
-            if sums[k] < sums[worst]:
-                worst = k
-        peak[s] = best
-        trough[s] = worst
-        out[s, 2] = sums[best] - sums[worst]
-        var_r = _variance(r, r, False)
-        out[s, 3] = math.sqrt(var_r) if var_r == var_r else math.nan
-        low = 0
-        seen = 0
-        for i in range(lo, hi):
-            if not math.isnan(weight[i]):
-                seen += 1
-                if weight[i] < 0.5:
-                    low += 1
-        out[s, 4] = low / seen if seen else math.nan
-        # lag-1 autocorrelation over consecutive defined pairs, about the overall mean
-        total = 0.0
-        count = 0
-        for i in range(hi - lo):
-            if not math.isnan(r[i]):
-                total += r[i]
-                count += 1
-        if count > 2:
-            mean = total / count
-            num = 0.0
-            den = 0.0
-            for i in range(hi - lo):
-                if not math.isnan(r[i]):
-                    den += (r[i] - mean) ** 2
-                    if i > 0 and not math.isnan(r[i - 1]):
-                        num += (r[i] - mean) * (r[i - 1] - mean)
-            out[s, 5] = num / den if den > 0 else math.nan
-
-
-@njit(nogil=True, cache=True)
-def remainder_fences(
-    remainder: np.ndarray,
-    offsets: np.ndarray,
-    method: int,
-    k: float,
-    active: np.ndarray,
-    out: np.ndarray,
-) -> None:
-    """Per active series, into ``out`` columns: lower fence, upper fence, centre, scale.
-
-    method 0 (IQR): fences Q1 - k IQR and Q3 + k IQR, centre the median, scale the IQR;
-    method 1 (MAD): centre the median, scale 1.4826 MAD, fences centre -/+ k scale.
-    Quartiles interpolate linearly between order statistics (numpy's default).
-    """
-    for s in range(offsets.shape[0] - 1):
-        for c in range(4):
-            out[s, c] = math.nan
-        if not active[s]:
-            continue
-        r = remainder[offsets[s] : offsets[s + 1]]
-        values = r[~np.isnan(r)]
-        if values.shape[0] < 4:
-            continue
-        values = np.sort(values)
-        centre = np.quantile(values, 0.5)
-        if method == 0:
-            q1 = np.quantile(values, 0.25)
-            q3 = np.quantile(values, 0.75)
-            scale = q3 - q1
-            out[s, 0] = q1 - k * scale
-            out[s, 1] = q3 + k * scale
-        else:
-            scale = 1.4826 * np.median(np.abs(values - centre))
-            out[s, 0] = centre - k * scale
-            out[s, 1] = centre + k * scale
-        out[s, 2] = centre
-        out[s, 3] = scale
 
 
 @njit(nogil=True, cache=True)
@@ -315,3 +166,93 @@ def _damped_fit_one(
     out[s, 3] = level[best]
     out[s, 4] = slope[best]
     out[s, 5] = sse[best] / max(count - 3, 1)
+
+
+@njit(nogil=True, cache=True)
+def walk_fit(
+    adjusted: np.ndarray, offsets: np.ndarray, active: np.ndarray, out: np.ndarray
+) -> None:
+    """Random walks of the seasonally adjusted series, per active series, into ``out``
+    columns: last observed value, steps from it to the series' end, drift (mean step
+    between the first and last observed values), sd of the steps about the drift, sd of
+    the steps about zero, number of observed values. NaN with fewer than three observed.
+    """
+    for s in range(offsets.shape[0] - 1):
+        for c in range(out.shape[1]):
+            out[s, c] = math.nan
+        if not active[s]:
+            continue
+        a = adjusted[offsets[s] : offsets[s + 1]]
+        first = -1
+        last = -1
+        seen = 0
+        for i in range(a.shape[0]):
+            if not math.isnan(a[i]):
+                if first < 0:
+                    first = i
+                last = i
+                seen += 1
+        if seen < 3:
+            continue
+        drift = (a[last] - a[first]) / (last - first)
+        steps = 0
+        about_drift = 0.0
+        about_zero = 0.0
+        for i in range(1, a.shape[0]):
+            if not (math.isnan(a[i]) or math.isnan(a[i - 1])):
+                d = a[i] - a[i - 1]
+                about_drift += (d - drift) ** 2
+                about_zero += d * d
+                steps += 1
+        if steps < 2:
+            continue
+        out[s, 0] = a[last]
+        out[s, 1] = a.shape[0] - 1 - last
+        out[s, 2] = drift
+        out[s, 3] = math.sqrt(about_drift / (steps - 1))
+        out[s, 4] = math.sqrt(about_zero / steps)
+        out[s, 5] = seen
+
+
+@njit(nogil=True, cache=True)
+def rows_by_series(values: np.ndarray, series: np.ndarray, level: float, out: np.ndarray) -> None:
+    """Per series, over the finite entries of its rows of ``values`` (rows x columns; rows
+    sorted by ``series``): their mean when ``level`` is negative, else the
+    ceil((m + 1) level)-th smallest of the m entries (the largest when there are too few),
+    the quantile split conformal prediction takes. NaN for a series with no entry."""
+    for s in range(out.shape[0]):
+        out[s] = math.nan
+    start = 0
+    rows = series.shape[0]
+    while start < rows:
+        stop = start
+        while stop < rows and series[stop] == series[start]:
+            stop += 1
+        chosen = values[start:stop].ravel()
+        chosen = chosen[np.isfinite(chosen)]
+        m = chosen.shape[0]
+        if m > 0:
+            if level < 0:
+                out[series[start]] = chosen.mean()
+            else:
+                rank = min(math.ceil((m + 1) * level), m)
+                out[series[start]] = np.sort(chosen)[rank - 1]
+        start = stop
+
+
+@njit(nogil=True, cache=True)
+def damped_run_serial(
+    adjusted: np.ndarray,
+    offsets: np.ndarray,
+    active: np.ndarray,
+    alpha: np.ndarray,
+    beta: np.ndarray,
+    phi: np.ndarray,
+    out: np.ndarray,
+) -> None:
+    """``damped_fit_serial`` with the parameters given per series instead of searched:
+    the same start, recursion and ``out`` columns."""
+    for s in range(offsets.shape[0] - 1):
+        _damped_fit_one(
+            adjusted, offsets, active, alpha[s : s + 1], beta[s : s + 1], phi[s : s + 1], out, s
+        )

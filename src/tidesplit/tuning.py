@@ -1,0 +1,56 @@
+"""Constants that tune the method or guard the work, in one place, each with its reason.
+
+The published method's own constants (the loess weight cut-offs of the reference
+routines, the default spans' rules) stay beside the code that follows the paper
+(``kernel/loess.py``, ``params.py``); these are our choices.
+"""
+
+from __future__ import annotations
+
+# The season span when none is given: common practice (the paper asks only for an odd
+# number of at least 7).
+DEFAULT_SEASON_SPAN = 13
+
+# Finite values beyond this magnitude are refused: sums of squares in the fits and in the
+# answers (variances, forecast errors) could overflow, which would give NaN with status ok.
+LARGEST_MAGNITUDE = 1e150
+
+# A series may have at most this many grid points per observed point once gaps are filled
+# (common practice guard against a stray time far from the rest).
+MAX_GROWTH = 10
+
+# An implied period is the first autocorrelation peak above this (and above the rough 95%
+# band 2 / sqrt(n)): common practice.
+PERIOD_PEAK_FLOOR = 0.3
+
+# The linear-map shortcut builds two n x n matrices per length and settings; it pays when a
+# group holds at least n / LINEAR_SHARE series (measured: building costs about as much as
+# applying to a quarter of n series), or when the matrices are already cached.
+LINEAR_SHARE = 4
+
+# DuckDB runs UDF calls (up to 2,048 series each) on its own threads, so a call normally
+# uses one thread. A call this large (a few very long series) is likely the only one in
+# flight, so it spreads its series over numba's threads instead.
+PARALLEL_POINTS = 1_000_000
+
+# tide_outliers (see unusual.unusual_points).
+# The stepwise test's significance: the chance that a series of pure Gaussian noise has any
+# point flagged (Rosner 1983 tabulates 0.05 and 0.01).
+DEFAULT_SIGNIFICANCE = 0.05
+# Candidates tested per series: one point in ten at most (the test needs an upper bound on
+# the number of outliers; ours, common practice: unusual points are by nature few).
+CANDIDATE_SHARE = 0.1
+# Points the robustness pass sets aside before the plain refit: weight below 0.01, that is
+# beyond about 0.95 of the bisquare's cut-off of 6 MAD (near 3.8 standard deviations
+# under Gaussian noise, so about one point in 7,000 of pure noise).
+SET_ASIDE_WEIGHT = 0.01
+# Refits at most: points are set aside again by the weights of each refit's remainder
+# until the set stops changing.
+SET_ASIDE_ROUNDS = 4
+NEIGHBOUR_REACH = 2  # neighbours each side whose median a remainder is judged against
+DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score; Iglewicz & Hoaglin (1993) suggest 3.5 (from memory)
+
+# tide_forecast (see forecast_ahead.forecast).
+# Earlier ends each series is forecast from, a cycle apart, to choose a method and
+# to check its intervals on the series' own past.
+ROLLING_ORIGINS = 24
