@@ -7,6 +7,7 @@ import os
 import random
 import subprocess
 import sys
+import tempfile
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -30,11 +31,17 @@ def fingerprint_sql(relation: str) -> str:
     return f"SELECT count(*), sum(hash(COLUMNS(*))::HUGEINT) FROM {relation}"
 
 
+# the runs' temporary folders go here, to check that none is left behind
+WORK = os.path.join(tempfile.gettempdir(), f"tidesplit-kill-tests-{os.getpid()}")
+ENVIRONMENT = {**os.environ, "TMPDIR": WORK}
+
+
 def start(arguments: list[str]) -> subprocess.Popen:
     return subprocess.Popen(
         [sys.executable, "-m", "tidesplit.cli", *arguments, "--quiet"],
         stdout=subprocess.DEVNULL,
         stderr=subprocess.DEVNULL,
+        env=ENVIRONMENT,
     )
 
 
@@ -44,6 +51,7 @@ def run_to_the_end(arguments: list[str]) -> None:
         capture_output=True,
         text=True,
         check=False,
+        env=ENVIRONMENT,
     )
     assert done.returncode == elt.EXIT_KEPT, done.stderr
 
@@ -57,6 +65,7 @@ def kill_at_random_moments(
     """Run ``arguments + BEFORE`` to the end, then ``arguments + KILLED`` killed ``KILLS``
     times at random moments of a run's length, checking the output after each kill; then
     once to the end. Returns how the kills fell."""
+    os.makedirs(WORK, exist_ok=True)
     started = time.perf_counter()
     run_to_the_end([*arguments, *KILLED])
     length = time.perf_counter() - started
@@ -85,6 +94,8 @@ def kill_at_random_moments(
     run_to_the_end([*arguments, *KILLED])
     assert fingerprint() == after
     assert leftovers() == []
+    assert os.listdir(WORK) == []  # the killed runs' temporary folders are cleared too
+    os.rmdir(WORK)
     return fell
 
 

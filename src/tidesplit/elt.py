@@ -348,7 +348,8 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
     from .endpoints import literal, open_source, open_target, quoted, stream_postgres
 
     settings = job.checked()
-    work = tempfile.mkdtemp(prefix="tidesplit-job-")
+    _clear_killed_work()
+    work = tempfile.mkdtemp(prefix=f"{WORK_PREFIX}{os.getpid()}-")
     con = tidesplit.connect()
     target, opened = None, False
     try:
@@ -434,6 +435,27 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
             target.abort()
         con.close()
         shutil.rmtree(work, ignore_errors=True)
+
+
+WORK_PREFIX = "tidesplit-job-"
+
+
+def _clear_killed_work() -> None:
+    """Remove the temporary folders of runs that were killed (their process is gone):
+    the batch files of a large source would otherwise stay behind."""
+    folder = tempfile.gettempdir()
+    for name in os.listdir(folder):
+        if not name.startswith(WORK_PREFIX):
+            continue
+        pid = name[len(WORK_PREFIX) :].split("-", 1)[0]
+        if not pid.isdigit():
+            continue
+        try:
+            os.kill(int(pid), 0)
+        except ProcessLookupError:
+            shutil.rmtree(os.path.join(folder, name), ignore_errors=True)
+        except PermissionError:
+            pass  # another user's live process
 
 
 def _status_sql(job: Job) -> str:
