@@ -3,15 +3,35 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from collections.abc import Sequence
 
-DEMO_SQL = """
-CREATE OR REPLACE TABLE weekly_split AS
-SELECT * FROM tide_split(weekly_units, ['shop', 'product'], 'week', 'units',
-                         period := 52, robust := true, transform := 'log')
-""".strip()
+# The demo's two jobs, as a user would type them (the folder and database filled in).
+DEMO_WEEKLY = [
+    "split", "--from", "{folder}/weekly_units.parquet", "--to", "{database}:weekly_split",
+    "--key", "shop", "--key", "product", "--time", "week", "--value", "units",
+    "--period", "52", "--robust", "--transform", "log",
+]  # fmt: skip
+DEMO_HOURLY = [
+    "split", "--from", "{folder}/hourly_loads.parquet", "--to", "{database}:hourly_split",
+    "--key", "meter", "--time", "reading_at", "--value", "kwh", "--periods", "", "--fill-gaps",
+]  # fmt: skip
+
+
+def _demo_job(template: list[str], folder: str, database: str) -> tuple[list[str], float]:
+    """Run one of the demo's jobs through the command line; its arguments and seconds."""
+    import shlex
+
+    argv = [part.format(folder=folder, database=database) for part in template]
+    print("  tidesplit " + " ".join(shlex.quote(part) for part in argv) + "\n")
+    started = time.perf_counter()
+    code = main(argv)
+    if code != 0:
+        raise SystemExit(code)
+    return argv, time.perf_counter() - started
+
 
 STRENGTH_SQL = """
 SELECT product,
@@ -37,28 +57,56 @@ def _ends(rows: list[tuple], each: int = 3) -> list[tuple]:
 
 
 def run_demo(database: str | None, shops: int, products: int, years: int) -> None:
-    """Build the invented shop-sales table, split every series in one query, summarise."""
+    """Write the invented shop sales to Parquet, split every series with ``tidesplit
+    split`` into a DuckDB file as a scheduled job would, and summarise."""
+    import shutil
+    import tempfile
+
+    import pyarrow.parquet as pq
+
     import tidesplit
+    from tidesplit.examples.meter_loads import hourly_loads
     from tidesplit.examples.retail_chain import weekly_units
 
-    table = weekly_units(shops=shops, products=products, years=years)
-    con = tidesplit.connect(database)
-    con.register("__demo_units", table)
-    con.execute("CREATE OR REPLACE TABLE weekly_units AS SELECT * FROM __demo_units")
-    con.unregister("__demo_units")
-    series = shops * products
-    print(
-        f"Lantern Lane Grocers (invented): {shops} shops x {products} products, "
-        f"{years} years of weekly units = {table.num_rows:,} rows in table weekly_units."
-    )
-    print("\nSplitting every series in one query (the first run compiles the kernel):\n")
-    print("  " + DEMO_SQL.replace("\n", "\n  "))
-    started = time.perf_counter()
-    con.execute(DEMO_SQL)
-    elapsed = time.perf_counter() - started
-    rows_out = con.sql("SELECT count(*) FROM weekly_split").fetchall()[0][0]
-    print(f"\n{series:,} series, {rows_out:,} rows back (one per input row) in {elapsed:.2f} s.")
+    scratch = tempfile.mkdtemp(prefix="tidesplit-demo-")
+    try:
+        folder = os.path.dirname(os.path.abspath(database)) if database else scratch
+        database = database or os.path.join(scratch, "demo.duckdb")
+        table = weekly_units(shops=shops, products=products, years=years)
+        pq.write_table(table, os.path.join(folder, "weekly_units.parquet"))
+        series = shops * products
+        print(
+            f"Lantern Lane Grocers (invented): {shops} shops x {products} products, "
+            f"{years} years of weekly units = {table.num_rows:,} rows in "
+            f"{folder}/weekly_units.parquet."
+        )
+        print("\nSplitting every series with the command line (the first run compiles "
+              "the kernel):\n")  # fmt: skip
+        _, elapsed = _demo_job(DEMO_WEEKLY, folder, database)
+        loads = hourly_loads()
+        pq.write_table(loads, os.path.join(folder, "hourly_loads.parquet"))
+        con = tidesplit.connect(database)
+        for name in ("weekly_units", "hourly_loads"):  # the inputs beside the answers
+            con.execute(
+                f"CREATE OR REPLACE TABLE {name} AS "
+                f"SELECT * FROM read_parquet('{folder}/{name}.parquet')"
+            )
+        rows_out = con.sql("SELECT count(*) FROM weekly_split").fetchall()[0][0]
+        print(
+            f"\n{series:,} series, {rows_out:,} rows back (one per input row) in "
+            f"{elapsed:.2f} s (with the start of the job)."
+        )
+        _weekly_summary(con)
+        con.close()
+        _hourly_demo(folder, database, loads.num_rows)
+        where = database if scratch not in database else "a temporary database"
+        print(f"\nTables weekly_units, weekly_split, hourly_loads and hourly_split are in {where}.")
+    finally:
+        shutil.rmtree(scratch, ignore_errors=True)
 
+
+def _weekly_summary(con: object) -> None:
+    """What the weekly split shows: strengths, the data-entry slip, the closed week."""
     _print_rows(
         "Most and least seasonal products (tide_profile's strengths, 0..1, mean over shops):",
         _ends(con.sql(STRENGTH_SQL).fetchall()),
@@ -84,33 +132,18 @@ def run_demo(database: str | None, shops: int, products: int, years: int) -> Non
         closed,
         ("shop", "week", "rows", "with trend", "with remainder"),
     )
-    _hourly_demo(con)
-    where = database or "an in-memory database"
-    print(f"\nTables weekly_units, weekly_split, hourly_loads and hourly_split are in {where}.")
 
 
-HOURLY_SQL = """
-CREATE OR REPLACE TABLE hourly_split AS
-SELECT * FROM tide_split_multi(hourly_loads, 'meter', 'reading_at', 'kwh', fill_gaps := true)
-""".strip()
-
-
-def _hourly_demo(con: object) -> None:
+def _hourly_demo(folder: str, database: str, readings: int) -> None:
     """Two cycles and gaps: hourly meter loads through tide_split_multi."""
-    from tidesplit.examples.meter_loads import hourly_loads
+    import tidesplit
 
-    table = hourly_loads()
-    con.register("__demo_loads", table)
-    con.execute("CREATE OR REPLACE TABLE hourly_loads AS SELECT * FROM __demo_loads")
-    con.unregister("__demo_loads")
     print(
-        f"\nBrackwater Energy Cooperative (invented): {table.num_rows:,} hourly readings "
+        f"\nBrackwater Energy Cooperative (invented): {readings:,} hourly readings "
         "with holes. Two cycles (day and week) are implied by the hourly step:\n"
     )
-    print("  " + HOURLY_SQL.replace("\n", "\n  "))
-    started = time.perf_counter()
-    con.execute(HOURLY_SQL)
-    elapsed = time.perf_counter() - started
+    _, elapsed = _demo_job(DEMO_HOURLY, folder, database)
+    con = tidesplit.connect(database)
     rows = con.sql(
         "SELECT meter, count(*) FILTER (WHERE inserted) AS hours_inserted, "
         "round(max(tide_part(seasonal_by_period, 24)) "
@@ -119,6 +152,7 @@ def _hourly_demo(con: object) -> None:
         "- min(tide_part(seasonal_by_period, 168)), 1) AS week_swing "
         "FROM hourly_split GROUP BY meter ORDER BY meter"
     ).fetchall()
+    con.close()
     _print_rows(
         f"Split in {elapsed:.2f} s; the gaps came back as inserted hours (kWh swing per cycle):",
         rows,
@@ -265,6 +299,9 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
         "key under several spans (--spans), and a self-contained HTML report (--report). "
         "Pictures are PNG or SVG by the file name. Keys are named by their values joined "
         "by ' / ' (for example 'Quayside / sun cream').",
+        epilog="example:\n  tidesplit draw demo.duckdb --table weekly_units --key shop "
+        "--key product \\\n    --time week --value units --period 52 --fleet fleet.png",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     draw.add_argument("source", help="a DuckDB database file (with --table) or a Parquet file")
     draw.add_argument("--table", help="the table or view to read from a DuckDB file")
@@ -310,11 +347,275 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
     draw.add_argument("--listed", type=int, help="keys listed in the report (default 5000)")
 
 
-COMMANDS = ("demo", "draw")
+# ----------------------------------------------------------------- split, profile, ...
+
+EXAMPLES = {
+    "split": "tidesplit split --from lake/sales/ --to warehouse.duckdb:sales_split \\\n"
+    "    --key store --key sku --time month --value units --period 12 --robust \\\n"
+    "    --transform log --report split.json",
+    "profile": "tidesplit profile --from 'lake/sales/*.parquet' --to profiles.parquet \\\n"
+    "    --key store --key sku --time month --value units --period 12",
+    "outliers": "tidesplit outliers --from postgresql://etl@db:5432/shop --from-table sales \\\n"
+    "    --to unusual.parquet --key sku --time month --value units --rule mad",
+    "forecast": "tidesplit forecast --from warehouse.duckdb:sales \\\n"
+    "    --to postgresql://etl@db/shop --to-table sales_ahead \\\n"
+    "    --key sku --time month --value units --steps-ahead 6",
+}
+WHAT = {
+    "split": "trend, seasonal and remainder of every series, one row per input row "
+    "(tide_split; tide_split_multi with --periods)",
+    "profile": "one row per series: strengths, peak and trough, status (tide_profile)",
+    "outliers": "the unusual rows of every series (tide_outliers)",
+    "forecast": "future rows of every series with intervals (tide_forecast)",
+}
+# Settings of a run besides the SQL function's arguments: (option, job-file name, help).
+PLACES = (
+    (
+        "--from",
+        "from",
+        "the source: a Parquet file, glob or (hive-partitioned) folder, a "
+        "CSV file, FILE.duckdb:TABLE, or a postgresql:// address with --from-table/--from-query",
+    ),
+    (
+        "--to",
+        "to",
+        "the target: FILE.parquet, a folder (with --partition-by COLUMN or not), "
+        "FILE.duckdb:TABLE, or a postgresql:// address with --to-table",
+    ),
+    ("--from-table", "from_table", "the table (or view) to read from PostgreSQL"),
+    ("--from-query", "from_query", "a query to read from PostgreSQL instead of a table"),
+    ("--to-table", "to_table", "the table to write in PostgreSQL"),
+    ("--time", "time", "the time column"),
+    ("--value", "value", "the value column"),
+    (
+        "--partition-by",
+        "partition_by",
+        "a key or answer column to partition a folder target by (hive style: COLUMN=VALUE folders)",
+    ),
+    (
+        "--report",
+        "report",
+        "write what the run did (the last line's figures, the exit code, "
+        "the bad keys and why) to this JSON file",
+    ),
+)
+
+
+def _whole(text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a whole number, not {text!r}") from None
+
+
+def _is_list(argument: object) -> bool:
+    from . import arguments
+
+    return arguments.SQL_TYPES[argument.kind].endswith("[]")
+
+
+def _option_type(argument: object) -> object:
+    """How an option's text becomes the value its kind holds (lists: comma-separated);
+    the registry checks the value after."""
+    from . import arguments
+
+    whole = argument.kind in (arguments.WHOLE, arguments.WHOLE_LIST)
+    if _is_list(argument):
+        one = _whole if whole else float
+
+        def comma_list(text: str) -> list:
+            return [one(part.strip()) for part in text.split(",") if part.strip()]
+
+        return comma_list
+    if argument.kind == arguments.TEXT:
+        return str
+    return _whole if whole else float
+
+
+def _default_help(argument: object, function: str) -> str:
+    if argument.default_text:
+        return argument.default_text
+    default = argument.default_in(function)
+    return str(default).lower() if isinstance(default, bool) else str(default)
+
+
+def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None:
+    """One answer command; its function arguments are written from the registry."""
+    from . import arguments
+    from .elt import COMMANDS, EXIT_CODES, options_of
+
+    exits = "\n".join(f"  {code}  {words}" for code, words in sorted(EXIT_CODES.items()))
+    parser = commands.add_parser(
+        command,
+        help=WHAT[command],
+        description=f"Answer every series of a source with tide_{COMMANDS[command][0]}: "
+        f"{WHAT[command]}. Keys are processed in batches (by a hash of the key), so memory "
+        "follows --batch-rows, not the table; the target is replaced only when the whole "
+        "run has succeeded.",
+        epilog=f"example:\n  {EXAMPLES[command]}\n\nexit codes:\n{exits}",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    places = parser.add_argument_group("source, target and columns")
+    for option, name, words in PLACES[:2]:
+        places.add_argument(option, dest=name, metavar="ADDRESS", help=words)
+    places.add_argument(
+        "--key", action="append", dest="key", help="a key column; repeat for several"
+    )
+    for option, name, words in PLACES[2:]:
+        places.add_argument(option, dest=name, help=words)
+    run = parser.add_argument_group("the run")
+    run.add_argument(
+        "--job",
+        metavar="FILE.toml",
+        help="take the settings from a job file "
+        "(the option names with _ for -); options given here override it",
+    )
+    run.add_argument(
+        "--batch-rows",
+        dest="batch_rows",
+        type=_whole,
+        help="rows per batch of keys (default 2,000,000): what bounds memory",
+    )
+    run.add_argument(
+        "--quiet", action="store_true", default=None, help="no progress bar and no last line"
+    )
+    named = parser.add_argument_group(
+        f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
+    )
+    for argument in options_of(command):
+        function = next(f for f in COMMANDS[command] if f in argument.functions)
+        words = f"{argument.meaning} (default: {_default_help(argument, function)})"
+        words = words.replace("%", "%%")
+        option = "--" + argument.name.replace("_", "-")
+        if argument.kind == arguments.FLAG:
+            named.add_argument(
+                option,
+                dest=argument.name,
+                default=None,
+                action=argparse.BooleanOptionalAction,
+                help=words,
+            )
+            continue
+        named.add_argument(
+            option,
+            dest=argument.name,
+            type=_option_type(argument),
+            choices=argument.choices or None,
+            metavar="N,N" if _is_list(argument) else None,
+            help=words,
+        )
+    parser.set_defaults(job_command=command)
+
+
+_RUN_SETTINGS = ("from", "to", "from_table", "from_query", "to_table", "key", "time",
+                 "value", "partition_by", "report", "batch_rows", "quiet")  # fmt: skip
+
+
+def read_job_file(path: str, command: str) -> dict[str, object]:
+    """The settings of a TOML job file, checked by name (the nearest known name is
+    suggested for an unknown one)."""
+    import difflib
+    import tomllib
+
+    from .elt import options_of
+    from .errors import ParamError
+
+    try:
+        with open(path, "rb") as handle:
+            settings = tomllib.load(handle)
+    except OSError as error:
+        raise ParamError(f"cannot read the job file {path}: {error}") from error
+    except tomllib.TOMLDecodeError as error:
+        raise ParamError(f"job file {path}: {error}") from error
+    known = [*_RUN_SETTINGS, *(a.name for a in options_of(command))]
+    for name in settings:
+        if name not in known:
+            near = difflib.get_close_matches(name, known, n=1)
+            hint = f"; did you mean {near[0]}?" if near else ""
+            raise ParamError(f"job file {path}: unknown setting {name} of {command}{hint}")
+    if isinstance(settings.get("key"), str):
+        settings["key"] = [settings["key"]]
+    return settings
+
+
+def run_job(args: argparse.Namespace) -> int:
+    """Merge the job file and the options, run, print the last line; the exit code."""
+    from . import elt
+    from .errors import ParamError
+
+    command = args.job_command
+    given = {n: v for n, v in vars(args).items() if v is not None}
+    try:
+        settings = read_job_file(args.job, command) if args.job else {}
+        settings.update(
+            {n: v for n, v in given.items() if n not in ("command", "job", "job_command")}
+        )
+        missing = [n for n in ("from", "to", "key", "time", "value") if not settings.get(n)]
+        if missing:
+            raise ParamError(
+                "missing " + ", ".join("--" + n for n in missing) + " (here or in --job)"
+            )
+        for name in (
+            "from",
+            "to",
+            "time",
+            "value",
+            "from_table",
+            "from_query",
+            "to_table",
+            "partition_by",
+            "report",
+        ):
+            if name in settings and not isinstance(settings[name], str):
+                raise ParamError(f"{name} must be text, got {settings[name]!r}")
+        keys = settings["key"]
+        if not isinstance(keys, list) or not all(isinstance(k, str) for k in keys):
+            raise ParamError(f"key must be a column name or a list of them, got {keys!r}")
+        named = {a.name for a in elt.options_of(command)}
+        job = elt.Job(
+            command,
+            settings["from"],
+            settings["to"],
+            keys,
+            settings["time"],
+            settings["value"],
+            given={n: v for n, v in settings.items() if n in named},
+            source_table=settings.get("from_table"),
+            source_query=settings.get("from_query"),
+            target_table=settings.get("to_table"),
+            partition_by=settings.get("partition_by"),
+            batch_rows=settings.get("batch_rows", elt.DEFAULT_BATCH_ROWS),
+            report=settings.get("report"),
+        )
+    except ParamError as error:
+        print(f"tidesplit {command}: {error}", file=sys.stderr)
+        return elt.EXIT_BAD_ARGUMENTS
+    quiet = bool(settings.get("quiet"))
+    outcome = elt.run(job, show_progress=not quiet)
+    if outcome.message:
+        print(f"tidesplit {command}: {outcome.message}", file=sys.stderr)
+    if not quiet:
+        print(outcome.line())
+    return outcome.exit_code
+
+
+COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tidesplit`` command."""
+    args = build_parser().parse_args(argv)
+    if args.command == "demo":
+        run_demo(args.database, args.shops, args.products, args.years)
+    elif args.command == "draw":
+        run_draw(args)
+    else:
+        return run_job(args)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The parser of every command."""
     parser = argparse.ArgumentParser(
         prog="tidesplit", description="Seasonal-trend decomposition of keyed series in DuckDB."
     )
@@ -322,20 +623,22 @@ def main(argv: Sequence[str] | None = None) -> int:
     demo = commands.add_parser(
         "demo",
         help="split an invented shop-sales table and print a summary",
-        description="Build an invented table of weekly unit sales, split every series with "
-        "one tide_split query, and print what came out.",
+        description="Build an invented table of weekly unit sales, write it to Parquet, "
+        "split every series with tidesplit split (the tide_split query on batches of keys) "
+        "into a DuckDB file, and print what came out.",
+        epilog="example:\n  tidesplit demo --database demo.duckdb",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    demo.add_argument("--database", help="DuckDB file to keep the tables in (default: memory)")
+    demo.add_argument(
+        "--database", help="DuckDB file to keep the tables in (default: a temporary one)"
+    )
     demo.add_argument("--shops", type=int, default=12, help="number of shops (default 12)")
     demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
     demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")
     _add_draw(commands)
-    args = parser.parse_args(argv)
-    if args.command == "demo":
-        run_demo(args.database, args.shops, args.products, args.years)
-    elif args.command == "draw":
-        run_draw(args)
-    return 0
+    for command in COMMANDS[2:]:
+        _add_job_command(commands, command)
+    return parser
 
 
 if __name__ == "__main__":
