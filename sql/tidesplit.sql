@@ -3,16 +3,16 @@
 
 -- Any time column as a sortable BIGINT: integers as they are, dates and timestamps as
 -- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ). Other types are refused by name.
-CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
-    (t TIMESTAMP) AS epoch_us(t),
-    (t TIMESTAMPTZ) AS epoch_us(t),
-    (t DATE) AS epoch_us(t),
-    (t VARCHAR) AS error('the time column holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
-    (t DOUBLE) AS error('the time column holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t HUGEINT) AS error('the time column holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t TIME) AS error('the time column holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t INTERVAL) AS error('the time column holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
-    (t BOOLEAN) AS error('the time column holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
+CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT, name) AS t,
+    (t TIMESTAMP, name) AS epoch_us(t),
+    (t TIMESTAMPTZ, name) AS epoch_us(t),
+    (t DATE, name) AS epoch_us(t),
+    (t VARCHAR, name) AS error('the time column "' || name || '" holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
+    (t DOUBLE, name) AS error('the time column "' || name || '" holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t HUGEINT, name) AS error('the time column "' || name || '" holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t TIME, name) AS error('the time column "' || name || '" holds times of day without a date; give DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t INTERVAL, name) AS error('the time column "' || name || '" holds intervals; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
+    (t BOOLEAN, name) AS error('the time column "' || name || '" holds true/false; give integers, DATE, TIMESTAMP or TIMESTAMPTZ');
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
 CREATE OR REPLACE TEMP MACRO __tide_time_from_code(c, sample BIGINT) AS c,
@@ -69,7 +69,7 @@ CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value) AS TABLE
 WITH __src AS (
     SELECT struct_pack(*COLUMNS(keys)) AS __key,
            struct_pack(COLUMNS([time])) AS __time_row,
-           __tide_time_code(COLUMNS([time])) AS __time_code,
+           __tide_time_code(COLUMNS([time]), time) AS __time_code,
            struct_pack(COLUMNS([value])) AS __value_row,
            CAST(COLUMNS([value]) AS DOUBLE) AS __value
     FROM query_table(tbl)

@@ -226,11 +226,11 @@ def test_split_estimates_a_missing_period():
 @pytest.mark.parametrize(
     ("column", "words"),
     [
-        ("CAST(i AS VARCHAR)", "the time column holds text"),
-        ("CAST(i AS DOUBLE)", "the time column holds fractional numbers"),
-        ("make_time(i % 24, 0, 0)", "the time column holds times of day without a date"),
-        ("to_hours(i)", "the time column holds intervals"),
-        ("i % 2 = 0", "the time column holds true/false"),
+        ("CAST(i AS VARCHAR)", 'the time column "t" holds text'),
+        ("CAST(i AS DOUBLE)", 'the time column "t" holds fractional numbers'),
+        ("make_time(i % 24, 0, 0)", 'the time column "t" holds times of day without a date'),
+        ("to_hours(i)", 'the time column "t" holds intervals'),
+        ("i % 2 = 0", 'the time column "t" holds true/false'),
     ],
 )
 def test_a_time_column_of_another_type_is_refused_by_name(con, column, words):

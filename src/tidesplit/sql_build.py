@@ -91,10 +91,20 @@ _TIME_REFUSALS = (
 )  # fmt: skip
 
 
-def _time_refusals(lead: str) -> str:
-    return ",\n".join(
-        f"    ({lead} {sql_type}) AS error('{message}')" for sql_type, message in _TIME_REFUSALS
-    )
+def _time_refusals(lead: str, named: bool) -> str:
+    """One overload per refused type; with ``named``, the message names the column."""
+    overloads = []
+    for sql_type, message in _TIME_REFUSALS:
+        text = (
+            "'" + message.replace("the time column", "the time column \"' || name || '\"") + "'"
+            if named
+            else f"'{message}'"
+        )
+        overloads.append(
+            f"    ({lead} {sql_type}, {'name' if named else ''}".rstrip(", ")
+            + f") AS error({text})"
+        )
+    return ",\n".join(overloads)
 
 
 def udf_arguments(udf: str) -> tuple[Argument, ...]:
@@ -166,10 +176,10 @@ _LEAD_CALL = (
 HELPERS = """\
 -- Any time column as a sortable BIGINT: integers as they are, dates and timestamps as
 -- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ). Other types are refused by name.
-CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT) AS t,
-    (t TIMESTAMP) AS epoch_us(t),
-    (t TIMESTAMPTZ) AS epoch_us(t),
-    (t DATE) AS epoch_us(t),
+CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT, name) AS t,
+    (t TIMESTAMP, name) AS epoch_us(t),
+    (t TIMESTAMPTZ, name) AS epoch_us(t),
+    (t DATE, name) AS epoch_us(t),
 {time_refusals};
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
@@ -211,7 +221,7 @@ CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value) AS TABLE
 WITH __src AS (
     SELECT struct_pack(*COLUMNS(keys)) AS __key,
            struct_pack(COLUMNS([time])) AS __time_row,
-           __tide_time_code(COLUMNS([time])) AS __time_code,
+           __tide_time_code(COLUMNS([time]), time) AS __time_code,
            struct_pack(COLUMNS([value])) AS __value_row,
            CAST(COLUMNS([value]) AS DOUBLE) AS __value
     FROM query_table(tbl)
@@ -327,8 +337,8 @@ def render() -> str:
         "-- The SQL functions of tidesplit, loaded by tidesplit.register().\n"
         "-- Written by tidesplit/sql_build.py from the argument registry; do not edit by hand.\n",
         HELPERS.replace("{kind_checks}", _KIND_CHECKS)
-        .replace("{time_refusals}", _time_refusals("t"))
-        .replace("{time_refusals_from}", _time_refusals("c, sample")),
+        .replace("{time_refusals}", _time_refusals("t", named=True))
+        .replace("{time_refusals_from}", _time_refusals("c, sample", named=False)),
         _split_list(),
         _split_keys(),
         "-- One key column by name, or a list of them (exact names, not patterns). Arguments\n"
