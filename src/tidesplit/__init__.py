@@ -62,6 +62,19 @@ def __getattr__(name: str) -> Any:
 def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnection:
     """A DuckDB connection with every ``tide_*`` function registered.
 
+    Parameters
+    ----------
+    database : str, optional
+        A DuckDB file; an in-memory database when left out.
+    **kwargs
+        Passed to ``duckdb.connect``.
+
+    Returns
+    -------
+    duckdb.DuckDBPyConnection
+
+    Examples
+    --------
     >>> connect().sql("SELECT 2").fetchall()
     [(2,)]
     """
@@ -73,6 +86,21 @@ def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnec
 def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb.DuckDBPyConnection:
     """Register the ``tide_*`` functions on an existing DuckDB connection (idempotent).
 
+    Parameters
+    ----------
+    con : duckdb.DuckDBPyConnection
+        The connection, or a cursor of one (each cursor needs its own call: DuckDB's
+        temporary macros live on one connection; the UDFs are shared and made once).
+    replace : bool
+        Make the UDFs again even where they exist.
+
+    Returns
+    -------
+    duckdb.DuckDBPyConnection
+        ``con``, for chaining.
+
+    Examples
+    --------
     >>> import duckdb
     >>> register(duckdb.connect()).sql("SELECT 3").fetchall()
     [(3,)]

@@ -63,6 +63,17 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
         ``periods=[24, 168]`` for several seasonal periods (MSTL) with ``season_spans``
         and ``iterations``.
 
+    Returns
+    -------
+    Split
+        The components (``seasonal_parts`` by period with several), the period and the
+        Box-Cox lambda used.
+
+    Notes
+    -----
+    STL after Cleveland, Cleveland, McRae & Terpenning (1990); MSTL after Bandara,
+    Hyndman & Bergmeir (2021). The series raises ``SplitError`` when it cannot be split.
+
     Examples
     --------
     >>> y = [10, 14, 9, 7, 11, 15, 10, 8, 12, 16, 11, 9]
@@ -216,14 +227,48 @@ def _settings(function: str, period: int | None, given: dict[str, Any]) -> dict[
     return arguments.accept(function, given if period is None else {"period": period, **given})
 
 
-def _signed(function: Any, *functions: str) -> Any:
-    """Give a public function the signature its arguments make in the registry."""
+_TABLE_PARAMETERS = """\
+    Parameters
+    ----------
+    data : pandas.DataFrame or pyarrow.Table
+        The keyed table; other columns are left out of the answer.
+    key : str or sequence of str
+        The key column(s), exact names; NULL keys form a group of their own.
+    time : str
+        An integer, date or timestamp column (README, "Time columns").
+    value : str
+        The numbers to split; NULL and NaN are missing values.
+    period : int, optional
+        Points per seasonal cycle; implied by the time step when left out.
+    **given
+        Every other argument, by name (Other Parameters).
+
+    Returns
+    -------
+    pandas.DataFrame
+        The key column(s), then the columns of ``answers.{columns}``, in that order.
+"""
+
+
+def _signed(function: Any, functions: tuple[str, ...], columns: str, notes: str) -> Any:
+    """Give a public function the signature and the numpydoc sections its arguments and
+    its answer's columns make, from the registry and ``answers``."""
     lead = [
         inspect.Parameter(name, inspect.Parameter.POSITIONAL_OR_KEYWORD)
         for name in ("data", "key", "time", "value")
     ]
     lead.append(inspect.Parameter("period", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None))
     function.__signature__ = arguments.signature(functions, lead)
+    sections = (
+        _TABLE_PARAMETERS.format(columns=columns)
+        + "\n"
+        + arguments.numpydoc_section(functions)
+        + "\n\n    Notes\n    -----\n"
+        + notes
+        + "\n\n"
+    )
+    head, examples = function.__doc__.split("    Examples\n", 1)
+    function.__doc__ = head + sections + "    Examples\n" + examples
     return function
 
 
@@ -541,8 +586,40 @@ def audit(
     return out
 
 
-_signed(split_table, SPLIT, SPLIT_MULTI)
-_signed(profile, PROFILE)
-_signed(outliers, OUTLIERS)
-_signed(forecast, FORECAST)
-_signed(audit, AUDIT)
+_signed(
+    split_table,
+    (SPLIT, SPLIT_MULTI),
+    "SPLIT_COLUMNS",
+    "    STL as published by Cleveland, Cleveland, McRae & Terpenning (1990), with the\n"
+    "    reference routines' details; several periods by MSTL (Bandara, Hyndman & Bergmeir\n"
+    "    2021). With several periods, one ``seasonal_period_<p>`` column per period stands\n"
+    "    for SQL's ``seasonal_by_period``.",
+)
+_signed(
+    profile,
+    (PROFILE,),
+    "PROFILE_COLUMNS",
+    "    Strengths of trend and season after Wang, Smith & Hyndman (2006).",
+)
+_signed(
+    outliers,
+    (OUTLIERS,),
+    "OUTLIERS_COLUMNS",
+    "    The stepwise rule tests departures from the neighbours by Rosner's (1983)\n"
+    "    generalized extreme Studentized deviate procedure (README, tide_outliers).",
+)
+_signed(
+    forecast,
+    (FORECAST,),
+    "FORECAST_COLUMNS",
+    "    The damped trend is Gardner & McKenzie's (1985); the intervals are scaled by the\n"
+    "    series' own rolling-origin errors as split conformal prediction does (Vovk,\n"
+    "    Gammerman & Shafer 2005).",
+)
+_signed(
+    audit,
+    (AUDIT,),
+    "AUDIT_COLUMNS",
+    "    The reference is statsmodels' ``STL`` (a port of the authors' reference routines)\n"
+    "    or ``MSTL``.",
+)

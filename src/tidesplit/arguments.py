@@ -431,6 +431,41 @@ def signature(functions: tuple[str, ...], lead: list[inspect.Parameter]) -> insp
     return inspect.Signature([*lead, *named.values()])
 
 
+def default_words(argument: Argument) -> str:
+    """How README and help texts state an argument's default.
+
+    >>> default_words(next(a for a in REGISTRY if a.name == "robust"))
+    'false, true in tide_outliers'
+    """
+    return _default_words(argument)
+
+
+def numpydoc_section(
+    functions: tuple[str, ...], skip: tuple[str, ...] = ("period",), indent: str = "    "
+) -> str:
+    """An "Other Parameters" docstring section of every argument of ``functions`` (but
+    ``skip``, which the function's own Parameters describe).
+
+    >>> numpydoc_section(("forecast",)).splitlines()[2].strip()
+    'periods : list of whole numbers, optional'
+    """
+    lines = [f"{indent}Other Parameters", f"{indent}----------------"]
+    seen: set[str] = set(skip)
+    for function in functions:
+        for a in of(function):
+            if a.name in seen:
+                continue
+            seen.add(a.name)
+            meaning = a.meaning.replace("`", "``")
+            if a.choices:
+                meaning += f" (one of {', '.join(repr(c) for c in a.choices)})"
+            if a.most is not None:
+                meaning += f"; at most {a.most:,.0f}"
+            lines.append(f"{indent}{a.name} : {a.kind}, optional")
+            lines.append(f"{indent}    {meaning}. Default: {_default_words(a).replace('`', '')}.")
+    return "\n".join(lines)
+
+
 def _default_words(argument: Argument) -> str:
     if argument.default_text:
         return argument.default_text
