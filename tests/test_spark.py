@@ -358,3 +358,43 @@ def test_python_front_is_the_same_batch_path(spark):
     remote = tide_spark.profile(spark.createDataFrame(table), "k", "t", "v", period=12)
     remote = remote.toArrow().sort_by("k").column("strength_of_season").to_numpy()
     np.testing.assert_allclose(remote, local["strength_of_season"], rtol=TOLERANCE)
+
+
+def test_the_command_line_runs_a_job_on_spark(spark, tmp_path):
+    # the same job on DuckDB and on Spark: the same rows and numbers, exit codes alike
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from tidesplit import cli
+
+    t = np.arange(48)
+    keys = [f"s{k}" for k in range(30)]
+    table = pa.table(
+        {
+            "k": np.repeat([*keys, "short"], [48] * 30 + [5]),
+            "t": np.concatenate([np.tile(t, 30), np.arange(5)]),
+            "v": np.concatenate(
+                [10 + k + np.sin(2 * np.pi * t / 4) + 0.01 * t for k in range(30)] + [np.ones(5)]
+            ),
+        }
+    )
+    source = tmp_path / "in.parquet"
+    pq.write_table(table, source)
+    common = ["--from", str(source), "--key", "k", "--time", "t", "--value", "v"]
+    common += ["--period", "4", "--on-error", "keep", "--quiet"]
+    on_duckdb = tmp_path / "duckdb.parquet"
+    on_spark = tmp_path / "spark.parquet"
+    assert cli.main(["split", *common, "--to", str(on_duckdb)]) == 3  # kept a bad key
+    assert cli.main(["split", *common, "--to", str(on_spark), "--engine", "spark"]) == 3
+    mine = pq.read_table(on_spark).to_pandas().sort_values(["k", "t"]).reset_index(drop=True)
+    theirs = pq.read_table(on_duckdb).to_pandas().sort_values(["k", "t"]).reset_index(drop=True)
+    assert list(mine.columns) == list(theirs.columns) and len(mine) == len(theirs) == 1445
+    for column in ("trend", "seasonal", "remainder"):
+        np.testing.assert_allclose(mine[column], theirs[column], rtol=1e-12, atol=1e-12)
+    assert (mine["status"] == theirs["status"]).all()
+    # a run again replaces the file whole; a database source is refused with exit code 2
+    assert cli.main(["split", *common, "--to", str(on_spark), "--engine", "spark"]) == 3
+    assert len(pq.read_table(on_spark)) == 1445
+    refused = ["split", "--from", str(tmp_path / "w.duckdb") + ":sales", "--to", str(on_spark)]
+    refused += ["--key", "k", "--time", "t", "--value", "v", "--engine", "spark", "--quiet"]
+    assert cli.main(refused) == 2

@@ -479,6 +479,12 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
     run.add_argument(
         "--quiet", action="store_true", default=None, help="no progress bar and no last line"
     )
+    run.add_argument(
+        "--engine",
+        choices=("duckdb", "spark"),
+        help="where the series are split (default duckdb); spark reads Parquet or CSV with "
+        "Spark, splits the keys on its executors (tidesplit.spark) and writes Parquet",
+    )
     named = parser.add_argument_group(
         f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
     )
@@ -565,6 +571,7 @@ def run_job(args: argparse.Namespace) -> int:
             "to_table",
             "partition_by",
             "report",
+            "engine",
         ):
             if name in settings and not isinstance(settings[name], str):
                 raise ParamError(f"{name} must be text, got {settings[name]!r}")
@@ -586,6 +593,7 @@ def run_job(args: argparse.Namespace) -> int:
             partition_by=settings.get("partition_by"),
             batch_rows=settings.get("batch_rows", elt.DEFAULT_BATCH_ROWS),
             report=settings.get("report"),
+            engine=settings.get("engine", "duckdb"),
         )
     except ParamError as error:
         print(f"tidesplit {command}: {error}", file=sys.stderr)

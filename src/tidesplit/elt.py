@@ -113,6 +113,7 @@ class Job:
     partition_by: str | None = None
     batch_rows: int = DEFAULT_BATCH_ROWS
     report: str | None = None
+    engine: str = "duckdb"  # or "spark": see _run_on_spark
 
     @property
     def function(self) -> str:
@@ -260,7 +261,12 @@ def run(job: Job, *, show_progress: bool = False) -> Outcome:
     outcome = Outcome(job.command, _shown(job.source), _shown(job.target))
     started = time.perf_counter()
     try:
-        _run(job, outcome, show_progress)
+        if job.engine == "spark":
+            _run_on_spark(job, outcome)
+        elif job.engine == "duckdb":
+            _run(job, outcome, show_progress)
+        else:
+            raise ParamError(f"engine must be duckdb or spark, got {job.engine!r}")
     except ParamError as error:
         outcome.exit_code, outcome.message = EXIT_BAD_ARGUMENTS, str(error)
     except Exception as error:
@@ -438,6 +444,80 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
 
 
 WORK_PREFIX = "tidesplit-job-"
+
+
+def _run_on_spark(job: Job, outcome: Outcome) -> None:
+    """The job on Spark: Spark reads the Parquet or CSV source, ``tidesplit.spark`` splits
+    the keys in buckets on the executors, and Spark writes the answer as Parquet beside the
+    target, which then takes the target's place (one rename for a file, an exchange for a
+    folder), so a run killed on the way leaves the previous output whole."""
+    from pyspark.sql import functions as sf
+
+    from . import spark as front
+    from .endpoints import DUCKDB_MARK, _exchange, is_postgres
+
+    settings = job.checked()
+    database = (is_postgres(job.source), DUCKDB_MARK in job.source, job.source.endswith(".duckdb"))
+    if any(database) or job.source_table or job.source_query:
+        raise ParamError("--engine spark reads Parquet or CSV (a file, a glob or a folder)")
+    if is_postgres(job.target) or DUCKDB_MARK in job.target or job.target.endswith(".duckdb"):
+        raise ParamError("--engine spark writes Parquet (a file, or a folder)")
+    if job.target_table:
+        raise ParamError("--to-table names a table of a database; --engine spark writes files")
+    session = front.local_session()
+    reader = session.read
+    frame = (
+        reader.option("header", True).option("inferSchema", True).csv(job.source)
+        if job.source.lower().endswith(".csv")
+        else reader.parquet(job.source)
+    )
+    answer = {
+        "split": front.split_table,
+        "profile": front.profile,
+        "outliers": front.outliers,
+        "forecast": front.forecast,
+    }[job.command]
+    result = answer(frame, job.key, job.time, job.value, **settings)
+    target = os.path.abspath(job.target)
+    aside = os.path.join(
+        os.path.dirname(target), f".{os.path.basename(target)}.{WORK_PREFIX}{os.getpid()}"
+    )
+    single = target.lower().endswith(".parquet") and job.partition_by is None
+    try:
+        writer = (result.coalesce(1) if single else result).write.mode("overwrite")
+        if job.partition_by is not None:
+            writer = writer.partitionBy(job.partition_by)
+        writer.parquet(aside)
+        written = session.read.parquet(aside)
+        keys = [sf.col(k) for k in job.key]
+        outcome.rows_in = frame.count()
+        outcome.keys = frame.select(*keys).distinct().count()
+        outcome.rows_out = written.count()
+        status = sf.col("status")
+        kept = (
+            written.groupBy(*keys)
+            .agg(sf.first(status).alias("status"))
+            .where(~((status == "ok") | status.startswith("ok; ")))
+            .collect()
+        )
+        outcome.keys_kept = len(kept)
+        outcome.keys_split = outcome.keys - outcome.keys_kept
+        _list(outcome, job, [tuple(row) for row in kept])
+        if single:
+            part = next(os.path.join(aside, n) for n in os.listdir(aside) if n.endswith(".parquet"))
+            os.replace(part, target)
+        elif os.path.exists(target) and _exchange(aside, target):
+            pass  # the old folder now sits aside, removed below
+        else:  # two renames: the old folder steps aside, the new one takes its place
+            if os.path.exists(target):
+                os.replace(target, aside + ".old")
+            os.replace(aside, target)
+            shutil.rmtree(aside + ".old", ignore_errors=True)
+        outcome.batches = 1
+    finally:
+        shutil.rmtree(aside, ignore_errors=True)
+    if outcome.keys_kept:
+        outcome.exit_code = EXIT_KEPT
 
 
 def _clear_killed_work() -> None:
