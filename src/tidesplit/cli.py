@@ -514,7 +514,7 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
 
 
 _RUN_SETTINGS = ("from", "to", "from_table", "from_query", "to_table", "key", "time",
-                 "value", "partition_by", "report", "batch_rows", "quiet")  # fmt: skip
+                 "value", "partition_by", "report", "batch_rows", "quiet", "engine")  # fmt: skip
 
 
 def read_job_file(path: str, command: str) -> dict[str, object]:
