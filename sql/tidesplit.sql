@@ -2,11 +2,12 @@
 -- Written by tidesplit/sql_build.py from the argument registry; do not edit by hand.
 
 -- Any time column as a sortable BIGINT: integers as they are, dates and timestamps as
--- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ). Other types are refused by name.
+-- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ); an infinite one as the smallest
+-- BIGINT, which no finite time takes and the UDF refuses. Other types are refused by name.
 CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT, name) AS t,
-    (t TIMESTAMP, name) AS epoch_us(t),
-    (t TIMESTAMPTZ, name) AS epoch_us(t),
-    (t DATE, name) AS epoch_us(t),
+    (t TIMESTAMP, name) AS CASE WHEN isinf(t) THEN (-9223372036854775807 - 1)::BIGINT ELSE epoch_us(t) END,
+    (t TIMESTAMPTZ, name) AS CASE WHEN isinf(t) THEN (-9223372036854775807 - 1)::BIGINT ELSE epoch_us(t) END,
+    (t DATE, name) AS CASE WHEN isinf(t) THEN (-9223372036854775807 - 1)::BIGINT ELSE epoch_us(t) END,
     (t VARCHAR, name) AS error('the time column "' || name || '" holds text; give integers, DATE, TIMESTAMP or TIMESTAMPTZ (CAST it first)'),
     (t DOUBLE, name) AS error('the time column "' || name || '" holds fractional numbers; give integers, DATE, TIMESTAMP or TIMESTAMPTZ'),
     (t HUGEINT, name) AS error('the time column "' || name || '" holds integers wider than BIGINT; give BIGINT, DATE, TIMESTAMP or TIMESTAMPTZ'),

@@ -243,3 +243,48 @@ def test_a_time_column_of_another_type_is_refused_by_name(con, column, words):
                 f"SELECT * FROM tide_split(s, 'k', 't', 'v', period := 4, fill_gaps := {fill})"
             ).fetchall()
         assert "__tide" not in str(caught.value)  # no internal name in the message
+
+
+def test_times_at_the_edges_of_64_bits(con):
+    # well-behaved neighbours in the same query keep their numbers and status
+    top = 2**63 - 1
+    con.execute(
+        "CREATE TABLE edges AS "
+        f"SELECT 'apart' k, CASE WHEN i = 0 THEN -9200000000000000000 ELSE {top} - 100 + i END t, "
+        "5 + sin(i) v FROM range(40) r(i) "
+        f"UNION ALL SELECT 'top', {top} - 40 + i, 5 + sin(i) FROM range(40) r(i) "
+        "UNION ALL SELECT 'fine', i, 5 + sin(i) FROM range(40) r(i)"
+    )
+    status = dict(
+        con.sql(
+            "SELECT k, any_value(status) FROM tide_split(edges, 'k', 't', 'v', period := 4, "
+            "fill_gaps := true, on_error := 'keep') GROUP BY k"
+        ).fetchall()
+    )
+    assert status["apart"] == (
+        f"times from -9200000000000000000 to {top - 61} lie too far apart for one grid"
+    )
+    assert status["top"] == status["fine"] == "ok"
+    # a forecast whose times would pass the largest BIGINT says so instead of wrapping
+    ahead = dict(
+        con.sql(
+            "SELECT k, any_value(status) FROM tide_forecast(edges, 'k', 't', 'v', period := 4, "
+            "steps_ahead := 3, on_error := 'keep') GROUP BY k"
+        ).fetchall()
+    )
+    assert ahead["top"] == (
+        "the forecast's times run past the largest time the column holds from step 2 of 3 on"
+    )
+    assert ahead["fine"] == "ok"
+
+
+def test_an_infinite_time_is_said_to_be_infinite(con):
+    con.execute(
+        "CREATE TABLE inf AS SELECT 'a' k, CASE WHEN i = 5 THEN 'infinity'::TIMESTAMP "
+        "ELSE TIMESTAMP '2020-01-01' + INTERVAL (i) DAY END AS t, 5 + sin(i) v "
+        "FROM range(40) r(i)"
+    )
+    status = con.sql(
+        "SELECT DISTINCT status FROM tide_split(inf, 'k', 't', 'v', on_error := 'keep')"
+    ).fetchall()
+    assert status == [("a time is infinite",)]

@@ -107,6 +107,43 @@ def _utc_codes(local: np.ndarray, time_zone: str | None) -> np.ndarray:
     return stamps.tz_convert("UTC").tz_localize(None).as_unit("us").asi8
 
 
+# Times (codes) further apart than this within one series cannot be placed on a grid
+# without overflowing 64-bit steps: 2^62 microseconds is about 146,000 years.
+FARTHEST_APART = 2**62
+# What an infinite DATE or TIMESTAMP ('infinity', '-infinity') arrives as: the smallest
+# 64-bit code, which no finite time takes (the SQL macros write it, the fronts refuse it).
+INFINITE_TIME_CODE = -(2**63)
+
+
+def refuse_far_apart(codes: np.ndarray, offsets: np.ndarray, kind: str, status: list[str]) -> None:
+    """A reason in ``status`` for a series whose times (sorted) lie too far apart for one
+    grid, or one of which is infinite.
+
+    >>> status = ["ok", "ok"]
+    >>> refuse_far_apart(np.array([0, 1, -2**62, 2**62]), np.array([0, 2, 4]), "integer", status)
+    >>> status[1]
+    'times from -4611686018427387904 to 4611686018427387904 lie too far apart for one grid'
+    """
+    filled = np.flatnonzero(np.diff(offsets) > 0)
+    if not filled.size:
+        return
+    first = codes[offsets[filled]].astype(np.float64)
+    last = codes[offsets[filled + 1] - 1].astype(np.float64)
+    infinite = np.zeros(offsets.size - 1, dtype=bool)
+    infinite[filled] = codes[offsets[filled]] == INFINITE_TIME_CODE
+    for s in filled[(last - first > FARTHEST_APART) | infinite[filled]]:
+        if status[s] != OK:
+            continue
+        if infinite[s]:
+            status[s] = "a time is infinite"
+            continue
+        lo, hi = int(codes[offsets[s]]), int(codes[offsets[s + 1] - 1])
+        shown = (
+            (str(lo), str(hi)) if kind == "integer" else (describe(lo, kind), describe(hi, kind))
+        )
+        status[s] = f"times from {shown[0]} to {shown[1]} lie too far apart for one grid"
+
+
 def regularise(
     codes: np.ndarray,
     offsets: np.ndarray,

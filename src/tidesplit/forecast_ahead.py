@@ -376,6 +376,19 @@ def forecast_arguments(steps_ahead: Any, coverage: Any, trend_model: Any) -> tup
     return steps, float(coverage), trend_model
 
 
+def _times_out_of_range(result: RowsResult, ahead: Forecast, chosen: np.ndarray) -> np.ndarray:
+    """Per forecast row: its time wrapped past the largest 64-bit time code (it then comes
+    before the series' last time, or before the step before it)."""
+    late = np.zeros(ahead.point.size, dtype=bool)
+    if ahead.codes is None or result.codes is None or not chosen.size:
+        return late
+    last = result.codes[result.offsets[chosen + 1] - 1]
+    before = np.repeat(last, np.diff(ahead.offsets))
+    starts = ahead.offsets[:-1]
+    before[1:] = np.where(np.isin(np.arange(1, before.size), starts), before[1:], ahead.codes[:-1])
+    return ahead.codes <= before
+
+
 def settle_forecast(
     result: RowsResult, ahead: Forecast, on_error: str, label: Callable[[int], str]
 ) -> np.ndarray:
@@ -386,16 +399,26 @@ def settle_forecast(
     chosen = np.flatnonzero(ok)
     horizon = np.diff(ahead.offsets)
     bad_rows = ~(np.isfinite(ahead.point) & np.isfinite(ahead.lower) & np.isfinite(ahead.upper))
-    if not bad_rows.any():
+    late = _times_out_of_range(result, ahead, chosen)
+    if not (bad_rows.any() or late.any()):
         return ok
     keep_rows = np.ones(bad_rows.size, dtype=bool)
-    for k in np.flatnonzero(np.add.reduceat(bad_rows, ahead.offsets[:-1]) > 0):
+    per_series = np.add.reduceat(bad_rows | late, ahead.offsets[:-1]) if bad_rows.size else []
+    for k in np.flatnonzero(np.asarray(per_series) > 0):
         s = int(chosen[k])
-        first = int(np.flatnonzero(bad_rows[ahead.offsets[k] : ahead.offsets[k + 1]])[0]) + 1
-        result.status[s] = (
-            f"the forecast is not finite from step {first} of {int(horizon[k])} on "
-            "(too large for a float after the back-transform)"
-        )
+        block = slice(int(ahead.offsets[k]), int(ahead.offsets[k + 1]))
+        if late[block].any():
+            first = int(np.flatnonzero(late[block])[0]) + 1
+            result.status[s] = (
+                f"the forecast's times run past the largest time the column holds from step "
+                f"{first} of {int(horizon[k])} on"
+            )
+        else:
+            first = int(np.flatnonzero(bad_rows[block])[0]) + 1
+            result.status[s] = (
+                f"the forecast is not finite from step {first} of {int(horizon[k])} on "
+                "(too large for a float after the back-transform)"
+            )
         if on_error == "raise":
             raise SplitError(f"series {label(s)}: {result.status[s]}")
         keep_rows[ahead.offsets[k] : ahead.offsets[k + 1]] = False

@@ -124,6 +124,7 @@ def split_rows(
     grid_offsets = offsets
     positions = None
     if codes is not None:
+        calendar.refuse_far_apart(codes, offsets, kind, status)
         grid = calendar.regularise(codes, offsets, kind, status, time_zone)
         grid_offsets = grid.offsets
         if not grid.complete:

@@ -30,6 +30,7 @@ from .arguments import (
     Argument,
     of,
 )
+from .calendar import INFINITE_TIME_CODE
 
 # What every UDF takes before the named arguments: the key as text (for messages), the
 # times as codes, the time column's type, the session's time zone and the values.
@@ -175,11 +176,12 @@ _LEAD_CALL = (
 
 HELPERS = """\
 -- Any time column as a sortable BIGINT: integers as they are, dates and timestamps as
--- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ). Other types are refused by name.
+-- microseconds since 1970-01-01 (UTC for TIMESTAMPTZ); an infinite one as the smallest
+-- BIGINT, which no finite time takes and the UDF refuses. Other types are refused by name.
 CREATE OR REPLACE TEMP MACRO __tide_time_code(t BIGINT, name) AS t,
-    (t TIMESTAMP, name) AS epoch_us(t),
-    (t TIMESTAMPTZ, name) AS epoch_us(t),
-    (t DATE, name) AS epoch_us(t),
+    (t TIMESTAMP, name) AS CASE WHEN isinf(t) THEN {infinite} ELSE epoch_us(t) END,
+    (t TIMESTAMPTZ, name) AS CASE WHEN isinf(t) THEN {infinite} ELSE epoch_us(t) END,
+    (t DATE, name) AS CASE WHEN isinf(t) THEN {infinite} ELSE epoch_us(t) END,
 {time_refusals};
 
 -- A time code back to the type of a sample time (for rows inserted into gaps).
@@ -337,6 +339,7 @@ def render() -> str:
         "-- The SQL functions of tidesplit, loaded by tidesplit.register().\n"
         "-- Written by tidesplit/sql_build.py from the argument registry; do not edit by hand.\n",
         HELPERS.replace("{kind_checks}", _KIND_CHECKS)
+        .replace("{infinite}", f"({INFINITE_TIME_CODE + 1} - 1)::BIGINT")
         .replace("{time_refusals}", _time_refusals("t", named=True))
         .replace("{time_refusals_from}", _time_refusals("c, sample", named=False)),
         _split_list(),
