@@ -88,3 +88,35 @@ def test_demo_tables_account_for_every_row(demo_database, source, split, key, ti
     np.testing.assert_allclose(
         parts["trend"] + parts["seasonal"] + parts["remainder"], scale(parts[value]), rtol=1e-9
     )
+
+
+@pytest.mark.parametrize(
+    ("args", "words"),
+    [
+        (["--shops", "0"], "argument --shops: 0 is not between 1 and 1000"),
+        (["--years", "1"], "argument --years: 1 is not between 3 and 50"),
+        (["--products", "x"], "argument --products: 'x' is not a whole number"),
+    ],
+)
+def test_demo_refuses_sizes_it_cannot_show(args, words, capsys):
+    with pytest.raises(SystemExit) as stopped:
+        cli.main(["demo", *args])
+    assert stopped.value.code == 2 and words in capsys.readouterr().err
+
+
+def test_demo_asks_before_replacing_and_needs_a_folder(tmp_path, capsys):
+    existing = tmp_path / "mine.duckdb"
+    duckdb.connect(str(existing)).execute("CREATE TABLE weekly_units AS SELECT 1 AS kept")
+    assert cli.main(["demo", "--database", str(existing)]) == 2
+    assert "exists; the demo would replace its tables" in capsys.readouterr().err
+    con = duckdb.connect(str(existing))
+    assert con.sql("SELECT * FROM weekly_units").fetchall() == [(1,)]  # untouched
+    con.close()
+    assert cli.main(["demo", "--database", str(tmp_path / "no" / "such.duckdb")]) == 2
+    assert "cannot write in" in capsys.readouterr().err
+
+
+def test_a_small_demo_prints_every_section(tmp_path, capsys):
+    assert cli.main(["demo", "--shops", "2", "--products", "2", "--years", "3"]) == 0
+    printed = capsys.readouterr().out
+    assert "Largest remainders" in printed and "Missing weeks are data" in printed

@@ -6,7 +6,7 @@ import argparse
 import os
 import sys
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 # The demo's two jobs, as a user would type them (the folder and database filled in).
 DEMO_WEEKLY = [
@@ -45,7 +45,10 @@ GROUP BY product ORDER BY strength_of_season DESC
 
 def _print_rows(title: str, rows: list[tuple], header: Sequence[str]) -> None:
     print(f"\n{title}")
-    widths = [max(len(str(h)), *(len(str(r[i])) for r in rows)) for i, h in enumerate(header)]
+    if not rows:  # a small demo may have nothing to show here
+        print("  (none)")
+        return
+    widths = [max([len(str(h)), *(len(str(r[i])) for r in rows)]) for i, h in enumerate(header)]
     print("  " + "  ".join(str(h).ljust(w) for h, w in zip(header, widths, strict=True)))
     for row in rows:
         print("  " + "  ".join(str(v).ljust(w) for v, w in zip(row, widths, strict=True)))
@@ -54,6 +57,36 @@ def _print_rows(title: str, rows: list[tuple], header: Sequence[str]) -> None:
 def _ends(rows: list[tuple], each: int = 3) -> list[tuple]:
     """The first and last few rows of a ranking."""
     return rows if len(rows) <= 2 * each else rows[:each] + rows[-each:]
+
+
+def _between(low: int, high: int) -> Callable[[str], int]:
+    """An argparse type: a whole number from ``low`` to ``high``, refused by name otherwise."""
+
+    def whole(text: str) -> int:
+        try:
+            number = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if not low <= number <= high:
+            raise argparse.ArgumentTypeError(f"{number} is not between {low} and {high}")
+        return number
+
+    return whole
+
+
+def _demo_refusal(database: str | None, replace: bool) -> str | None:
+    """Why the demo cannot write where it was asked to, or None."""
+    if database is None:
+        return None
+    folder = os.path.dirname(os.path.abspath(database))
+    if not os.path.isdir(folder) or not os.access(folder, os.W_OK):
+        return f"cannot write in {folder} (the folder for --database {database})"
+    if os.path.exists(database) and not replace:
+        return (
+            f"{database} exists; the demo would replace its tables weekly_units, "
+            "weekly_split, hourly_loads and hourly_split: give --replace, or another file"
+        )
+    return None
 
 
 def run_demo(database: str | None, shops: int, products: int, years: int) -> None:
@@ -614,6 +647,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tidesplit`` command."""
     args = build_parser().parse_args(argv)
     if args.command == "demo":
+        refused = _demo_refusal(args.database, args.replace)
+        if refused:
+            print(f"tidesplit demo: {refused}", file=sys.stderr)
+            return 2
         run_demo(args.database, args.shops, args.products, args.years)
     elif args.command == "draw":
         run_draw(args)
@@ -640,9 +677,28 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument(
         "--database", help="DuckDB file to keep the tables in (default: a temporary one)"
     )
-    demo.add_argument("--shops", type=int, default=12, help="number of shops (default 12)")
-    demo.add_argument("--products", type=int, default=20, help="products per shop (default 20)")
-    demo.add_argument("--years", type=int, default=6, help="years of weekly data (default 6)")
+    demo.add_argument(
+        "--replace", action="store_true", help="replace the demo's tables in an existing --database"
+    )
+    demo.add_argument(
+        "--shops",
+        type=_between(1, 1000),
+        default=12,
+        help="number of shops, 1 to 1,000 (default 12)",
+    )
+    demo.add_argument(
+        "--products",
+        type=_between(1, 1000),
+        default=20,
+        help="products per shop, 1 to 1,000 (default 20)",
+    )
+    demo.add_argument(
+        "--years",
+        type=_between(3, 50),
+        default=6,
+        help="years of weekly data, 3 to 50 (default 6; two yearly cycles and one to spare "
+        "are the least a robust split of weekly data wants)",
+    )
     _add_draw(commands)
     for command in COMMANDS[2:]:
         _add_job_command(commands, command)
