@@ -4,6 +4,7 @@
     python benchmarks/suite.py --quick    # small sizes, a smoke run of every case
     python benchmarks/suite.py --scale    # also 1,000,000 series end to end (minutes)
     python benchmarks/suite.py --start    # also the cold start, warm and cold numba cache
+    python benchmarks/suite.py --rounds 5 # SQL and floor over five alternating rounds
 
 Every measurement runs in a fresh process of its own, so its peak memory (max RSS) is its
 own. Baselines come from the same run: statsmodels' STL or MSTL per series with matched
@@ -359,6 +360,13 @@ def main() -> None:
     parser.add_argument("--scale", action="store_true", help="add 1,000,000 x 120 end to end")
     parser.add_argument("--start", action="store_true", help="add the cold-start timings")
     parser.add_argument("--runs", type=int, default=2, help="best of this many runs")
+    parser.add_argument(
+        "--rounds",
+        type=int,
+        default=3,
+        help="SQL and floor measured this many times, alternating, in fresh processes; the "
+        "median of the rounds is shown, with the spread of SQL / floor",
+    )
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
@@ -370,18 +378,27 @@ def main() -> None:
 
     print(
         f"tidesplit benchmark suite, {os.cpu_count()} cores; seconds are the best of "
-        f"{args.runs} runs; statsmodels is timed per series on a subset and scaled.\n"
+        f"{args.runs} runs; SQL and floor the median of {args.rounds} alternating rounds, "
+        "SQL / floor the median of the rounds' ratios with their range; statsmodels is "
+        "timed per series on a subset and scaled.\n"
     )
     header = (
         f"{'case':<34}{'points':>12}{'kernel s':>10}{'SQL s':>9}{'floor s':>9}"
         f"{'statsm. s':>11}{'kernel pts/s':>14}{'x statsm.':>10}{'SQL/floor':>10}"
-        f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}"
+        f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}{'SQL/floor range':>17}"
     )
     print(header)
     for case in cases(args.quick):
         kernel = in_child(case, "kernel", args.runs)
-        sql = in_child(case, "sql", args.runs)
-        floor = in_child(case, "floor", args.runs)
+        # alternating rounds, so that a slow spell of the machine weighs on both alike
+        rounds = [
+            (in_child(case, "sql", args.runs), in_child(case, "floor", args.runs))
+            for _ in range(max(1, args.rounds))
+        ]
+        ratios = sorted(s["seconds"] / f["seconds"] for s, f in rounds)
+        sql = sorted((s for s, _ in rounds), key=lambda r: r["seconds"])[len(rounds) // 2]
+        floor = sorted((f for _, f in rounds), key=lambda r: r["seconds"])[len(rounds) // 2]
+        ratio_median = ratios[len(ratios) // 2]
         reference = in_child(case, "statsmodels", 1) if case.subset else None
         points = case.series * case.points
         ratio = f"{reference['seconds'] / kernel['seconds']:.0f}x" if reference else "-"
@@ -392,8 +409,9 @@ def main() -> None:
         print(
             f"{case.name:<34}{points:>12,}{kernel['seconds']:>10.2f}{sql['seconds']:>9.2f}"
             f"{floor['seconds']:>9.2f}{ref_s:>11}{points / kernel['seconds']:>14,.0f}"
-            f"{ratio:>10}{sql['seconds'] / floor['seconds']:>10.2f}"
+            f"{ratio:>10}{ratio_median:>10.2f}"
             f"{kernel['peak_mib']:>11.0f}{sql['peak_mib']:>9.0f}{diff:>10}"
+            f"{f'{ratios[0]:.2f}-{ratios[-1]:.2f}':>17}"
         )
     if args.scale:
         big = Case("monthly 1M (scale run)", 1_000_000, 120, (12,), subset=0, on_disk=True)
