@@ -375,7 +375,7 @@ def profile(
     period: int | None = None,
     **given: Any,
 ) -> pd.DataFrame:
-    """One row per series: points, missing points, step, period(s), lambda, trend and
+    """One row per series: points, missing points, time step, period(s), lambda, trend and
     seasonal strength (Wang, Smith & Hyndman 2006), peak and trough of the cycle, seasonal
     amplitude, remainder spread, share down-weighted, remainder lag-1 autocorrelation, status.
 

@@ -67,7 +67,7 @@ def answer_columns(function: str) -> tuple[str, ...]:
     >>> answer_columns("forecast")[-1]
     'status'
     """
-    from . import answers  # loads the numeric core: only when a job runs
+    from . import answers  # light, but kept out of the command line's start
 
     return getattr(answers, function.upper())
 
