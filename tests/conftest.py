@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
 import duckdb
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, Phase
+from hypothesis import settings as hypothesis_settings
 
 sys.path.insert(0, str(Path(__file__).parent))  # for tests/naive.py and tests/datasets.py
 
@@ -32,3 +35,21 @@ def seasonal_series(rng: np.random.Generator, n: int, period: int, noise: float 
     t = np.arange(n)
     cycle = np.sin(2 * np.pi * t / period) + 0.4 * np.cos(4 * np.pi * t / period)
     return 10 + 0.03 * t + 2 * cycle + rng.normal(0, noise, n)
+
+
+# Property-based tests (tests/test_generated.py): a fixed profile, so that CI runs the same
+# examples every time and the suite stays fast; HYPOTHESIS_PROFILE=explore searches afresh.
+
+hypothesis_settings.register_profile(
+    "ci",
+    derandomize=True,
+    database=None,
+    deadline=None,
+    print_blob=True,
+    phases=[Phase.explicit, Phase.reuse, Phase.generate, Phase.shrink],
+    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
+)
+hypothesis_settings.register_profile(
+    "explore", deadline=None, suppress_health_check=[HealthCheck.too_slow], max_examples=1000
+)
+hypothesis_settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))

@@ -110,6 +110,23 @@ def test_a_month_moved_off_its_day_is_the_time_named(con):
     ]
 
 
+def test_months_on_one_day_without_one_step_name_the_month_off_it(con):
+    # every time on the 1st, but the months 2 and 3 apart: no step of whole months fits
+    # (found by the generated tables of tests/test_generated.py; it raised an IndexError)
+    months = pd.to_datetime(["2001-01-01", "2001-03-01", "2001-05-01", "2001-08-01"])
+    con.register("frame", frame_of(months.date, [1.0, 2.0, 3.0, 4.0]))
+    status = con.sql(
+        "SELECT DISTINCT status FROM tide_split(frame, 'k', 't', 'v', period := 2, "
+        "on_error := 'keep')"
+    ).fetchall()
+    assert status == [
+        (
+            "irregular times: 2001-08-01 (beside 2001-05-01) is off the step of 2 months that "
+            "the other times follow",
+        )
+    ]
+
+
 def test_gaps_are_missing_values_and_fill_gaps_inserts_rows(con):
     times = pd.date_range("2016-01-01", periods=60, freq="MS").date
     values = cycle(60, 12)

@@ -13,13 +13,13 @@ import numpy as np
 
 from . import memory, transform
 from .errors import ParamError, SplitError
-from .kernel import checks, linear, threads
+from .kernel import checks, linear
 from .kernel.layout import COL_ACTIVE, COL_OUTER, COL_PERIOD, N_SETTINGS
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
 from .status import OK, split_mask, with_note
-from .tuning import LARGEST_MAGNITUDE, LINEAR_SHARE
+from .tuning import LARGEST_MAGNITUDE
 
 
 @dataclass
@@ -280,32 +280,16 @@ def _run_kernel(
     else:
         complete = np.ones(offsets.size - 1, dtype=bool)
     direct = settings.copy()
-    # The linear-map shortcut for groups of complete, non-robust, equal-length series.
+    # The linear-map shortcut for complete, non-robust, short series. Whether a series takes
+    # it depends on its own length and settings only (linear.eligible), never on how many
+    # others share its shape or on the matrices already built: the two routes differ in the
+    # last bits, and a series' numbers must not depend on its batch.
     candidates = np.flatnonzero((settings[:, COL_ACTIVE] == 1) & complete)
     for members, n, row in _equal_shape_groups(candidates, lengths, settings):
         if not linear.eligible(n, row):
             continue
-        if members.size < max(2, n // LINEAR_SHARE) and not linear.is_cached(n, row):
-            continue  # too few series to pay for building the matrices
-        if members.size == (members[-1] - members[0] + 1):
-            # consecutive series of one length: a reshaped view, no gather
-            block = slice(offsets[members[0]], offsets[members[0]] + members.size * n)
-            shape = (members.size, n)
-            with threads.blas_for(parallel):
-                linear.apply(
-                    y[block].reshape(shape),
-                    row,
-                    trend[block].reshape(shape),
-                    seasonal[block].reshape(shape),
-                )
-            weight[block] = 1.0
-        else:
-            index = offsets[members][:, None] + np.arange(n)
-            with threads.blas_for(parallel):
-                t_part, s_part = linear.apply(y[index], row)
-            trend[index] = t_part
-            seasonal[index] = s_part
-            weight[index] = 1.0
+        linear.apply_flat(y, offsets[members], n, row, trend, seasonal, parallel)
+        weight[np.repeat(offsets[members], n) + np.tile(np.arange(n), members.size)] = 1.0
         direct[members, COL_ACTIVE] = 0
     if direct[:, COL_ACTIVE].any():
         run = stl_batch_parallel if parallel else stl_batch_serial

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import memory
-from .kernel import grid
+from .kernel import grid, strengths
 from .status import OK
 from .tuning import MAX_GROWTH, PERIOD_PEAK_FLOOR
 
@@ -260,22 +260,31 @@ is off the step of 1 day that the other times follow'
         places, counts = np.unique(place, return_counts=True)
         usual_place = places[np.argmax(counts)]
         if counts.max() * 2 > n and (np.diff(start[place == usual_place]) > 0).all():
-            odd = int(np.flatnonzero(place != usual_place)[0])
-            rule = "the monthly calendar (the same day of each month)"
+            off = np.flatnonzero(place != usual_place)
+            if off.size:
+                odd = int(off[0])
+                rule = "the monthly calendar (the same day of each month)"
+            else:
+                # every time on the same day of its month, but the months keep no one step
+                odd, rule = _off_the_step(months.astype(np.int64), UNIT_MONTH)
     if odd < 0:
-        gaps = np.diff(measured)
-        steps, counts = np.unique(gaps[gaps > 0], return_counts=True)
-        usual = int(steps[np.argmax(counts)]) if steps.size else 1
-        unit = UNIT_NUMBER if kind == "integer" else UNIT_MICROSECOND
-        residue = (measured - measured[0]) % usual
-        places, counts = np.unique(residue, return_counts=True)
-        off = np.flatnonzero(residue != places[np.argmax(counts)])
-        odd = int(off[0]) if off.size else n - 1
-        rule = f"the step of {describe_step(unit, usual)}"
+        odd, rule = _off_the_step(measured, UNIT_NUMBER if kind == "integer" else UNIT_MICROSECOND)
     shown = f"time {codes[odd]}" if kind == "integer" else describe(int(codes[odd]), kind)
     around = [describe(int(codes[i]), kind) for i in (odd - 1, odd + 1) if 0 <= i < n]
     beside = f" (beside {' and '.join(around)})" if around else ""
     return f"irregular times: {shown}{beside} is off {rule} that the other times follow"
+
+
+def _off_the_step(measured: np.ndarray, unit: int) -> tuple[int, str]:
+    """The first time off the most common step counted from the first time, and the rule."""
+    gaps = np.diff(measured)
+    steps, counts = np.unique(gaps[gaps > 0], return_counts=True)
+    usual = int(steps[np.argmax(counts)]) if steps.size else 1
+    residue = (measured - measured[0]) % usual
+    places, counts = np.unique(residue, return_counts=True)
+    off = np.flatnonzero(residue != places[np.argmax(counts)])
+    odd = int(off[0]) if off.size else measured.size - 1
+    return odd, f"the step of {describe_step(unit, usual)}"
 
 
 def describe_step(unit: int, step: int) -> str:
@@ -432,19 +441,16 @@ def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
     0
     """
     y = np.asarray(values, dtype=float)
-    good = ~np.isnan(y)
+    good = np.isfinite(y)  # an infinite value is left out here; the split names it
     n = y.size
     if good.sum() < 8:
         return 0
     t = np.arange(n)
     y = np.interp(t, t[good], y[good])
-    slope, intercept = np.polyfit(t, y, 1)
-    y = y - (slope * t + intercept)
-    denom = np.dot(y, y)
-    if denom <= 0:
-        return 0
     top = min(max_lag or n // 2, n - 2)
-    acf = np.array([np.dot(y[: n - k], y[k:]) / denom for k in range(top + 2)])
+    acf = np.empty(top + 2)
+    if not strengths.detrended_autocorrelations(y, top, acf):
+        return 0
     threshold = max(PERIOD_PEAK_FLOOR, 2 / np.sqrt(n))
     for k in range(2, top + 1):
         if acf[k] > threshold and acf[k] >= acf[k - 1] and acf[k] >= acf[k + 1]:

@@ -23,11 +23,6 @@ MAX_GROWTH = 10
 # band 2 / sqrt(n)): common practice.
 PERIOD_PEAK_FLOOR = 0.3
 
-# The linear-map shortcut builds two n x n matrices per length and settings; it pays when a
-# group holds at least n / LINEAR_SHARE series (measured: building costs about as much as
-# applying to a quarter of n series), or when the matrices are already cached.
-LINEAR_SHARE = 4
-
 # DuckDB runs UDF calls (up to 2,048 series each) on its own threads, so a call normally
 # uses one thread. A call this large (a few very long series) is likely the only one in
 # flight, so it spreads its series over numba's threads instead.

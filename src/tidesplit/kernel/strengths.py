@@ -156,3 +156,45 @@ def remainder_fences(
             out[s, 1] = centre + k * scale
         out[s, 2] = centre
         out[s, 3] = scale
+
+
+@njit(nogil=True, cache=True)
+def detrended_autocorrelations(y: np.ndarray, top: int, acf: np.ndarray) -> bool:
+    """Autocorrelations at lags ``0 .. top + 1`` of ``y`` (complete, finite) less its
+    least-squares line, into ``acf``; False when nothing is left once the line is gone.
+
+    Plain sums in index order, so the numbers depend on the series alone (BLAS's dot product
+    does not promise that); the series is divided by its largest size first, so that values
+    up to 1e308 do not overflow the squares.
+    """
+    n = y.shape[0]
+    size = 0.0
+    for i in range(n):
+        size = max(size, abs(y[i]))
+    if not size > 0.0:
+        return False
+    mean_t = (n - 1) / 2.0
+    mean_y = 0.0
+    for i in range(n):
+        mean_y += y[i] / size
+    mean_y /= n
+    cross = 0.0
+    spread = 0.0
+    for i in range(n):
+        cross += (i - mean_t) * (y[i] / size - mean_y)
+        spread += (i - mean_t) ** 2
+    slope = cross / spread
+    z = np.empty(n)
+    for i in range(n):
+        z[i] = y[i] / size - (mean_y + slope * (i - mean_t))
+    denom = 0.0
+    for i in range(n):
+        denom += z[i] * z[i]
+    if not denom > 0.0:
+        return False
+    for k in range(top + 2):
+        total = 0.0
+        for i in range(n - k):
+            total += z[i] * z[i + k]
+        acf[k] = total / denom
+    return True
