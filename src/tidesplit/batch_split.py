@@ -14,12 +14,12 @@ import numpy as np
 from . import memory, transform
 from .errors import ParamError, SplitError
 from .kernel import checks, linear
-from .kernel.layout import COL_ACTIVE, COL_OUTER, COL_PERIOD, N_SETTINGS
+from .kernel.layout import COL_ACTIVE, COL_INNER, COL_OUTER, COL_PERIOD, N_SETTINGS
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
 from .status import OK, split_mask, with_note
-from .tuning import LARGEST_MAGNITUDE
+from .tuning import LARGEST_MAGNITUDE, LAUNCH_WORK
 
 
 @dataclass
@@ -293,8 +293,30 @@ def _run_kernel(
         direct[members, COL_ACTIVE] = 0
     if direct[:, COL_ACTIVE].any():
         run = stl_batch_parallel if parallel else stl_batch_serial
-        run(y, offsets, direct, trend, seasonal, weight)
+        passes = direct[:, COL_INNER] * (direct[:, COL_OUTER] + 1) * direct[:, COL_ACTIVE]
+        for first, stop in _launches(lengths, passes):
+            run(y, offsets[first : stop + 1], direct[first:stop], trend, seasonal, weight)
     return trend, seasonal, weight
+
+
+def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
+    """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each.
+
+    A compiled kernel does not return to Python until it is done, so Python can raise a
+    KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
+    stoppable. A series' numbers do not depend on the launch it falls in.
+
+    >>> _launches(np.array([3, 4, 5]), np.array([1, 1, 1]))
+    [(0, 3)]
+    """
+    work = lengths * passes
+    if work.size == 0:
+        return []
+    before = np.cumsum(work) - work
+    ids = before // LAUNCH_WORK
+    cuts = np.flatnonzero(np.diff(ids)) + 1
+    edges = [0, *cuts.tolist(), work.size]
+    return [(edges[i], edges[i + 1]) for i in range(len(edges) - 1)]
 
 
 def split_batch(
@@ -596,7 +618,19 @@ def _run_multi_kernel(
         rounds = group_params.resolve().iterations if settings[members, 0, COL_ACTIVE].any() else 1
         chosen = settings.copy()
         chosen[~members, :, COL_ACTIVE] = 0
-        run(y, offsets, chosen, n_periods, rounds, trend, parts, weight)
+        head = chosen[:, 0]
+        passes = rounds * n_periods * head[:, COL_INNER] * (head[:, COL_OUTER] + 1)
+        for first, stop in _launches(np.diff(offsets), passes * head[:, COL_ACTIVE]):
+            run(
+                y,
+                offsets[first : stop + 1],
+                chosen[first:stop],
+                n_periods[first:stop],
+                rounds,
+                trend,
+                parts,
+                weight,
+            )
     lengths = np.diff(offsets)
     # a period a series dropped contributes nothing; an unsplit series has no parts at all
     active = np.repeat(settings[:, 0, COL_ACTIVE] == 1, lengths)

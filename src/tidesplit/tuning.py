@@ -23,6 +23,12 @@ MAX_GROWTH = 10
 # band 2 / sqrt(n)): common practice.
 PERIOD_PEAK_FLOOR = 0.3
 
+# Work per launch of a compiled kernel, in point-passes (points x inner loops x (outer loops +
+# 1), times rounds and periods with several): about half a second on one core (measured:
+# some 8 million point-passes a second). Python takes a KeyboardInterrupt only between
+# launches, so this bounds how long Ctrl-C waits in the Python front.
+LAUNCH_WORK = 4_000_000
+
 # DuckDB runs UDF calls (up to 2,048 series each) on its own threads, so a call normally
 # uses one thread. A call this large (a few very long series) is likely the only one in
 # flight, so it spreads its series over numba's threads instead.
