@@ -17,13 +17,13 @@ import numpy as np
 import pyarrow as pa
 from hypothesis import strategies as st
 
-KEY_TYPES = ("varchar", "bigint", "double", "date", "boolean")
+KEY_TYPES = ("varchar", "bigint", "double", "date", "boolean", "struct")
 TIME_TYPES = ("bigint", "integer", "date", "timestamp", "timestamptz")
 
 # key values of each type, NULL (None) among them; NaN is a key of its own in SQL
 _KEY_POOLS = {
     "varchar": [None, "", "a", "A", "é", "名前", "🌊", "a b", "x'y", 'q"r', "x;y", "select", "ä.ö"],
-    "bigint": [None, 0, -1, 1, 2**62, -(2**62), 7],
+    "bigint": [None, 0, -1, 1, 2**62, 2**62 + 1, -(2**62), 7],
     "double": [None, math.nan, 0.0, -1.5, 1e300, -1e-300, math.inf, -math.inf, 2.5],
     "date": [
         None,
@@ -33,6 +33,15 @@ _KEY_POOLS = {
         dt.date(9999, 12, 31),
     ],
     "boolean": [None, True, False],
+    "struct": [
+        None,
+        {"a": 1, "b": "x"},
+        {"a": None, "b": "x"},
+        {"a": 1, "b": None},
+        {"a": None, "b": None},
+        {"a": 2**62 + 1, "b": "é"},
+        {"a": 2**62, "b": "é"},
+    ],
 }
 _ARROW_KEY = {
     "varchar": pa.string(),
@@ -40,6 +49,7 @@ _ARROW_KEY = {
     "double": pa.float64(),
     "date": pa.date32(),
     "boolean": pa.bool_(),
+    "struct": pa.struct([("a", pa.int64()), ("b", pa.string())]),
 }
 EPOCH = dt.datetime(2001, 1, 1)
 

@@ -43,6 +43,8 @@ def _token(value):
     """One spelling per cell: NaN apart from NULL, times as themselves."""
     if isinstance(value, float) and math.isnan(value):
         return "NaN"
+    if isinstance(value, dict):
+        return repr(value)
     return value
 
 
@@ -152,16 +154,15 @@ def test_numbers_do_not_depend_on_the_batch_threads_or_history(table):
 
 
 @settings(max_examples=60)
-@given(tables(max_series=4, key_types=("varchar", "bigint", "date", "boolean")))
+@given(tables(max_series=4))
 def test_python_front_gives_the_same_bits_as_sql(table):
     con = _connection(1)
     given_rows = table.arrow()
     con.register("generated", given_rows)
     sql = _split_sql(con, table)
     period = {"period": table.period} if table.period else {}
-    frame = given_rows.to_pandas()
     mine = tidesplit.split_table(
-        frame, ["k", "g"], "t", "v", fill_gaps=True, on_error="keep", **period
+        given_rows, ["k", "g"], "t", "v", fill_gaps=True, on_error="keep", **period
     )
     assert len(mine) == sql.num_rows
     assert _cells(mine.to_dict("records")) == _cells(sql.to_pylist())
@@ -192,9 +193,11 @@ def _cells(rows: list[dict]) -> list[tuple]:
 
 
 def _plain(key):
-    """A key as SQL gives it to Python: NaN and NULL both None (pandas holds no NULL float)."""
-    if key is None or (isinstance(key, float) and math.isnan(key)):
+    """A key as SQL gives it to Python (NaN apart from NULL)."""
+    if key is None:
         return None
+    if isinstance(key, float) and math.isnan(key):
+        return "NaN"
     if hasattr(key, "item"):
         key = key.item()
     if isinstance(key, float) and key.is_integer() and not isinstance(key, bool):

@@ -138,6 +138,63 @@ def _time_codes(times: pd.Series) -> tuple[np.ndarray, np.ndarray, str, str | No
     return filled.to_numpy().astype(np.int64), nulls, "integer", None
 
 
+def _exact_keys(data: Any, keys: list[str]) -> dict[str, list]:
+    """Key columns of an Arrow table that pandas would change, as Python values: floats (pandas
+    has no NULL apart from NaN, which SQL groups apart), integers with NULLs (pandas makes
+    them floats, which merges keys beyond 2**53) and nested values (structs, lists)."""
+    import pyarrow as pa
+
+    exact = {}
+    for name in keys:
+        if name not in data.column_names:
+            continue  # named in the error that follows
+        column = data.column(name)
+        kind = column.type
+        if (
+            pa.types.is_floating(kind)
+            or pa.types.is_nested(kind)
+            or (pa.types.is_integer(kind) and column.null_count)
+        ):
+            exact[name] = column.to_pylist()
+    return exact
+
+
+def _canonical(value: Any) -> tuple:
+    """A key value as a sortable, hashable tuple, ordered as SQL orders keys: values first,
+    then NaN, then NULL; structs field by field, lists item by item."""
+    if value is None or value is pd.NA or value is pd.NaT:
+        return (2,)
+    if isinstance(value, float) and value != value:
+        return (1,)
+    if isinstance(value, dict):
+        return (0, tuple((k, _canonical(v)) for k, v in value.items()))
+    if isinstance(value, list | tuple | np.ndarray):
+        return (0, tuple(_canonical(v) for v in value))
+    return (0, value)
+
+
+def _key_codes(column: pd.Series) -> np.ndarray:
+    """Integer ranks of a key column: equal keys share one, in key order, NULL last.
+
+    An object column (structs, lists, or values read exactly from Arrow) keeps NaN apart from
+    NULL, as SQL does; a pandas float column holds only NaN, which DuckDB reads as NULL, so
+    there the two are one group in both fronts.
+
+    >>> _key_codes(pd.Series([None, float("nan"), 2.0], dtype=object)).tolist()
+    [2, 1, 0]
+    """
+    if column.dtype != object:
+        codes, uniques = pd.factorize(column, sort=True, use_na_sentinel=True)
+        return np.where(codes < 0, len(uniques), codes)
+    canonical = [_canonical(v) for v in column.to_numpy()]
+    try:
+        order = sorted(set(canonical))
+    except TypeError:  # values of several types in one column: an order of our own
+        order = sorted(set(canonical), key=repr)
+    rank = {c: i for i, c in enumerate(order)}
+    return np.array([rank[c] for c in canonical], dtype=np.int64)
+
+
 def _codes_to_times(codes: np.ndarray, kind: str, zone: str | None) -> pd.Series:
     if kind == "integer":
         return pd.Series(codes)
@@ -168,6 +225,7 @@ class _Table:
         answer: tuple[str, ...],
     ) -> None:
         keys = [key] if isinstance(key, str) else list(key)
+        exact = {} if isinstance(data, pd.DataFrame) else _exact_keys(data, keys)
         frame = data if isinstance(data, pd.DataFrame) else data.to_pandas()
         missing = [c for c in [*keys, time, value] if c not in frame.columns]
         if missing:
@@ -179,14 +237,21 @@ class _Table:
         if clashes:
             raise ParamError("; ".join(clashes))
         frame = frame[[*keys, time, value]].copy()
+        for name, values in exact.items():
+            frame[name] = pd.Series(values, index=frame.index, dtype=object)
         codes, time_nulls, self.kind, self.zone = _time_codes(frame[time])
         frame["__code"] = codes
         frame["__null_time"] = time_nulls
-        order = [*keys, "__null_time", "__code", value]
+        key_codes = [f"__key{i}" for i in range(len(keys))]
+        for name, column in zip(key_codes, keys, strict=True):
+            frame[name] = _key_codes(frame[column])
+        order = [*key_codes, "__null_time", "__code", value]
         frame = frame.sort_values(order, kind="stable", na_position="last")
-        self.frame = frame.reset_index(drop=True)
-        group_ids = self.frame.groupby(keys, sort=False, dropna=False).ngroup().to_numpy()
-        self.starts = np.flatnonzero(np.diff(group_ids, prepend=-1) != 0)
+        self.frame = frame.drop(columns=key_codes).reset_index(drop=True)
+        ranks = frame[key_codes].to_numpy()
+        changed = np.ones(len(frame), dtype=bool)
+        changed[1:] = (ranks[1:] != ranks[:-1]).any(axis=1)
+        self.starts = np.flatnonzero(changed)
         self.offsets = np.append(self.starts, len(frame)).astype(np.int64)
         self.values = pd.to_numeric(self.frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
         self.first_rows = self.frame.iloc[self.starts][keys]
