@@ -25,6 +25,16 @@ def con() -> duckdb.DuckDBPyConnection:
     connection.close()
 
 
+@pytest.fixture(scope="session")
+def spark():
+    """A local Spark session for the tests of the Spark front (started once, when asked)."""
+    from tidesplit import spark as tide_spark
+
+    session = tide_spark.local_session(cores=2)
+    yield session
+    session.stop()
+
+
 @pytest.fixture
 def rng() -> np.random.Generator:
     return np.random.default_rng(20261201)

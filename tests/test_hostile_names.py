@@ -3,7 +3,8 @@
 Each hostile name is used for the table and for the key, time and value columns, through the
 SQL macros, the Python functions and the command line's job on DuckDB. The answers must equal
 those of the same data under plain names, and nothing else in the database may change: the
-same tables and views, with the same contents, before and after.
+same tables and views, with the same contents, before and after. The Spark front (column
+names only: it reads DataFrames, not tables) uses the session of tests/test_spark.py.
 """
 
 from __future__ import annotations
@@ -174,3 +175,23 @@ def test_the_command_line_job_takes_any_name(name, tmp_path):
     np.testing.assert_array_equal(
         _sorted_numbers(out, ["trend", "seasonal"]), _sorted_numbers(mine, ["trend", "seasonal"])
     )
+
+
+def test_the_spark_front_takes_any_name(spark):
+    # one Spark DataFrame whose key, time and value columns carry the hostile names in turn
+    from tidesplit import spark as tide_spark
+
+    plain = plain_frame()
+    mine = tidesplit.split_table(plain, "k", "t", "v", period=PERIOD)
+    tried = 0
+    for name in HOSTILE:
+        k, t, v = name, name + " t", name + " v"
+        frame = spark.createDataFrame(plain.rename(columns={"k": k, "t": t, "v": v}))
+        out = tide_spark.split_table(frame, k, t, v, period=PERIOD).toArrow().to_pandas()
+        assert list(out.columns[:3]) == [k, t, v]
+        np.testing.assert_array_equal(
+            _sorted_numbers(out, ["trend", "seasonal"]),
+            _sorted_numbers(mine, ["trend", "seasonal"]),
+        )
+        tried += 1
+    assert tried == len(HOSTILE)

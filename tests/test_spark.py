@@ -26,13 +26,6 @@ from tidesplit.errors import ParamError, SplitError
 TOLERANCE = 1e-12
 
 
-@pytest.fixture(scope="session")
-def spark():
-    session = tide_spark.local_session(cores=2)
-    yield session
-    session.stop()
-
-
 def same(left: Any, right: Any) -> bool:
     """Equal values, floats to TOLERANCE (relative or absolute), lists, maps and structs
     compared item by item."""

@@ -17,6 +17,7 @@ split itself runs when the result is used.
 
 from __future__ import annotations
 
+import dataclasses
 import inspect
 import math
 import os
@@ -152,6 +153,9 @@ class _Plan:
     schema: pa.Schema  # of the result
     time_zone: str  # the session's, for TIMESTAMP (with time zone) columns
     points_per_key_limit: int
+    # the real names of the key, time and value columns, by the names the call sees them under
+    # (none: the call sees the real names)
+    real_names: dict[str, str] = dataclasses.field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -332,18 +336,33 @@ def _run(
         label = "{" + ", ".join(f"{k!r}: {v!r}" for k, v in sizes.longest_key.items()) + "}"
         raise _too_long(label, sizes.longest_points, points_per_key_limit)
 
-    schema = _result_schema(function, key_fields, time_field, value_field)
+    # Spark's grouped call reads a dot in a column name as a path into a struct, so the call
+    # sees the columns under names of our own and the answer takes the real ones back
+    real = [*keys, time_field.name, value_field.name]
+    inner = [f"__tide_key{i}" for i in range(len(keys))] + ["__tide_time", "__tide_value"]
+    frame = frame.toDF(*inner)
+    outer_schema = _result_schema(function, key_fields, time_field, value_field)
+    to_inner = dict(zip(real, inner, strict=True))
+    lead = len(outer_schema.fields) - len(_ANSWER_COLUMNS[function])
+    schema = st.StructType(
+        [
+            st.StructField(to_inner[f.name], f.dataType, f.nullable) if i < lead else f
+            for i, f in enumerate(outer_schema.fields)
+        ]
+    )
+    keys = inner[: len(keys)]
     session = frame.sparkSession
     time_zone = session.conf.get("spark.sql.session.timeZone") or "UTC"
     plan = _Plan(
         function=function,
         keys=tuple(keys),
-        time=time_field.name,
-        value=value_field.name,
+        time=inner[-2],
+        value=inner[-1],
         given=given,
         schema=to_arrow_schema(schema, timezone="UTC"),  # Spark's Arrow timestamps are UTC
         time_zone=time_zone,
         points_per_key_limit=points_per_key_limit,
+        real_names=dict(zip(inner, real, strict=True)),
     )
 
     def call(table):  # type: ignore[no-untyped-def]
@@ -363,7 +382,8 @@ def _run(
     with warnings.catch_warnings():
         # pyspark warns about pandas 3 on every grouped call; our path hands it Arrow only
         warnings.filterwarnings("ignore", "PySpark does not yet fully support pandas")
-        return grouped.applyInArrow(call, schema)
+        answer_frame = grouped.applyInArrow(call, schema)
+    return answer_frame.toDF(*[plan.real_names.get(f.name, f.name) for f in schema.fields])
 
 
 # ---------------------------------------------------------------- on the executors
@@ -434,14 +454,16 @@ def _hold_threads_to_task() -> None:
 def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
     """One bucket of many keys through the Python front of the plan's function."""
     _hold_threads_to_task()
-    frame = _to_pandas(table, plan)
-    counts = frame.groupby(list(plan.keys), dropna=False, sort=False).size()
+    frame = _to_pandas(table, plan).rename(columns=plan.real_names)
+    real = plan.real_names
+    keys = [real.get(k, k) for k in plan.keys]
+    counts = frame.groupby(keys, dropna=False, sort=False).size()
     if len(counts) and counts.max() > plan.points_per_key_limit:
         # the driver checked this; the data may have changed since (a live source)
         longest = counts.idxmax()
         values = longest if isinstance(longest, tuple) else (longest,)
         label = (
-            "{" + ", ".join(f"{k!r}: {v!r}" for k, v in zip(plan.keys, values, strict=True)) + "}"
+            "{" + ", ".join(f"{k!r}: {v!r}" for k, v in zip(keys, values, strict=True)) + "}"
         )
         raise _too_long(label, int(counts.max()), plan.points_per_key_limit)
     front = {
@@ -452,19 +474,21 @@ def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
         FORECAST: api.forecast,
     }[plan.function]
     try:
-        result = front(frame, list(plan.keys), plan.time, plan.value, **plan.given)
+        time, value = real.get(plan.time, plan.time), real.get(plan.value, plan.value)
+        result = front(frame, keys, time, value, **plan.given)
     except SplitError as error:
         # name the key as SQL does ({'k': 7}): the front shows numpy's scalars as they
         # print themselves (np.int64(7)), and a bucket's integer keys arrive as such
         raise SplitError(_NUMPY_SCALAR.sub(r"\1", str(error))) from None
     columns = []
     for field in plan.schema:
-        if field.name == "seasonal_by_period":
+        name = real.get(field.name, field.name)
+        if name == "seasonal_by_period":
             columns.append(_parts(result, field.type))
-        elif field.name == "strength_by_period" and field.name not in result:
+        elif name == "strength_by_period" and name not in result:
             columns.append(pa.nulls(len(result), field.type))
         else:
-            columns.append(_arrow_column(result[field.name], field.type))
+            columns.append(_arrow_column(result[name], field.type))
     return pa.Table.from_arrays(columns, schema=plan.schema)
 
 
