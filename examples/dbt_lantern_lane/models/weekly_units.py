@@ -5,8 +5,7 @@ from tidesplit.examples.retail_chain import weekly_units
 
 
 def model(dbt, session):
+    size = dbt.config.get("meta")
     return weekly_units(
-        shops=int(dbt.config.get("shops")),
-        products=int(dbt.config.get("products")),
-        years=int(dbt.config.get("years")),
+        shops=int(size["shops"]), products=int(size["products"]), years=int(size["years"])
     )
