@@ -393,6 +393,9 @@ EXAMPLES = {
     "forecast": "tidesplit forecast --from warehouse.duckdb:sales \\\n"
     "    --to postgresql://etl@db/shop --to-table sales_ahead \\\n"
     "    --key sku --time month --value units --steps-ahead 6",
+    "publish": "tidesplit publish --from warehouse.duckdb:sales --to warehouse.duckdb \\\n"
+    "    --schema adjusted --key store --key sku --time month --value units --period 12 \\\n"
+    "    --transform log",
 }
 WHAT = {
     "split": "trend, seasonal and remainder of every series, one row per input row "
@@ -400,6 +403,9 @@ WHAT = {
     "profile": "one row per series: strengths, peak and trough, status (tide_profile)",
     "outliers": "the unusual rows of every series (tide_outliers)",
     "forecast": "future rows of every series with intervals (tide_forecast)",
+    "publish": "components, profiles and seasonal factors as tables of a DuckDB file or a "
+    "PostgreSQL schema, with plain-SQL views for BI tools; a rerun refreshes only the keys "
+    "that changed (tide_split, tide_profile)",
 }
 # Settings of a run besides the SQL function's arguments: (option, job-file name, help).
 PLACES = (
@@ -512,6 +518,28 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
     run.add_argument(
         "--quiet", action="store_true", default=None, help="no progress bar and no last line"
     )
+    if command == "publish":
+        places.add_argument(
+            "--schema",
+            dest="schema",
+            help="the schema of the published tables and views (default: main in DuckDB, "
+            "the connection's search path in PostgreSQL)",
+        )
+        places.add_argument(
+            "--raw-table",
+            dest="raw_table",
+            help="the table new raw rows land in, read by the provisional view (default: the "
+            "source, when it is a table of the published database)",
+        )
+    else:
+        run.add_argument(
+            "--refresh",
+            action="store_true",
+            default=None,
+            help="recompute only the keys whose rows or arguments changed since the last "
+            "refresh, keep the rest, drop vanished keys, and record how far published "
+            "adjusted values moved (a Parquet file, a DuckDB or a PostgreSQL table)",
+        )
     run.add_argument(
         "--engine",
         choices=("duckdb", "spark"),
@@ -547,7 +575,8 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
 
 
 _RUN_SETTINGS = ("from", "to", "from_table", "from_query", "to_table", "key", "time",
-                 "value", "partition_by", "report", "batch_rows", "quiet", "engine")  # fmt: skip
+                 "value", "partition_by", "report", "batch_rows", "quiet", "engine", "refresh",
+                 "schema", "raw_table")  # fmt: skip
 
 
 def read_job_file(path: str, command: str) -> dict[str, object]:
@@ -605,9 +634,14 @@ def run_job(args: argparse.Namespace) -> int:
             "partition_by",
             "report",
             "engine",
+            "schema",
+            "raw_table",
         ):
             if name in settings and not isinstance(settings[name], str):
                 raise ParamError(f"{name} must be text, got {settings[name]!r}")
+        strays = [n for n in ("schema", "raw_table") if n in settings and command != "publish"]
+        if strays:
+            raise ParamError(f"{strays[0]} is a setting of publish, not of {command}")
         keys = settings["key"]
         if not isinstance(keys, list) or not all(isinstance(k, str) for k in keys):
             raise ParamError(f"key must be a column name or a list of them, got {keys!r}")
@@ -627,6 +661,9 @@ def run_job(args: argparse.Namespace) -> int:
             batch_rows=settings.get("batch_rows", elt.DEFAULT_BATCH_ROWS),
             report=settings.get("report"),
             engine=settings.get("engine", "duckdb"),
+            refresh=command == "publish" or bool(settings.get("refresh")),
+            schema=settings.get("schema"),
+            raw_table=settings.get("raw_table"),
         )
     except ParamError as error:
         print(f"tidesplit {command}: {error}", file=sys.stderr)
@@ -640,7 +677,7 @@ def run_job(args: argparse.Namespace) -> int:
     return outcome.exit_code
 
 
-COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast")
+COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast", "publish")
 
 
 def main(argv: Sequence[str] | None = None) -> int:

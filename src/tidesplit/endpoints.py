@@ -57,6 +57,7 @@ def literal(text: str) -> str:
 
 
 POSTGRES_PREFIXES = ("postgresql://", "postgres://")
+LEDGER_SUFFIX = "_refresh_keys"  # a refresh's ledger beside a table (``refresh``)
 DUCKDB_MARK = ".duckdb:"
 
 
@@ -446,9 +447,12 @@ class DuckDBTable(Target):
 
     def commit(self) -> None:
         final = f"{quoted(self.alias)}.main.{quoted(self.table)}"
+        ledger = f"{quoted(self.alias)}.main.{quoted(self.table + LEDGER_SUFFIX)}"
         self.con.execute("BEGIN TRANSACTION")
         try:
             self.con.execute(f"DROP TABLE IF EXISTS {final}")
+            # a full run leaves no ledger of a refresh that no longer describes the table
+            self.con.execute(f"DROP TABLE IF EXISTS {ledger}")
             self.con.execute(f"ALTER TABLE {self.stage} RENAME TO {quoted(self.table)}")
             self.con.execute("COMMIT")
         except duckdb.Error:
@@ -492,6 +496,7 @@ class PostgresTable(Target):
     def commit(self) -> None:
         with self.connection.cursor() as cursor:
             cursor.execute(f"DROP TABLE IF EXISTS {quoted(self.table)}")
+            cursor.execute(f"DROP TABLE IF EXISTS {quoted(self.table + LEDGER_SUFFIX)}")
             cursor.execute(f"ALTER TABLE {quoted(self.stage)} RENAME TO {quoted(self.table)}")
         self.connection.commit()
         self.connection.close()
