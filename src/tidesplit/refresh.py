@@ -84,7 +84,8 @@ def _match(left: str, right: str, names: Sequence[str], nulls: bool) -> str:
 def arguments_text(job: Any, settings: dict[str, Any]) -> str:
     """What the arguments' hash covers, as JSON: the command, the columns, the SQL
     function's arguments as given and the package version (a new version may compute
-    otherwise, so it recomputes every key).
+    otherwise, so it recomputes every key). The hash leaves out ``on_error``, which
+    decides whether a run goes on, not the numbers of a series.
 
     >>> from tidesplit.elt import Job
     >>> json.loads(arguments_text(Job("split", "a", "b", ["k"], "t", "v"), {"period": 4}))[
@@ -605,7 +606,9 @@ def run_refresh(job: Any, settings: dict[str, Any], outcome: Any, show_progress:
         relation = elt._source_rows(con, job, work, source)
         elt._check_columns(con, relation, job)
         text = arguments_text(job, settings)
-        digest = hashlib.sha256(text.encode()).hexdigest()
+        # on_error decides whether a run goes on, never a split series' numbers
+        hashed = arguments_text(job, {n: v for n, v in settings.items() if n != "on_error"})
+        digest = hashlib.sha256(hashed.encode()).hexdigest()
         now = datetime.datetime.now(datetime.UTC).replace(tzinfo=None, microsecond=0)
         refresh_id = f"{now:%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
         con.execute(
