@@ -156,3 +156,40 @@ def test_refresh_refusals(tmp_path, capsys):
     assert not (tmp_path / "o.parquet").exists()
     with pytest.raises(SystemExit):  # publish refreshes always; --refresh is not its option
         cli.main(["publish", "--from", str(source), "--to", "x.duckdb", *COLUMNS, "--refresh"])
+
+
+def test_kill_refreshes_into_a_parquet_file_and_a_duckdb_table(tmp_path):
+    """Refreshes killed at random moments leave the previous output whole; the next
+    refresh writes the complete output and leaves nothing aside."""
+    from test_elt_kill import KILLS, fingerprint_sql, kill_at_random_moments
+
+    source = tmp_path / "sales.parquet"
+    pq.write_table(first_state(), source)
+    target = tmp_path / "out" / "split.parquet"
+    target.parent.mkdir()
+    fell = kill_at_random_moments(
+        ["split", "--from", str(source), "--to", str(target), *COLUMNS, "--batch-rows", "3000",
+         "--refresh"],
+        lambda: duckdb.sql(fingerprint_sql(f"read_parquet('{target}')")).fetchall()[0],
+        lambda: sorted(p.name for p in target.parent.iterdir() if p.name.startswith(".")),
+        53,
+    )  # fmt: skip
+    assert sum(fell.values()) == KILLS
+    warehouse = tmp_path / "warehouse.duckdb"
+
+    def fingerprint() -> tuple:
+        with duckdb.connect(str(warehouse), read_only=True) as con:
+            return con.sql(fingerprint_sql("split")).fetchall()[0]
+
+    def leftovers() -> list[str]:
+        with duckdb.connect(str(warehouse), read_only=True) as con:
+            return [t for (t,) in con.sql("SHOW TABLES").fetchall() if t.startswith("tide_")]
+
+    fell = kill_at_random_moments(
+        ["split", "--from", str(source), "--to", f"{warehouse}:split", *COLUMNS,
+         "--batch-rows", "3000", "--refresh"],
+        fingerprint,
+        leftovers,
+        59,
+    )  # fmt: skip
+    assert sum(fell.values()) == KILLS

@@ -307,8 +307,11 @@ class ParquetFile(Target):
         self.folder = target.parent
         if not self.folder.is_dir():
             raise UnreachableError(f"no folder {self.folder} to write {target.name} into")
-        for stale in self.folder.glob(f".{target.name}.tide-*.tmp"):
-            stale.unlink(missing_ok=True)
+        for stale in self.folder.glob(f".{target.name}.tide-*"):  # a refresh's are folders
+            if stale.is_dir():
+                shutil.rmtree(stale, ignore_errors=True)
+            else:
+                stale.unlink(missing_ok=True)
         try:
             handle, name = tempfile.mkstemp(
                 prefix=f".{target.name}.tide-", suffix=".tmp", dir=self.folder

@@ -393,8 +393,11 @@ class ParquetStore:
         folder = self.target.parent
         if not folder.is_dir():
             raise UnreachableError(f"no folder {folder} to write {self.target.name} into")
-        for stale in folder.glob(f".{self.target.name}.tide-*"):
-            stale.unlink(missing_ok=True)
+        for stale in folder.glob(f".{self.target.name}.tide-*"):  # what a killed run left
+            if stale.is_dir():
+                shutil.rmtree(stale, ignore_errors=True)
+            else:
+                stale.unlink(missing_ok=True)
         try:
             self.aside = tempfile.mkdtemp(prefix=f".{self.target.name}.tide-", dir=folder)
         except OSError as error:
@@ -503,7 +506,8 @@ class ParquetStore:
         self._close_writer()
 
     def close(self) -> None:
-        shutil.rmtree(self.aside, ignore_errors=True)
+        if hasattr(self, "aside"):
+            shutil.rmtree(self.aside, ignore_errors=True)
 
 
 def revisions_sql(new: str, old: str, key: Sequence[str], time: str, nulls: bool) -> str:
