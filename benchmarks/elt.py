@@ -32,10 +32,10 @@ import time
 from pathlib import Path
 
 import duckdb
+from tidesplit.examples.retail_chain import SHOP_NAMES, weekly_units
 
 import tidesplit
 from tidesplit import elt
-from tidesplit.examples.retail_chain import SHOP_NAMES, weekly_units
 
 SETTINGS = {"period": 12}
 
@@ -192,23 +192,33 @@ def demo_refresh(folder: Path, repeat: int) -> None:
     moved = r_done.revisions or {}
     print(f"\nthe demo's publish (240 series, weekly, period 52, robust, log), week 311 from "
           f"4 of 12 shops, best of {repeat}:")  # fmt: skip
-    print(f"  refresh: {r_done.keys_recomputed} keys recomputed, {r_done.keys_reused} reused, "
-          f"{r_done.keys_dropped} dropped, {r_done.rows_out:,} rows: {r_seconds:.2f} s")
-    print(f"  full rerun (a new database): {f_done.keys_recomputed} keys computed, "
-          f"{f_done.rows_out:,} rows: {f_seconds:.2f} s  (refresh = "
-          f"{r_seconds / f_seconds:.2f} of the rerun)")
-    print(f"  revisions: {moved.get('keys_revised')} keys, {moved.get('points_compared'):,} "
-          f"published values compared; mean move {moved.get('mean_change'):.3f} units "
-          f"({100 * moved.get('mean_share'):.2f}% of the level), largest "
-          f"{moved.get('largest_change'):.2f} units ({100 * moved.get('largest_share'):.1f}% "
-          f"of its key's level) at {moved.get('largest_change_key')}")
+    print(
+        f"  refresh: {r_done.keys_recomputed} keys recomputed, {r_done.keys_reused} reused, "
+        f"{r_done.keys_dropped} dropped, {r_done.rows_out:,} rows: {r_seconds:.2f} s"
+    )
+    print(
+        f"  full rerun (a new database): {f_done.keys_recomputed} keys computed, "
+        f"{f_done.rows_out:,} rows: {f_seconds:.2f} s  (refresh = "
+        f"{r_seconds / f_seconds:.2f} of the rerun)"
+    )
+    print(
+        f"  revisions: {moved.get('keys_revised')} keys, {moved.get('points_compared'):,} "
+        f"published values compared; mean move {moved.get('mean_change'):.3f} units "
+        f"({100 * moved.get('mean_share'):.2f}% of the level), largest "
+        f"{moved.get('largest_change'):.2f} units ({100 * moved.get('largest_share'):.1f}% "
+        f"of its key's level) at {moved.get('largest_change_key')}"
+    )
     for latest, points, mean, share in moves:
         where = "the latest cycle" if latest else "the cycles before it"
-        print(f"    in {where}: {points:,} values moved by {mean:.3f} units on average "
-              f"({100 * share:.2f}% of the value)")
-    print(f"  the {first_seen[0]} new rows adjusted by the projected factors before the refresh "
-          f"moved by {100 * first_seen[1]:.2f}% on average ({100 * first_seen[2]:.1f}% at most) "
-          "when the refresh split them with the rest")
+        print(
+            f"    in {where}: {points:,} values moved by {mean:.3f} units on average "
+            f"({100 * share:.2f}% of the value)"
+        )
+    print(
+        f"  the {first_seen[0]} new rows adjusted by the projected factors before the refresh "
+        f"moved by {100 * first_seen[1]:.2f}% on average ({100 * first_seen[2]:.1f}% at most) "
+        "when the refresh split them with the rest"
+    )
 
 
 def split_refresh(folder: Path, series: int, changed: float, repeat: int) -> None:
@@ -244,10 +254,14 @@ def split_refresh(folder: Path, series: int, changed: float, repeat: int) -> Non
         full, key=lambda x: x[0])  # fmt: skip
     print(f"\n{series:,} series x 120 months ({rows:,} rows), the last month of one series in "
           f"{every} revised, Parquet to Parquet, best of {repeat}:")  # fmt: skip
-    print(f"  tidesplit split --refresh: {r_done.keys_recomputed:,} keys recomputed, "
-          f"{r_done.keys_reused:,} reused: {r_seconds:.2f} s")
-    print(f"  tidesplit split (a full run): {f_seconds:.2f} s  (refresh = "
-          f"{r_seconds / f_seconds:.2f} of the full run)")
+    print(
+        f"  tidesplit split --refresh: {r_done.keys_recomputed:,} keys recomputed, "
+        f"{r_done.keys_reused:,} reused: {r_seconds:.2f} s"
+    )
+    print(
+        f"  tidesplit split (a full run): {f_seconds:.2f} s  (refresh = "
+        f"{r_seconds / f_seconds:.2f} of the full run)"
+    )
 
 
 def main() -> None:
@@ -260,8 +274,12 @@ def main() -> None:
     parser.add_argument("--skip-fits", action="store_true")
     parser.add_argument("--skip-large", action="store_true")
     parser.add_argument("--skip-refresh", action="store_true")
-    parser.add_argument("--changed", type=float, default=0.02,
-                        help="share of series changed before the split refresh")
+    parser.add_argument(
+        "--changed",
+        type=float,
+        default=0.02,
+        help="share of series changed before the split refresh",
+    )
     args = parser.parse_args()
     folder = Path(args.folder)
     folder.mkdir(exist_ok=True)

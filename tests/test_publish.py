@@ -14,9 +14,9 @@ import duckdb
 import numpy as np
 import pytest
 from scipy.special import boxcox, inv_boxcox
+from tidesplit.examples.retail_chain import weekly_units
 
 from tidesplit import cli, elt, publish
-from tidesplit.examples.retail_chain import weekly_units
 
 WEEKS = 200  # published first; the raw table then gets weeks 200 to 203 for some shops
 COLUMNS = ["--key", "shop", "--key", "product", "--time", "week", "--value", "units"]
@@ -97,7 +97,8 @@ def test_publish_refresh_cycle_in_duckdb(tmp_path, shops):
         # position one cycle back
         rows = con.sql(
             "SELECT p.units, p.adjusted, f.seasonal, s.cycle_position, f.cycle_position "
-            "FROM provisional_adjusted AS p JOIN projected_factors AS f USING (shop, product, week) "
+            "FROM provisional_adjusted AS p "
+            "JOIN projected_factors AS f USING (shop, product, week) "
             "JOIN seasonal_factors AS s ON s.shop = p.shop AND s.product = p.product "
             "AND s.week = p.week - 52 WHERE p.adjusted IS NOT NULL"
         ).fetchall()
@@ -118,8 +119,9 @@ def test_publish_refresh_cycle_in_duckdb(tmp_path, shops):
             "WHERE adjusted IS NOT NULL").fetchall()  # fmt: skip
 
     # the new key's one row cannot be split: kept with its status, so the rest goes on
-    second = _publish(path, "--robust", "--transform", "log", "--on-error", "keep",
-                      expect=elt.EXIT_KEPT)
+    second = _publish(
+        path, "--robust", "--transform", "log", "--on-error", "keep", expect=elt.EXIT_KEPT
+    )
     assert (second["keys_recomputed"], second["keys_new"], second["keys_reused"],
             second["keys_dropped"]) == (33, 1, 28, 0)  # fmt: skip
     assert second["rows_in"] == second["rows_out"] == 60 * WEEKS + arrived
@@ -133,9 +135,10 @@ def test_publish_refresh_cycle_in_duckdb(tmp_path, shops):
             "SELECT max(abs(a.adjusted - p.adjusted) / a.adjusted) FROM provisional AS p "
             "JOIN adjusted_series AS a USING (shop, product, week)"
         ).fetchall()[0][0]
-        assert 0 < moved  # provisional values move when split with the rest
+        assert moved > 0  # provisional values move when split with the rest
         revised = con.sql(
-            "SELECT count(*) FROM components_revisions WHERE scope = 'key'").fetchall()
+            "SELECT count(*) FROM components_revisions WHERE scope = 'key'"
+        ).fetchall()
         assert revised == [(32,)]
         con.unregister("provisional")
         tables = {t for (t,) in con.sql("SHOW TABLES").fetchall()}

@@ -13,9 +13,9 @@ import pytest
 from elt_postgres import postgres_server
 from refresh_data import CHANGED, GROWN, KEYS, NEW, UNTOUCHED, VANISHED, first_state, later_state
 from test_elt import COLUMNS, _assert_same, _sql_answer
+from tidesplit.examples.retail_chain import weekly_units
 
 from tidesplit import cli, elt, publish
-from tidesplit.examples.retail_chain import weekly_units
 
 
 @pytest.fixture(scope="module")
@@ -97,8 +97,11 @@ def test_publish_into_a_postgres_schema_read_by_psql(server, tmp_path):
         assert len(_psql(server, f"SELECT * FROM mart.{view}")) == counts[view]
 
     # two shops' next four weeks arrive in the raw table before the refresh
-    newer = shops.filter(pa.compute.and_(
-        pa.compute.greater_equal(shops["week"], 200), pa.compute.less(shops["week"], 204)))
+    newer = shops.filter(
+        pa.compute.and_(
+            pa.compute.greater_equal(shops["week"], 200), pa.compute.less(shops["week"], 204)
+        )
+    )
     newer = newer.filter(pa.compute.is_in(newer["shop"], pa.array(["Quayside", "Millbrook"])))
     _ingest(server, "weekly_units", newer, mode="append")
     rows = _psql(server, "SELECT note, count(*) FROM mart.provisional_adjusted GROUP BY note")

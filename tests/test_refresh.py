@@ -37,7 +37,7 @@ def _read(target: str, table: str) -> pa.Table:
         stem = target[: -len(".parquet")]
         path = target if table == "split" else f"{stem}_{table.split('_', 1)[1]}.parquet"
         return pq.read_table(path)
-    path, name = target.split(".duckdb:")
+    path, _ = target.split(".duckdb:")
     with duckdb.connect(path + ".duckdb", read_only=True) as con:
         return con.sql(f'SELECT * FROM "{table}"').to_arrow_table()
 
@@ -149,8 +149,22 @@ def test_refresh_refusals(tmp_path, capsys):
     renamed = tmp_path / "odd.parquet"
     pq.write_table(pq.read_table(source).rename_columns(["store", "rows_in", "month", "units"]),
                    renamed)  # fmt: skip
-    code = cli.main(["split", "--from", str(renamed), "--to", str(tmp_path / "o.parquet"),
-                     "--key", "rows_in", "--time", "month", "--value", "units", "--refresh"])
+    code = cli.main(
+        [
+            "split",
+            "--from",
+            str(renamed),
+            "--to",
+            str(tmp_path / "o.parquet"),
+            "--key",
+            "rows_in",
+            "--time",
+            "month",
+            "--value",
+            "units",
+            "--refresh",
+        ]
+    )
     assert code == elt.EXIT_BAD_ARGUMENTS
     assert "ledger" in capsys.readouterr().err
     assert not (tmp_path / "o.parquet").exists()

@@ -130,9 +130,9 @@ def _raw_table(job: Any, source: Any) -> str:
 
     if job.raw_table:
         return job.raw_table
-    if is_postgres(job.source) and is_postgres(job.target) and job.source == job.target:
-        if job.source_table:
-            return job.source_table
+    same_server = is_postgres(job.source) and job.source == job.target
+    if same_server and job.source_table:
+        return job.source_table
     found = _duckdb_address(job.source) if ".duckdb:" in job.source else None
     if found and os.path.realpath(found[0]) == os.path.realpath(job.target):
         return found[1]

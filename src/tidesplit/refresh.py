@@ -481,7 +481,9 @@ class ParquetStore:
         moves = [(final, self.target)] if sources else []
         self.con.register("tide_ledger", ledger)
         aside_ledger = os.path.join(self.aside, "ledger.parquet")
-        self.con.execute(f"COPY tide_ledger TO {literal(aside_ledger)} (FORMAT parquet, {metadata})")
+        self.con.execute(
+            f"COPY tide_ledger TO {literal(aside_ledger)} (FORMAT parquet, {metadata})"
+        )
         moves.append((aside_ledger, self.ledger_path))
         if revisions is not None:
             self.con.register("tide_revisions", revisions)
@@ -615,9 +617,8 @@ def run_refresh(job: Any, settings: dict[str, Any], outcome: Any, show_progress:
         digest = hashlib.sha256(hashed.encode()).hexdigest()
         now = datetime.datetime.now(datetime.UTC).replace(tzinfo=None, microsecond=0)
         refresh_id = f"{now:%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
-        con.execute(
-            f"CREATE TEMP TABLE tide_now AS {fingerprint_sql(relation, job.key, job.time, job.value)}"
-        )
+        fingerprints = fingerprint_sql(relation, job.key, job.time, job.value)
+        con.execute(f"CREATE TEMP TABLE tide_now AS {fingerprints}")
         previous = store.ledger()
         outcome.refresh_note = store.note
         if previous is not None:
@@ -719,8 +720,7 @@ def _plan(con: Any, key: Sequence[str], digest: str) -> bool:
         f"CREATE TEMP TABLE tide_plan AS SELECT {keys}, CASE WHEN b.tide_seen IS NULL THEN 'new' "
         f"WHEN n.tide_seen IS NULL THEN 'dropped' WHEN {same} THEN 'reused' ELSE 'changed' END "
         "AS decision FROM (SELECT *, true AS tide_seen FROM tide_now) AS n FULL JOIN "
-        "(SELECT *, true AS tide_seen FROM tide_before) AS b ON "
-        + _match("n", "b", key, True)
+        "(SELECT *, true AS tide_seen FROM tide_before) AS b ON " + _match("n", "b", key, True)
     )
     return nulls
 
