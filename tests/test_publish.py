@@ -189,3 +189,27 @@ def test_publish_needs_a_raw_table(tmp_path, shops, capsys):
     assert code == elt.EXIT_BAD_ARGUMENTS
     assert "--raw-table" in capsys.readouterr().err
     assert not (tmp_path / "m.duckdb").exists()
+
+
+def test_hostile_names_in_publish_inject_nothing(tmp_path, shops):
+    """Key, time, value, schema and raw table names full of quotes travel as names into
+    the tables and the views."""
+    key, when, value = 'k"; DROP TABLE guard; --', "t'); DROP TABLE guard; --", 'v" ,"x'
+    schema, raw = 's"; DROP TABLE guard; --', 'raw"; DROP TABLE guard; --'
+    path = tmp_path / "odd.duckdb"
+    few = shops.slice(0, 3 * 208).rename_columns(["shop", key, when, value]).drop(["shop"])
+    with duckdb.connect(str(path)) as con:
+        con.execute("CREATE TABLE guard AS SELECT 1 AS one")
+        con.register("few", few)
+        quoted = '"' + raw.replace('"', '""') + '"'
+        con.execute(f"CREATE TABLE {quoted} AS SELECT * FROM few")
+    code = cli.main(["publish", "--from", f"{path}:{raw}", "--to", str(path), "--schema", schema,
+                     "--key", key, "--time", when, "--value", value, "--period", "52",
+                     "--quiet"])  # fmt: skip
+    assert code == elt.EXIT_OK
+    with duckdb.connect(str(path), read_only=True) as con:
+        assert con.sql("SELECT count(*) FROM guard").fetchall() == [(1,)]
+        name = '"' + schema.replace('"', '""') + '"'
+        for view in publish.VIEWS:
+            assert con.sql(f"SELECT count(*) FROM {name}.{view}").fetchall()[0][0] >= 0
+        assert con.sql(f"SELECT count(*) FROM {name}.adjusted_series").fetchall() == [(624,)]

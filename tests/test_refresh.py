@@ -207,3 +207,23 @@ def test_kill_refreshes_into_a_parquet_file_and_a_duckdb_table(tmp_path):
         59,
     )  # fmt: skip
     assert sum(fell.values()) == KILLS
+
+
+def test_a_bad_new_key_under_raise_leaves_the_target(tmp_path, capsys):
+    """A refresh that meets a bad series under 'raise' names it and changes nothing."""
+    target = f"{tmp_path / 'warehouse.duckdb'}:split"
+    good = first_state().filter(pa.compute.greater(first_state()["sku"], 100))
+    path = tmp_path / "in.parquet"
+    pq.write_table(good, path)
+    args = ["split", "--from", str(path), "--to", target, *COLUMNS, "--period", "12", "--quiet",
+            "--refresh"]  # fmt: skip
+    assert cli.main(args) == elt.EXIT_OK
+    before = _read(target, "split"), _read(target, "split_refresh_keys")
+    pq.write_table(first_state(), path)  # with sku 11, too short
+    assert cli.main(args) == elt.EXIT_BAD_SERIES
+    assert "'sku': 11" in capsys.readouterr().err
+    assert _read(target, "split").equals(before[0])
+    assert _read(target, "split_refresh_keys").equals(before[1])
+    with duckdb.connect(str(tmp_path / "warehouse.duckdb"), read_only=True) as con:
+        tables = sorted(t for (t,) in con.sql("SHOW TABLES").fetchall())
+    assert tables == ["split", "split_refresh_keys", "split_revisions"]

@@ -156,9 +156,10 @@ def view_statements(job: Any, place: Any, source: Any) -> tuple[list[str], list[
     names["raw"] = _q(raw) if is_postgres(job.target) else f"main.{_q(raw)}"
     names["keys"] = ", ".join(_q(k) for k in job.key)
     names["time"], names["value"] = _q(job.time), _q(job.value)
-    made = [s.strip() for s in _without_comments(view_text()).format(**names).split(";")]
+    # statements split before the names go in: a name may hold a semicolon
+    statements = [s.strip() for s in _without_comments(view_text()).split(";")]
     before = [f"DROP VIEW IF EXISTS {place.name(v)}" for v in VIEWS]
-    return before, [s for s in made if s]
+    return before, [s.format(**names) for s in statements if s]
 
 
 def _without_comments(text: str) -> str:
