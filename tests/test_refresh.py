@@ -227,3 +227,33 @@ def test_a_bad_new_key_under_raise_leaves_the_target(tmp_path, capsys):
     with duckdb.connect(str(tmp_path / "warehouse.duckdb"), read_only=True) as con:
         tables = sorted(t for (t,) in con.sql("SHOW TABLES").fetchall())
     assert tables == ["split", "split_refresh_keys", "split_revisions"]
+
+
+@pytest.mark.parametrize(
+    ("command", "named", "by"),
+    [
+        ("profile", {"period": 12}, ["store", "sku"]),
+        ("forecast", {"period": 12, "steps_ahead": 3}, ["store", "sku", "steps_ahead"]),
+    ],
+)
+def test_answers_refresh_too(tmp_path, command, named, by):
+    """Profiles and forecasts refresh key by key as splits do (from a job file); they
+    have no adjusted values, so no revisions."""
+    target = f"{tmp_path / 'warehouse.duckdb'}:answer"
+    path = tmp_path / "source.parquet"
+    lines = [f'from = "{path}"', f'to = "{target}"', 'key = ["store", "sku"]', 'time = "month"',
+             'value = "units"', 'on_error = "keep"', "refresh = true", "quiet = true",
+             *(f"{n} = {v}" for n, v in named.items())]  # fmt: skip
+    job = tmp_path / "job.toml"
+    job.write_text("\n".join(lines) + "\n")
+    report = tmp_path / "report.json"
+    for state in (first_state(), later_state()):
+        pq.write_table(state, path)
+        assert cli.main([command, "--job", str(job), "--report", str(report)]) == elt.EXIT_KEPT
+    done = json.loads(report.read_text())
+    changed = len(CHANGED) + len(GROWN)
+    assert _counts(done) == (changed + len(NEW), len(NEW), UNTOUCHED, len(VANISHED))
+    assert done["revisions"] is None
+    sql_named = "".join(f", {n} := {v}" for n, v in named.items())
+    expected = _sql_answer(later_state(), command, f"{sql_named}, on_error := 'keep'")
+    _assert_same(_read(target, "answer"), expected, by)
