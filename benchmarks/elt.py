@@ -4,19 +4,20 @@
    the job engine (``tidesplit.elt.run``, what ``tidesplit split`` runs) beside the same
    tide_split query run by hand inside DuckDB, Parquet to Parquet, in one process with the
    kernel warm, best of ``--repeat``. Goal: the command line at least 0.8 of the query.
+2. A large size (default 3,000,000 series x 120 months = 360 million rows):
+   ``tidesplit split`` as a user runs it, in a process of its own, with its peak resident
+   memory (from the kernel's accounting of the child). Goal: under 4 GiB.
 3. Refresh (``--skip-refresh`` leaves it out): the demo's shop sales published with
    ``tidesplit publish`` (240 series, weeks 0 to 310), then week 311 arrives from 4 of the
    12 shops: the refresh (80 keys recomputed, 160 reused) beside a full rerun of the same
    publish into a new database; and ``tidesplit split --refresh`` of the first size's
    series after 2% of them changed, beside the full run (Parquet to Parquet). Both in one
    process with the kernel warm, best of ``--repeat``.
-2. A large size (default 3,000,000 series x 120 months = 360 million rows):
-   ``tidesplit split`` as a user runs it, in a process of its own, with its peak resident
-   memory (from the kernel's accounting of the child). Goal: under 4 GiB.
 
-    python benchmarks/elt.py                       # both, full sizes
+    python benchmarks/elt.py                       # all three, full sizes
     python benchmarks/elt.py --large 300000        # a smaller large run
     python benchmarks/elt.py --skip-large --fits 50000
+    python benchmarks/elt.py --skip-fits --skip-large   # the refresh alone (README's table)
 
 The invented data (our own formula: a level, a trend, a yearly cycle, hashed noise) is
 written once into --folder and reused.
