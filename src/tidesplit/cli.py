@@ -495,12 +495,17 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     places = parser.add_argument_group("source, target and columns")
+    publishing = command == "publish"
     for option, name, words in PLACES[:2]:
+        if publishing and name == "to":
+            words = "the DuckDB file (FILE.duckdb) or the postgresql:// address to publish into"
         places.add_argument(option, dest=name, metavar="ADDRESS", help=words)
     places.add_argument(
         "--key", action="append", dest="key", help="a key column; repeat for several"
     )
     for option, name, words in PLACES[2:]:
+        if publishing and name in ("to_table", "partition_by"):
+            continue  # publish names its own tables
         places.add_argument(option, dest=name, help=words)
     run = parser.add_argument_group("the run")
     run.add_argument(
@@ -540,12 +545,13 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
             "refresh, keep the rest, drop vanished keys, and record how far published "
             "adjusted values moved (a Parquet file, a DuckDB or a PostgreSQL table)",
         )
-    run.add_argument(
-        "--engine",
-        choices=("duckdb", "spark"),
-        help="where the series are split (default duckdb); spark reads Parquet or CSV with "
-        "Spark, splits the keys on its executors (tidesplit.spark) and writes Parquet",
-    )
+    if not publishing:
+        run.add_argument(
+            "--engine",
+            choices=("duckdb", "spark"),
+            help="where the series are split (default duckdb); spark reads Parquet or CSV "
+            "with Spark, splits the keys on its executors (tidesplit.spark) and writes Parquet",
+        )
     named = parser.add_argument_group(
         f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
     )
