@@ -14,8 +14,10 @@ import duckdb
 import numpy as np
 import pytest
 from scipy.special import boxcox, inv_boxcox
+from test_elt import _assert_same
 from tidesplit.examples.retail_chain import weekly_units
 
+import tidesplit
 from tidesplit import cli, elt, publish
 
 WEEKS = 200  # published first; the raw table then gets weeks 200 to 203 for some shops
@@ -144,6 +146,22 @@ def test_publish_refresh_cycle_in_duckdb(tmp_path, shops):
         tables = {t for (t,) in con.sql("SHOW TABLES").fetchall()}
     assert tables == {*publish.TABLES, *publish.VIEWS, "weekly_units",
                       "components_refresh_keys", "components_revisions"}  # fmt: skip
+    # after the refresh, the published tables hold what the SQL macros give over the
+    # whole raw table, the reused keys' rows as much as the recomputed ones
+    with duckdb.connect(str(path), read_only=True) as con:
+        raw = con.sql("SELECT * FROM weekly_units").to_arrow_table()
+        components = con.sql("SELECT * FROM components").to_arrow_table()
+        profiles = con.sql("SELECT * FROM profiles").to_arrow_table()
+    sql = tidesplit.connect()
+    sql.register("weekly_units", raw)
+    named = "period := 52, robust := true, transform := 'log', on_error := 'keep'"
+    for table, function, by in ((components, "split", ["shop", "product", "week"]),
+                                (profiles, "profile", ["shop", "product"])):  # fmt: skip
+        expected = sql.sql(
+            f"SELECT * FROM tide_{function}(weekly_units, ['shop', 'product'], 'week', "
+            f"'units', {named})"
+        ).to_arrow_table()
+        _assert_same(table, expected, by)
 
 
 def test_box_cox_adjusts_raw_rows_as_scipy_does(tmp_path, shops):
