@@ -62,8 +62,17 @@ def parts_of(job: Any, settings: dict[str, Any], outcome: Any, source: Any) -> l
     cycles: dict[str, Any] = {}
 
     def components(con: Any) -> Any:
+        # one split on the whole regular grid serves both the components (the input's rows:
+        # a gap's rows only when fill_gaps was asked for) and the latest cycle below; the
+        # inserted rows change no number of the others (tested against tide_split)
+        import pyarrow.compute as pc
+
         cycles.clear()
-        return elt.answer_batch(con, job, settings, outcome)
+        filled = elt.answer_batch(con, job, {**settings, "fill_gaps": True}, outcome)
+        cycles["filled"] = filled
+        if settings.get("fill_gaps"):
+            return filled
+        return filled.filter(pc.invert(pc.fill_null(filled["inserted"], False)))
 
     def profiles(con: Any) -> Any:
         return con.sql(f"SELECT * FROM tide_profile({columns}{quiet})").to_arrow_table()
@@ -72,18 +81,21 @@ def parts_of(job: Any, settings: dict[str, Any], outcome: Any, source: Any) -> l
         # on the regular grid (gaps filled), so the last `period` rows are one whole cycle
         # and a row's cycle position is its place on the grid modulo the period, as in
         # tide_profile's peak_position
-        filled = _named(settings, ("fill_gaps", "on_error"), fill_gaps=True, on_error="keep")
-        rows = con.sql(
-            f"""
-            SELECT {keys}, {time}, grid_index % period AS cycle_position, period, seasonal,
-                   boxcox_lambda
-            FROM (SELECT *, row_number() OVER (PARTITION BY {keys} ORDER BY {time}) - 1
-                            AS grid_index,
-                         count(*) OVER (PARTITION BY {keys}) AS grid_points
-                  FROM tide_split({columns}{filled}) WHERE {OK_STATUS})
-            WHERE grid_index >= grid_points - period
-            """
-        ).to_arrow_table()
+        con.register("tide_filled_rows", cycles.pop("filled"))
+        try:
+            rows = con.sql(
+                f"""
+                SELECT {keys}, {time}, grid_index % period AS cycle_position, period,
+                       seasonal, boxcox_lambda
+                FROM (SELECT *, row_number() OVER (PARTITION BY {keys} ORDER BY {time}) - 1
+                                AS grid_index,
+                             count(*) OVER (PARTITION BY {keys}) AS grid_points
+                      FROM tide_filled_rows WHERE {OK_STATUS})
+                WHERE grid_index >= grid_points - period
+                """
+            ).to_arrow_table()
+        finally:
+            con.unregister("tide_filled_rows")
         cycles["latest"] = rows
         return rows
 
