@@ -1,0 +1,209 @@
+"""Season and trend spans chosen per series (``choose_spans``), before the split itself.
+
+Each series gets the pair of spans, from a short list of candidates, whose non-robust fit
+(trend plus seasonal) has the smallest generalised cross-validation score (Craven & Wahba
+1979; see ``kernel/spans.py``). Then it is split as asked (robust or not) with that pair.
+
+Three routes, by what the series allows:
+
+- complete, non-robust, at most ``linear.MAX_POINTS`` points: the exact score, from the
+  linear maps cached per length and spans, one matrix product per candidate for all series
+  of a length at once;
+- with missing values, or split robustly: one pilot split with the given (or default) spans,
+  as asked; each missing point is filled with the pilot's fit and each point moved towards
+  the pilot's fit by its robustness weight (``fit + weight x (value - fit)``); the filled
+  series is scored like a complete one, each residual counted by the point's weight (0 for
+  a point filled in). The score is then that of the non-robust map on the cleaned series,
+  not of the robust fit itself, which has no fixed map; the cost is one split more;
+- longer than ``linear.MAX_POINTS``: one ordinary split per candidate, the trace estimated
+  from random probes (``kernel.spans.probe_trace``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from .kernel import linear, spans, threads
+from .kernel.layout import (
+    COL_ACTIVE,
+    COL_OUTER,
+    COL_PERIOD,
+    COL_SEASON_JUMP,
+    COL_SEASON_SPAN,
+    COL_TREND_JUMP,
+    COL_TREND_SPAN,
+)
+from .kernel.stl import stl_batch_parallel, stl_batch_serial
+from .params import default_jump, default_trend_span, smallest_odd_at_least
+
+# The season spans tried besides the given or default one: short spans for a pattern that
+# moves, long ones for a steady one, 0 for one that stays the same. Finite spans beyond
+# twice the number of cycles are left out: there the loess of each cycle-subseries already
+# spans all of it and hardly changes with the span (ours).
+SEASON_CANDIDATES = (7, 11, 15, 23, 35, 0)
+# Trend spans tried for each season span: the published rule's value for it (Cleveland et
+# al. 1990, section 3) and longer ones. Shorter ones are not tried: below the rule the trend
+# starts to take up seasonal variation, which the score of the total fit cannot see.
+TREND_FACTORS = (1.0, 1.5, 2.5)
+
+# Which of the spans and jumps were given (kept as they are), in this order.
+FIXED_SEASON, FIXED_TREND, FIXED_SEASON_JUMP, FIXED_TREND_JUMP = range(4)
+
+
+def candidate_pairs(
+    period: int, n: int, season: int, trend: int, fixed: np.ndarray
+) -> list[tuple[int, int]]:
+    """The (season span, trend span) pairs tried for a series of ``n`` points; the given
+    or default pair first, so that it wins a tie.
+
+    >>> candidate_pairs(12, 120, 13, 21, np.zeros(4, bool))[:4]
+    [(13, 21), (13, 33), (13, 53), (7, 23)]
+    >>> candidate_pairs(12, 120, 0, 19, np.array([True, False, False, False]))
+    [(0, 19), (0, 29), (0, 49)]
+    """
+    cycles = -(-n // period)
+    seasons = [season]
+    if not fixed[FIXED_SEASON]:
+        seasons += [s for s in SEASON_CANDIDATES if s == 0 or s <= 2 * cycles + 1]
+    pairs = [(season, trend)]
+    for ns in seasons:
+        if fixed[FIXED_TREND]:
+            trends = [trend]
+        else:
+            rule = default_trend_span(period, ns)
+            trends = [smallest_odd_at_least(rule * f) for f in TREND_FACTORS]
+        pairs += [(ns, nt) for nt in trends]
+    return list(dict.fromkeys(pairs))
+
+
+def _with_spans(row: np.ndarray, season: int, trend: int, fixed: np.ndarray) -> np.ndarray:
+    out = row.copy()
+    out[COL_SEASON_SPAN] = season
+    out[COL_TREND_SPAN] = trend
+    if not fixed[FIXED_SEASON_JUMP]:
+        out[COL_SEASON_JUMP] = default_jump(season)
+    if not fixed[FIXED_TREND_JUMP]:
+        out[COL_TREND_JUMP] = default_jump(trend)
+    return out
+
+
+def _gather(flat: np.ndarray, offsets: np.ndarray, members: np.ndarray, n: int) -> np.ndarray:
+    return flat[offsets[members][:, None] + np.arange(n)]
+
+
+def choose(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    wanted: np.ndarray,
+    fixed: np.ndarray,
+    run: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray]],
+    parallel: bool,
+) -> None:
+    """Write the chosen spans (and their jumps) into ``settings`` (series x settings) for
+    each active series where ``wanted``.
+
+    ``fixed`` (series x 4) says which spans and jumps were given; ``run(y, offsets,
+    settings, parallel)`` is the batch path's kernel run, used for the pilot splits.
+    """
+    members = np.flatnonzero(wanted & (settings[:, COL_ACTIVE] == 1))
+    if members.size == 0:
+        return
+    lengths = np.diff(offsets)
+    gaps = np.isnan(y)
+    gappy = np.zeros(lengths.size, dtype=bool)
+    if gaps.any():
+        running = np.concatenate(([0], np.cumsum(gaps, dtype=np.int64)))
+        gappy = (running[offsets[1:]] - running[offsets[:-1]]) > 0
+    robust = settings[:, COL_OUTER] > 0
+    # the values scored and each point's weight in the score (None: every point fully)
+    filled = y
+    weights = None
+    piloted = members[gappy[members] | robust[members]]
+    if piloted.size:
+        filled, weights = _pilot(y, offsets, settings, piloted, run, parallel)
+    # groups of one length, settings row and fixed flags share their candidates
+    rows = settings[members]
+    keys = np.concatenate([lengths[members, None], rows, fixed[members].astype(np.int64)], 1)
+    distinct, group_of = np.unique(keys, axis=0, return_inverse=True)
+    group_of = group_of.reshape(-1)
+    for g in range(distinct.shape[0]):
+        chosen = members[group_of == g]
+        n = int(lengths[chosen[0]])
+        row = settings[chosen[0]].copy()
+        flags = fixed[chosen[0]]
+        pairs = candidate_pairs(
+            int(row[COL_PERIOD]), n, int(row[COL_SEASON_SPAN]), int(row[COL_TREND_SPAN]), flags
+        )
+        # the score is that of the non-robust map, whatever the split asked for
+        plain = row.copy()
+        if robust[chosen[0]]:
+            plain[COL_OUTER] = 0
+        tried = [_with_spans(plain, s, t, flags) for s, t in pairs]
+        series = _gather(filled, offsets, chosen, n)
+        point_weights = None if weights is None else _gather(weights, offsets, chosen, n)
+        if point_weights is not None and (point_weights == 1.0).all():
+            point_weights = None
+        if n <= linear.MAX_POINTS:
+            with threads.blas_for(parallel):
+                scores = spans.scores_by_operator(series, point_weights, tried)
+        else:
+            scores = _scores_by_splits(series, point_weights, tried, parallel)
+        finite = np.isfinite(scores)
+        scores[~finite] = np.inf
+        best = np.argmin(scores, axis=1)
+        best[~finite.any(axis=1)] = 0  # nothing scored: keep the given or default pair
+        for k in np.unique(best):
+            season, trend = pairs[int(k)]
+            settings[chosen[best == k]] = _with_spans(row, season, trend, flags)
+
+
+def _pilot(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    piloted: np.ndarray,
+    run: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray]],
+    parallel: bool,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Values cleaned by a pilot split (missing points filled, points moved towards the fit
+    by their robustness weight) and each point's weight in the score."""
+    lengths = np.diff(offsets)
+    pilot = settings.copy()
+    pilot[:, COL_ACTIVE] = 0
+    pilot[piloted, COL_ACTIVE] = 1
+    trend, seasonal, weight = run(y, offsets, pilot, parallel)
+    rows = np.repeat(pilot[:, COL_ACTIVE] == 1, lengths)
+    fit = trend + seasonal
+    point_weight = np.ones(y.size)
+    point_weight[rows] = np.where(np.isnan(y[rows]), 0.0, np.clip(weight[rows], 0.0, 1.0))
+    filled = y.copy()
+    usable = rows & np.isfinite(fit)
+    filled[usable] = fit[usable] + point_weight[usable] * np.nan_to_num(y[usable] - fit[usable])
+    # a pilot that broke down leaves its series as it was (its score is then not finite,
+    # and the series keeps the given or default spans)
+    return filled, point_weight
+
+
+def _scores_by_splits(
+    series: np.ndarray, weights: np.ndarray | None, rows: list[np.ndarray], parallel: bool
+) -> np.ndarray:
+    """GCV of each long series under each settings row: one split per candidate, the
+    trace from random probes."""
+    m, n = series.shape
+    flat = np.ascontiguousarray(series).ravel()
+    offsets = np.arange(0, m * n + 1, n, dtype=np.int64)
+    points = np.full(m, float(n)) if weights is None else weights.sum(axis=1)
+    out = np.empty((m, len(rows)))
+    trend = np.empty(flat.size)
+    seasonal = np.empty(flat.size)
+    weight = np.empty(flat.size)
+    run = stl_batch_parallel if parallel else stl_batch_serial
+    for k, row in enumerate(rows):
+        run(flat, offsets, np.tile(row, (m, 1)), trend, seasonal, weight)
+        residual = (flat - trend - seasonal).reshape(m, n)
+        squares = residual * residual if weights is None else residual * residual * weights
+        out[:, k] = spans.gcv(squares.sum(axis=1), points, spans.probe_trace(n, row), n)
+    return out
