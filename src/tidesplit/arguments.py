@@ -222,9 +222,8 @@ REGISTRY: tuple[Argument, ...] = (
     Argument(
         "choose_spans",
         FLAG,
-        "choose season_span and trend_span per series from the data, by generalised "
-        "cross-validation of the fit (see Choosing spans); a span given is kept and the "
-        "other chosen",
+        "choose season_span and trend_span per series from the data, by an information "
+        "criterion of the fit (see Choosing spans); a span given is kept and the other chosen",
         (SPLIT, SPLIT_LIST, PROFILE),
         default=False,
     ),

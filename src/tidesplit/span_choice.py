@@ -1,8 +1,8 @@
 """Season and trend spans chosen per series (``choose_spans``), before the split itself.
 
 Each series gets the pair of spans, from a short list of candidates, whose non-robust fit
-(trend plus seasonal) has the smallest generalised cross-validation score (Craven & Wahba
-1979; see ``kernel/spans.py``). Then it is split as asked (robust or not) with that pair.
+(trend plus seasonal) has the smallest improved Akaike criterion (Hurvich, Simonoff & Tsai
+1998; see ``kernel/spans.py``). Then it is split as asked (robust or not) with that pair.
 
 Three routes, by what the series allows:
 
@@ -151,10 +151,10 @@ def choose(
                 scores = spans.scores_by_operator(series, point_weights, tried)
         else:
             scores = _scores_by_splits(series, point_weights, tried, parallel)
-        finite = np.isfinite(scores)
-        scores[~finite] = np.inf
+        # NaN (a pilot that broke down) scores nothing; minus infinity is a perfect fit
+        scores[np.isnan(scores)] = np.inf
+        # ties (every score infinite, say) go to the first: the given or default pair
         best = np.argmin(scores, axis=1)
-        best[~finite.any(axis=1)] = 0  # nothing scored: keep the given or default pair
         for k in np.unique(best):
             season, trend = pairs[int(k)]
             settings[chosen[best == k]] = _with_spans(row, season, trend, flags)
@@ -190,8 +190,8 @@ def _pilot(
 def _scores_by_splits(
     series: np.ndarray, weights: np.ndarray | None, rows: list[np.ndarray], parallel: bool
 ) -> np.ndarray:
-    """GCV of each long series under each settings row: one split per candidate, the
-    trace from random probes."""
+    """The criterion of each long series under each settings row: one split per
+    candidate, the trace from random probes."""
     m, n = series.shape
     flat = np.ascontiguousarray(series).ravel()
     offsets = np.arange(0, m * n + 1, n, dtype=np.int64)
@@ -205,5 +205,5 @@ def _scores_by_splits(
         run(flat, offsets, np.tile(row, (m, 1)), trend, seasonal, weight)
         residual = (flat - trend - seasonal).reshape(m, n)
         squares = residual * residual if weights is None else residual * residual * weights
-        out[:, k] = spans.gcv(squares.sum(axis=1), points, spans.probe_trace(n, row), n)
+        out[:, k] = spans.aicc(squares.sum(axis=1), points, spans.probe_trace(n, row), n)
     return out
