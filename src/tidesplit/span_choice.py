@@ -10,11 +10,11 @@ Three routes, by what the series allows:
   linear maps cached per length and spans, one matrix product per candidate for all series
   of a length at once;
 - with missing values, or split robustly: one pilot split with the given (or default) spans,
-  as asked; each missing point is filled with the pilot's fit and each point moved towards
-  the pilot's fit by its robustness weight (``fit + weight x (value - fit)``); the filled
-  series is scored like a complete one, each residual counted by the point's weight (0 for
-  a point filled in). The score is then that of the non-robust map on the cleaned series,
-  not of the robust fit itself, which has no fixed map; the cost is one split more;
+  as asked; each missing point, and each point the robust pilot sets aside (robustness
+  weight below ``tuning.SET_ASIDE_WEIGHT``, as ``tide_outliers`` does), is filled with the
+  pilot's fit; the filled series is scored like a complete one, with only the residuals of
+  the points kept. The score is then that of the non-robust map on the cleaned series, not
+  of the robust fit itself, which has no fixed map; the cost is one split more;
 - longer than ``linear.MAX_POINTS``: one ordinary split per candidate, the trace estimated
   from random probes (``kernel.spans.probe_trace``).
 """
@@ -37,6 +37,7 @@ from .kernel.layout import (
 )
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import default_jump, default_trend_span, smallest_odd_at_least
+from .tuning import SET_ASIDE_WEIGHT
 
 # The season spans tried besides the given or default one: short spans for a pattern that
 # moves, long ones for a steady one, 0 for one that stays the same. Finite spans beyond
@@ -177,11 +178,13 @@ def _pilot(
     trend, seasonal, weight = run(y, offsets, pilot, parallel)
     rows = np.repeat(pilot[:, COL_ACTIVE] == 1, lengths)
     fit = trend + seasonal
-    point_weight = np.ones(y.size)
-    point_weight[rows] = np.where(np.isnan(y[rows]), 0.0, np.clip(weight[rows], 0.0, 1.0))
+    # a point set aside (as tide_outliers sets them aside) or missing is filled with the
+    # pilot's fit and counts for nothing; the others count as they are, so that the pilot's
+    # spans do not pull the cleaned series towards themselves
+    aside = rows & (np.isnan(y) | ~(weight >= SET_ASIDE_WEIGHT))
+    point_weight = np.where(aside, 0.0, 1.0)
     filled = y.copy()
-    usable = rows & np.isfinite(fit)
-    filled[usable] = fit[usable] + point_weight[usable] * np.nan_to_num(y[usable] - fit[usable])
+    filled[aside] = fit[aside]
     # a pilot that broke down leaves its series as it was (its score is then not finite,
     # and the series keeps the given or default spans)
     return filled, point_weight

@@ -135,6 +135,7 @@ def scores_by_operator(
     scale = series.std(axis=1, keepdims=True)
     scale[scale == 0] = 1.0
     standard = ((series - centre) / scale).astype(np.float32)
+    squared_scale = scale[:, 0] ** 2  # the residuals back on the series' own scale
     if weights is None:
         points = np.full(m, float(n))
     else:
@@ -150,5 +151,5 @@ def scores_by_operator(
             rss = np.einsum("ij,ij->i", fitted, fitted, dtype=np.float64)
         else:
             rss = np.einsum("ij,ij,ij->i", fitted, fitted, weights, dtype=np.float64)
-        out[:, k] = aicc(rss, points, trace, n)
+        out[:, k] = aicc(rss * squared_scale, points, trace, n)
     return out
