@@ -7,8 +7,8 @@
 
 Both queries run on one table in one process: each once to warm up (compiles, builds and
 caches the linear maps of every candidate pair; its time is printed too), then timed as the
-best of ``--runs``. The ratio is the cost of the choice. The data are the suite's invented monthly series
-(``suite.make_batch``); the spans chosen are counted at the end.
+best of ``--runs``. The ratio is the cost of the choice. The data are the suite's invented
+monthly series (``suite.make_batch``); the spans chosen are counted at the end.
 """
 
 from __future__ import annotations
