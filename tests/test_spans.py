@@ -279,3 +279,17 @@ def test_open_series_keep_no_more_seasonality_in_the_remainder():
     # spans leave many remainders negatively correlated there: the seasonal part took up
     # noise)
     assert np.mean(np.abs(chosen)) <= np.mean(np.abs(default))
+
+
+def test_split_list_gives_the_spans_the_python_split_chooses(con):
+    y = [float(np.sin(i / 1.9) + i / 50) for i in range(96)]
+    parts = tidesplit.split(y, period=12, choose_spans=True)
+    found = con.execute(
+        "SELECT p.season_span, p.trend_span, p.trend FROM "
+        "(SELECT tide_split_list(?::DOUBLE[], 12, choose_spans := true) AS p)",
+        [y],
+    ).fetchone()
+    assert found[:2] == (parts.season_span, parts.trend_span)
+    np.testing.assert_allclose(found[2], parts.trend, atol=1e-9)
+    plain = tidesplit.split(y, period=12)
+    assert (plain.season_span, plain.trend_span) == (13, 21)
