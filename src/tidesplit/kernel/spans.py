@@ -108,7 +108,7 @@ def aicc(rss: np.ndarray, points: np.ndarray, trace: float, n: int) -> np.ndarra
     evenly over the points). A perfect fit scores minus infinity.
 
     >>> aicc(np.array([2.0]), np.array([10.0]), 2.0, 10).round(4).tolist()
-    [0.0906]
+    [0.3906]
     """
     share = points / n
     used = trace * share
