@@ -169,8 +169,8 @@ def _pilot(
     run: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray]],
     parallel: bool,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Values cleaned by a pilot split (missing points filled, points moved towards the fit
-    by their robustness weight) and each point's weight in the score."""
+    """Values cleaned by a pilot split (missing and set-aside points filled with its fit)
+    and each point's weight in the score (0 for those, 1 for the others)."""
     lengths = np.diff(offsets)
     pilot = settings.copy()
     pilot[:, COL_ACTIVE] = 0
