@@ -293,3 +293,28 @@ def test_split_list_gives_the_spans_the_python_split_chooses(con):
     np.testing.assert_allclose(found[2], parts.trend, atol=1e-9)
     plain = tidesplit.split(y, period=12)
     assert (plain.season_span, plain.trend_span) == (13, 21)
+
+
+def test_spans_alike_across_udf_calls(con):
+    # more keys than one UDF call takes (2,048), so SQL splits them over several calls; every
+    # key must get the pair the Python front gives it, and every row must come back
+    rng = np.random.default_rng(8)
+    keys, points = 2_300, 48
+    t = np.tile(np.arange(points), keys)
+    k = np.repeat(np.arange(keys), points)
+    drift = np.repeat(rng.uniform(0, 0.05, keys), points)
+    noise = np.repeat(rng.uniform(0.1, 1.0, keys), points)
+    v = np.sin(t * np.pi / 2) * (1 + drift * t) + noise * rng.normal(size=t.size)
+    frame = pd.DataFrame({"k": k, "t": t, "v": v})
+    con.register("frame", frame)
+    found = con.sql(
+        "SELECT k, any_value(season_span) AS s, any_value(trend_span) AS tr, count(*) AS n "
+        "FROM tide_split(frame, 'k', 't', 'v', period := 4, choose_spans := true) "
+        "GROUP BY k ORDER BY k"
+    ).df()
+    python = tidesplit.split_table(frame, "k", "t", "v", period=4, choose_spans=True)
+    expected = python.groupby("k")[["season_span", "trend_span"]].first()
+    assert (found["n"] == points).all() and len(found) == keys
+    np.testing.assert_array_equal(found["s"].to_numpy(), expected["season_span"].to_numpy())
+    np.testing.assert_array_equal(found["tr"].to_numpy(), expected["trend_span"].to_numpy())
+    assert found["s"].nunique() > 1
