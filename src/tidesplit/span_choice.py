@@ -49,6 +49,10 @@ SEASON_CANDIDATES = (7, 11, 15, 23, 35, 0)
 # starts to take up seasonal variation, which the score of the total fit cannot see.
 TREND_FACTORS = (1.0, 1.5, 2.5)
 
+# Scores closer than this count as equal (ours: the rounding of the single-precision
+# products moves a score by about 1e-6).
+TIE = 1e-5
+
 # Which of the spans and jumps were given (kept as they are), in this order.
 FIXED_SEASON, FIXED_TREND, FIXED_SEASON_JUMP, FIXED_TREND_JUMP = range(4)
 
@@ -154,8 +158,10 @@ def choose(
             scores = _scores_by_splits(series, point_weights, tried, parallel)
         # NaN (a pilot that broke down) scores nothing; minus infinity is a perfect fit
         scores[np.isnan(scores)] = np.inf
-        # ties (every score infinite, say) go to the first: the given or default pair
-        best = np.argmin(scores, axis=1)
+        # the first candidate within TIE of the best: the given or default pair wins a tie,
+        # and the rounding of single-precision products (which differs with the batch's
+        # size) does not decide between two fits that score the same
+        best = np.argmax(scores <= scores.min(axis=1, keepdims=True) + TIE, axis=1)
         for k in np.unique(best):
             season, trend = pairs[int(k)]
             settings[chosen[best == k]] = _with_spans(row, season, trend, flags)
