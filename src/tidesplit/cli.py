@@ -235,6 +235,8 @@ def run_draw(args: argparse.Namespace) -> None:
         raise SystemExit("--unusual rings points in --parts; give --parts too")
     if (args.season_spans or args.trend_spans) and not args.spans:
         raise SystemExit("--season-spans and --trend-spans shape --spans; give --spans too")
+    if args.mark_chosen and not args.spans:
+        raise SystemExit("--mark-chosen marks the spans in --spans; give --spans too")
     if (args.pictured is not None or args.listed is not None) and not args.report:
         raise SystemExit("--pictured and --listed shape --report; give --report too")
     if args.label is not None and not (args.fleet or args.report):
@@ -299,6 +301,7 @@ def run_draw(args: argparse.Namespace) -> None:
             robust=args.robust,
             transform=args.transform,
             path=args.spans,
+            mark_chosen=args.mark_chosen,
             **extra,
         )
         print(f"wrote {args.spans}: {args.pick[0]} under each span")
@@ -374,6 +377,11 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
         "--trend-spans",
         type=_spans,
         help="comma-separated (default a half to four times the default)",
+    )
+    draw.add_argument(
+        "--mark-chosen",
+        action="store_true",
+        help="in --spans, mark the season and trend span choose_spans picks for the key",
     )
     draw.add_argument("--report", metavar="FILE", help="write a self-contained HTML report")
     draw.add_argument("--pictured", type=int, help="keys pictured in the report (default 40)")

@@ -26,8 +26,11 @@ def eligible(n: int, settings: np.ndarray) -> bool:
     return 2 <= n <= MAX_POINTS and settings[COL_OUTER] == 0
 
 
-_CACHE_SIZE = 64
+# Bounded by size rather than count: choosing spans keeps a pair of matrices for every
+# candidate pair of spans and length, each small for the common lengths.
+_CACHE_BYTES = 256 * 2**20
 _cache: dict[tuple[int, tuple[int, ...]], tuple[np.ndarray, np.ndarray]] = {}
+_cache_bytes = 0
 _cache_lock = threading.Lock()
 
 
@@ -53,13 +56,17 @@ def is_cached(n: int, settings: np.ndarray) -> bool:
 
 def operators(n: int, settings: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The trend and seasonal matrices (``n x n``) for this length and settings row."""
+    global _cache_bytes
     key = _key(n, settings)
     found = _cache.get(key)
     if found is None:
         found = _build(n, settings)
+        size = 2 * found[0].nbytes
         with _cache_lock:
-            if len(_cache) >= _CACHE_SIZE:
-                _cache.pop(next(iter(_cache)))
+            while _cache and _cache_bytes + size > _CACHE_BYTES:
+                _cache_bytes -= 2 * _cache.pop(next(iter(_cache)))[0].nbytes
+            if key not in _cache:
+                _cache_bytes += size
             _cache[key] = found
     return found
 
