@@ -118,7 +118,8 @@ def main() -> None:
         path=HERE / "fleet-dense.png",
     )
     # on the original scale, where the summer swing grows with the level: a fixed pattern
-    # (span 0) cannot follow it, and its remainder shows what it missed
+    # (span 0) cannot follow it, and its remainder shows what it missed; the spans
+    # choose_spans picks are marked
     pictures.draw_spans(
         sales,
         KEY,
@@ -127,6 +128,7 @@ def main() -> None:
         pick="Quayside / sun cream",
         period=52,
         robust=True,
+        mark_chosen=True,
         path=HERE / "spans.png",
     )
     with tempfile.TemporaryDirectory() as folder:

@@ -76,6 +76,11 @@ ANSWERS = {
                          ["forecast", "low", "high"]),
     "audit": ({"period": PERIOD, "sample": 12}, ["item"],
               ["points_compared", "trend_gap"]),
+    # spans chosen per series: the same spans and numbers from every front
+    "split_chosen": ({"period": PERIOD, "choose_spans": True, "fill_gaps": True}, ["item", "t"],
+                     ["trend", "seasonal", "remainder", "season_span", "trend_span"]),
+    "profile_chosen": ({"period": PERIOD, "choose_spans": True}, ["item"],
+                       ["strength_of_season", "season_span", "trend_span"]),
 }  # fmt: skip
 
 
@@ -101,7 +106,7 @@ def _periods(value) -> list | None:
 @pytest.mark.parametrize("answer", sorted(ANSWERS))
 def test_every_front_gives_the_same_answer(fleet_frame, answer):
     args, keys, numbers = ANSWERS[answer]
-    answer = answer.removesuffix("_periods")
+    answer = answer.removesuffix("_periods").removesuffix("_chosen")
     args = {**args, "on_error": "keep"}
     results = {name: front(answer, fleet_frame, args) for name, front in FRONTS.items()}
     first_name, first = next(iter(results.items()))
@@ -139,6 +144,11 @@ def test_every_front_gives_the_same_answer(fleet_frame, answer):
     ("answer", "args", "words"),
     [
         ("split", {"period": 4, "trend_span": 4}, "trend_span must be an odd integer"),
+        (
+            "split",
+            {"period": 4, "choose_spans": True, "season_span": 7, "trend_span": 9},
+            "give at most one of them",
+        ),
         ("profile", {"period": 4, "transform": "cube"}, "transform must be one of"),
         ("forecast", {"period": 4, "steps_ahead": 2.5}, "steps_ahead must be a whole number"),
         ("outliers", {"period": 4, "rule": "nope"}, "rule must be one of"),

@@ -336,6 +336,32 @@ def test_spans_side_by_side_are_the_splits_for_each_span(sales, tmp_path):
     assert all(ax.get_ylim() == seasonal_panels[0].get_ylim() for ax in seasonal_panels)
 
 
+def test_spans_mark_the_pair_choose_spans_picks(sales):
+    label = "Quayside / plum jam"
+    rows = sales[pictures.key_labels(sales, KEY) == label]
+    found = tidesplit.split_table(rows, KEY, "week", "units", choose_spans=True, **SETTINGS)
+    season, trend = int(found["season_span"].iloc[0]), int(found["trend_span"].iloc[0])
+    figure = pictures.draw_spans(
+        sales,
+        KEY,
+        "week",
+        "units",
+        pick=label,
+        season_spans=(7, 13),
+        trend_spans=(45, 89),
+        mark_chosen=True,
+        **SETTINGS,
+    )
+    titles = [ax.get_title(loc="left") for ax in figure.axes if ax.get_title(loc="left")]
+    marked = [t for t in titles if "chosen" in t]
+    assert len(marked) == 2
+    assert marked[0].startswith(f"season span {'0 (fixed)' if season == 0 else season}")
+    assert marked[1].startswith(f"trend span {trend}")
+    # the chosen panels show the split with the chosen pair
+    panel = next(ax for ax in figure.axes if ax.get_title(loc="left") == marked[0])
+    np.testing.assert_array_equal(panel.get_lines()[0].get_ydata(), found["seasonal"].to_numpy())
+
+
 def test_default_trend_span_is_the_published_rule_the_split_uses():
     # Cleveland et al. (1990), section 3: smallest odd integer >= 1.5 n_p / (1 - 1.5 / n_s)
     # monthly: 18 / (1 - 1.5 / 13) = 20.35 -> 21; weekly: 78 / 0.8846 = 88.2 -> 89
@@ -650,6 +676,7 @@ def test_draw_spans_from_parquet(sources, tmp_path):
             "7,0",
             "--trend-spans",
             "45,89,179",
+            "--mark-chosen",
         ]
     )
     root = ET.parse(target).getroot()
@@ -663,6 +690,7 @@ def test_draw_spans_from_parquet(sources, tmp_path):
         (["--unusual", "--fleet", "x.png"], "--unusual rings points in --parts"),
         (["--spans", "x.png"], "exactly one --pick"),
         (["--season-spans", "7", "--fleet", "x.png"], "give --spans too"),
+        (["--mark-chosen", "--fleet", "x.png"], "--mark-chosen marks the spans in --spans"),
         ([], "nothing to draw"),
         (["--pictured", "3", "--fleet", "x.png"], "give --report too"),
         (["--label", "3", "--parts", "x.png"], "give one of them too"),

@@ -12,7 +12,7 @@ from conftest import seasonal_series
 import tidesplit
 
 COMPONENTS = ["trend", "seasonal", "remainder", "adjusted", "weight"]
-TAIL = ["inserted", "period", "boxcox_lambda", "status"]
+TAIL = ["inserted", "period", "season_span", "trend_span", "boxcox_lambda", "status"]
 
 
 def sales_frame(rng, shops=3, products=4, n=48, period=12, missing=True):

@@ -43,6 +43,16 @@ _PERIOD, _LAMBDA, _STATUS = _SERIES = (
         "unsplit (with `on_error := 'keep'`)",
     ),
 )
+# Per series, in the split and the profile: the spans it was split with.
+_SPANS = (
+    Column(
+        "season_span",
+        "BIGINT",
+        "the season span the series was split with (0: a fixed pattern), given, the default "
+        "or chosen with `choose_spans`; NULL for a series left unsplit",
+    ),
+    Column("trend_span", "BIGINT", "the same for the trend span"),
+)
 SPLIT_COLUMNS = (
     Column("trend", "DOUBLE", _on_scale("the trend")),
     Column("seasonal", "DOUBLE", _on_scale("the seasonal part (with several periods, their sum)")),
@@ -64,10 +74,17 @@ SPLIT_COLUMNS = (
         "BOOLEAN",
         "true for a row added into a gap by `fill_gaps := true` (its value is NULL)",
     ),
-    *_SERIES,
+    _PERIOD,
+    *_SPANS,
+    _LAMBDA,
+    _STATUS,
 )
 SPLIT_MULTI_COLUMNS = (
-    *(c for c in SPLIT_COLUMNS if c.name not in ("period", "boxcox_lambda", "status")),
+    *(
+        c
+        for c in SPLIT_COLUMNS
+        if c.name not in ("period", "season_span", "trend_span", "boxcox_lambda", "status")
+    ),
     Column("periods", "BIGINT[]", "the periods used for the series, ascending"),
     Column(
         "seasonal_by_period",
@@ -129,6 +146,7 @@ PROFILE_COLUMNS = (
     Column("trough_label", "VARCHAR", "the same as a name"),
     _PERIOD,
     Column("periods", "BIGINT[]", "the periods used"),
+    *_SPANS,
     _LAMBDA,
     _STATUS,
 )

@@ -38,6 +38,8 @@ class Split:
     boxcox_lambda: float | None
     index: pd.Index | None = None
     seasonal_parts: dict[int, np.ndarray] | None = None  # per period, with several periods
+    season_span: int | None = None  # the spans split with (chosen with choose_spans)
+    trend_span: int | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """The components as columns of a DataFrame (the input's index, if it had one).
@@ -59,7 +61,8 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
         out, it is estimated from the autocorrelation (see ``calendar.estimate_period``).
     **given : season_span, trend_span, lowpass_span, the three degrees and jumps, robust,
         inner_loops, outer_loops, transform ('none', 'log', 'boxcox') and boxcox_lambda
-        (None with 'boxcox': chosen by Guerrero's method); or, instead of ``period``,
+        (None with 'boxcox': chosen by Guerrero's method), choose_spans (season and trend
+        span chosen from the data); or, instead of ``period``,
         ``periods=[24, 168]`` for several seasonal periods (MSTL) with ``season_spans``
         and ``iterations``.
 
@@ -113,6 +116,8 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
         period=int(result.periods[0]),
         boxcox_lambda=None if np.isnan(lam) else float(lam),
         index=index,
+        season_span=int(result.season_spans[0]) if parts is None else None,
+        trend_span=int(result.trend_spans[0]) if parts is None else None,
     )
 
 
@@ -357,6 +362,17 @@ def _part_columns(
     return columns
 
 
+def _spans_used(result: RowsResult) -> dict[str, np.ndarray]:
+    """The season and trend span of each series, NaN where it was not split (as period)."""
+    return {
+        name: np.where(used >= 0, used, np.nan)
+        for name, used in (
+            ("season_span", result.batch.season_spans),
+            ("trend_span", result.batch.trend_spans),
+        )
+    }
+
+
 def split_table(
     data: Any,
     key: str | Sequence[str],
@@ -369,9 +385,10 @@ def split_table(
 
     Returns one row per input row, ordered by key and time: the key column(s), time and
     value under their own names, then trend, seasonal, remainder, adjusted, weight,
-    inserted and status (``'ok'``, or why the series was left unsplit under
-    ``on_error='keep'``). With ``fill_gaps=True`` there is also a row for every time
-    missing inside a series (``inserted`` true, value NaN). With ``periods=[...]`` (or
+    inserted, the period, season and trend span used, the Box-Cox lambda and status
+    (``'ok'``, or why the series was left unsplit under ``on_error='keep'``). With
+    ``fill_gaps=True`` there is also a row for every time missing inside a series
+    (``inserted`` true, value NaN). With ``periods=[...]`` (or
     ``periods=[]`` for those the step implies) the split has several seasonal periods, one
     ``seasonal_period_<period>`` column each (``seasonal_period_24``,
     ``seasonal_period_168``; NaN for a series that did not use that period) and a
@@ -382,7 +399,7 @@ def split_table(
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 12)
+    (16, 14)
     """
     multi = given.get("periods") is not None
     settings = _settings(SPLIT_MULTI if multi else SPLIT, period, given)
@@ -427,6 +444,8 @@ def split_table(
     else:
         used = result.batch.periods.astype(float)
         out["period"] = np.repeat(np.where(used > 0, used, np.nan), lengths)
+        for name, spans in _spans_used(result).items():
+            out[name] = np.repeat(spans, lengths)
     out["boxcox_lambda"] = np.repeat(result.batch.lambdas, lengths)
     out["status"] = np.repeat(np.array(result.status, dtype=object), lengths)
     return out
@@ -470,6 +489,8 @@ def profile(
     out["period"] = np.where(used > 0, used, np.nan)
     several = result.batch.series_periods or [(int(u),) if u > 0 else () for u in used]
     out["periods"] = [list(p) if p else None for p in several]
+    for name, spans in _spans_used(result).items():
+        out[name] = spans
     out["boxcox_lambda"] = result.batch.lambdas
     out["status"] = result.status
     return out

@@ -220,6 +220,14 @@ REGISTRY: tuple[Argument, ...] = (
         default_text="[0, 1] (ours: from the log to no transform)",
     ),
     Argument(
+        "choose_spans",
+        FLAG,
+        "choose season_span and trend_span per series from the data, by an information "
+        "criterion of the fit (see Choosing spans); a span given is kept and the other chosen",
+        (SPLIT, SPLIT_LIST, PROFILE),
+        default=False,
+    ),
+    Argument(
         "fill_gaps",
         FLAG,
         "also return a row for every time missing inside a series, marked `inserted`",

@@ -11,10 +11,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import memory, transform
+from . import memory, span_choice, transform
 from .errors import ParamError, SplitError
 from .kernel import checks, linear
-from .kernel.layout import COL_ACTIVE, COL_INNER, COL_OUTER, COL_PERIOD, N_SETTINGS
+from .kernel.layout import (
+    COL_ACTIVE,
+    COL_INNER,
+    COL_OUTER,
+    COL_PERIOD,
+    COL_SEASON_SPAN,
+    COL_TREND_SPAN,
+    N_SETTINGS,
+)
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
@@ -39,6 +47,10 @@ class BatchResult:
     # period (row k of seasonal_parts belongs to the k-th period of each series).
     series_periods: list[tuple[int, ...]] | None = None
     seasonal_parts: np.ndarray | None = None
+    # The season and trend span used per series (of its shortest period; given, default or
+    # chosen with choose_spans); -1 where the series was not split.
+    season_spans: np.ndarray | None = None
+    trend_spans: np.ndarray | None = None
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -385,6 +397,10 @@ def split_batch(
     if back is not None:
         ok = _settle(status, on_error, label)
     plan.settings[:, :, COL_ACTIVE] = ok[:, None]
+    if plan.choose.any():
+        span_choice.choose(
+            y, offsets, plan.settings[:, 0], plan.choose, plan.fixed, _run_kernel, parallel
+        )
     trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
     if _check_output(values, offsets, trend, seasonal, plan.settings, status, describe_phase).size:
         ok = _settle(status, on_error, label)
@@ -411,6 +427,8 @@ class _Plan:
     dropped: dict[int, tuple[int, ...]]  # series -> periods MSTL dropped
     multi: bool
     lambda_bounds: np.ndarray  # series x 2: where Guerrero's lambda is searched
+    choose: np.ndarray  # per series: spans chosen from the data (choose_spans)
+    fixed: np.ndarray  # series x 4: which spans and jumps were given (span_choice.FIXED_*)
 
 
 def _plan(
@@ -440,6 +458,8 @@ def _plan(
         dropped={},
         multi=any(p.multi for p in params),
         lambda_bounds=np.zeros((count, 2)),
+        choose=np.zeros(count, dtype=bool),
+        fixed=np.zeros((count, 4), dtype=bool),
     )
     for g, resolved in resolved_groups.items():
         members = np.flatnonzero(groups == g)
@@ -456,6 +476,13 @@ def _plan(
                 if kept < len(resolved.periods):
                     plan.dropped[int(s)] = resolved.periods[kept:]
             plan.n_periods[members] = np.maximum(keep, 1)
+        if params[g].choose_spans:
+            given = params[g]
+            plan.choose[members] = True
+            plan.fixed[members] = [
+                getattr(given, name) is not None
+                for name in ("season_span", "trend_span", "season_jump", "trend_jump")
+            ]
         if resolved.transform != "none":
             plan.transformed[members] = True
             plan.transform_names.update(dict.fromkeys(members.tolist(), resolved.transform))
@@ -581,6 +608,8 @@ def _assemble(
     lambdas[~ok] = np.nan
     periods = plan.periods
     periods[~ok] = 0
+    season_spans = np.where(ok, plan.settings[:, 0, COL_SEASON_SPAN], -1)
+    trend_spans = np.where(ok, plan.settings[:, 0, COL_TREND_SPAN], -1)
     return BatchResult(
         offsets=offsets,
         trend=trend,
@@ -593,6 +622,8 @@ def _assemble(
         status=status,
         series_periods=series_periods,
         seasonal_parts=parts,
+        season_spans=season_spans,
+        trend_spans=trend_spans,
     )
 
 

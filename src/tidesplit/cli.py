@@ -235,6 +235,8 @@ def run_draw(args: argparse.Namespace) -> None:
         raise SystemExit("--unusual rings points in --parts; give --parts too")
     if (args.season_spans or args.trend_spans) and not args.spans:
         raise SystemExit("--season-spans and --trend-spans shape --spans; give --spans too")
+    if args.mark_chosen and not args.spans:
+        raise SystemExit("--mark-chosen marks the spans in --spans; give --spans too")
     if (args.pictured is not None or args.listed is not None) and not args.report:
         raise SystemExit("--pictured and --listed shape --report; give --report too")
     if args.label is not None and not (args.fleet or args.report):
@@ -299,6 +301,7 @@ def run_draw(args: argparse.Namespace) -> None:
             robust=args.robust,
             transform=args.transform,
             path=args.spans,
+            mark_chosen=args.mark_chosen,
             **extra,
         )
         print(f"wrote {args.spans}: {args.pick[0]} under each span")
@@ -375,6 +378,11 @@ def _add_draw(commands: argparse._SubParsersAction) -> None:
         type=_spans,
         help="comma-separated (default a half to four times the default)",
     )
+    draw.add_argument(
+        "--mark-chosen",
+        action="store_true",
+        help="in --spans, mark the season and trend span choose_spans picks for the key",
+    )
     draw.add_argument("--report", metavar="FILE", help="write a self-contained HTML report")
     draw.add_argument("--pictured", type=int, help="keys pictured in the report (default 40)")
     draw.add_argument("--listed", type=int, help="keys listed in the report (default 5000)")
@@ -393,6 +401,9 @@ EXAMPLES = {
     "forecast": "tidesplit forecast --from warehouse.duckdb:sales \\\n"
     "    --to postgresql://etl@db/shop --to-table sales_ahead \\\n"
     "    --key sku --time month --value units --steps-ahead 6",
+    "publish": "tidesplit publish --from warehouse.duckdb:sales --to warehouse.duckdb \\\n"
+    "    --schema adjusted --key store --key sku --time month --value units --period 12 \\\n"
+    "    --transform log",
 }
 WHAT = {
     "split": "trend, seasonal and remainder of every series, one row per input row "
@@ -400,6 +411,9 @@ WHAT = {
     "profile": "one row per series: strengths, peak and trough, status (tide_profile)",
     "outliers": "the unusual rows of every series (tide_outliers)",
     "forecast": "future rows of every series with intervals (tide_forecast)",
+    "publish": "components, profiles and seasonal factors as tables of a DuckDB file or a "
+    "PostgreSQL schema, with plain-SQL views for BI tools; a rerun refreshes only the keys "
+    "that changed (tide_split, tide_profile)",
 }
 # Settings of a run besides the SQL function's arguments: (option, job-file name, help).
 PLACES = (
@@ -489,12 +503,17 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     places = parser.add_argument_group("source, target and columns")
+    publishing = command == "publish"
     for option, name, words in PLACES[:2]:
+        if publishing and name == "to":
+            words = "the DuckDB file (FILE.duckdb) or the postgresql:// address to publish into"
         places.add_argument(option, dest=name, metavar="ADDRESS", help=words)
     places.add_argument(
         "--key", action="append", dest="key", help="a key column; repeat for several"
     )
     for option, name, words in PLACES[2:]:
+        if publishing and name in ("to_table", "partition_by"):
+            continue  # publish names its own tables
         places.add_argument(option, dest=name, help=words)
     run = parser.add_argument_group("the run")
     run.add_argument(
@@ -512,12 +531,35 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
     run.add_argument(
         "--quiet", action="store_true", default=None, help="no progress bar and no last line"
     )
-    run.add_argument(
-        "--engine",
-        choices=("duckdb", "spark"),
-        help="where the series are split (default duckdb); spark reads Parquet or CSV with "
-        "Spark, splits the keys on its executors (tidesplit.spark) and writes Parquet",
-    )
+    if command == "publish":
+        places.add_argument(
+            "--schema",
+            dest="schema",
+            help="the schema of the published tables and views (default: main in DuckDB, "
+            "the connection's search path in PostgreSQL)",
+        )
+        places.add_argument(
+            "--raw-table",
+            dest="raw_table",
+            help="the table new raw rows land in, read by the provisional view (default: the "
+            "source, when it is a table of the published database)",
+        )
+    else:
+        run.add_argument(
+            "--refresh",
+            action="store_true",
+            default=None,
+            help="recompute only the keys whose rows or arguments changed since the last "
+            "refresh, keep the rest, drop vanished keys, and record how far published "
+            "adjusted values moved (a Parquet file, a DuckDB or a PostgreSQL table)",
+        )
+    if not publishing:
+        run.add_argument(
+            "--engine",
+            choices=("duckdb", "spark"),
+            help="where the series are split (default duckdb); spark reads Parquet or CSV "
+            "with Spark, splits the keys on its executors (tidesplit.spark) and writes Parquet",
+        )
     named = parser.add_argument_group(
         f"arguments of tide_{COMMANDS[command][0]} (as in SQL; see README's table)"
     )
@@ -547,7 +589,8 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
 
 
 _RUN_SETTINGS = ("from", "to", "from_table", "from_query", "to_table", "key", "time",
-                 "value", "partition_by", "report", "batch_rows", "quiet", "engine")  # fmt: skip
+                 "value", "partition_by", "report", "batch_rows", "quiet", "engine", "refresh",
+                 "schema", "raw_table")  # fmt: skip
 
 
 def read_job_file(path: str, command: str) -> dict[str, object]:
@@ -605,9 +648,14 @@ def run_job(args: argparse.Namespace) -> int:
             "partition_by",
             "report",
             "engine",
+            "schema",
+            "raw_table",
         ):
             if name in settings and not isinstance(settings[name], str):
                 raise ParamError(f"{name} must be text, got {settings[name]!r}")
+        strays = [n for n in ("schema", "raw_table") if n in settings and command != "publish"]
+        if strays:
+            raise ParamError(f"{strays[0]} is a setting of publish, not of {command}")
         keys = settings["key"]
         if not isinstance(keys, list) or not all(isinstance(k, str) for k in keys):
             raise ParamError(f"key must be a column name or a list of them, got {keys!r}")
@@ -627,6 +675,9 @@ def run_job(args: argparse.Namespace) -> int:
             batch_rows=settings.get("batch_rows", elt.DEFAULT_BATCH_ROWS),
             report=settings.get("report"),
             engine=settings.get("engine", "duckdb"),
+            refresh=command == "publish" or bool(settings.get("refresh")),
+            schema=settings.get("schema"),
+            raw_table=settings.get("raw_table"),
         )
     except ParamError as error:
         print(f"tidesplit {command}: {error}", file=sys.stderr)
@@ -640,7 +691,7 @@ def run_job(args: argparse.Namespace) -> int:
     return outcome.exit_code
 
 
-COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast")
+COMMANDS = ("demo", "draw", "split", "profile", "outliers", "forecast", "publish")
 
 
 def main(argv: Sequence[str] | None = None) -> int:

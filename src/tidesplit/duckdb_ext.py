@@ -62,7 +62,7 @@ RESULT_TYPE = (
     "STRUCT(trend DOUBLE[], seasonal DOUBLE[], remainder DOUBLE[], adjusted DOUBLE[], "
     f"weight DOUBLE[], seasonal_by_period {PART_TYPE}[], inserted BOOLEAN[], "
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
-    "boxcox_lambda DOUBLE, status VARCHAR)"
+    "season_span BIGINT, trend_span BIGINT, boxcox_lambda DOUBLE, status VARCHAR)"
 )
 
 
@@ -278,7 +278,10 @@ def _split_handler(call: _Call) -> pa.Array:
     else:
         fields["time_codes"] = pa.nulls(count, pa.list_(pa.int64()))
         fields["source"] = pa.nulls(count, pa.list_(pa.int64()))
-    fields.update(_series_fields(result))
+    series = _series_fields(result)
+    fields["period"], fields["periods"] = series.pop("period"), series.pop("periods")
+    fields.update(_span_fields(result))
+    fields.update(series)
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
@@ -305,6 +308,17 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     }
 
 
+def _span_fields(result: RowsResult) -> dict[str, pa.Array]:
+    """The season and trend span each series was split with (NULL where it was not)."""
+    return {
+        name: pa.array(used, type=pa.int64(), mask=used < 0)
+        for name, used in (
+            ("season_span", result.batch.season_spans),
+            ("trend_span", result.batch.trend_spans),
+        )
+    }
+
+
 def _profile_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     found = series_profile.profile(result, call.kind)
@@ -326,7 +340,10 @@ def _profile_handler(call: _Call) -> pa.Array:
     fields["peak_label"] = pa.array(found.peak_label, pa.string())
     fields["trough_position"] = pa.array(found.trough, pa.int64(), mask=found.trough < 0)
     fields["trough_label"] = pa.array(found.trough_label, pa.string())
-    fields.update(_series_fields(result))
+    series = _series_fields(result)
+    fields["period"], fields["periods"] = series.pop("period"), series.pop("periods")
+    fields.update(_span_fields(result))
+    fields.update(series)
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 

@@ -58,6 +58,7 @@ COMMANDS = {
     "profile": (arguments.PROFILE,),
     "outliers": (arguments.OUTLIERS,),
     "forecast": (arguments.FORECAST,),
+    "publish": (arguments.SPLIT,),  # split and profile, with views for BI tools
 }
 
 
@@ -114,6 +115,9 @@ class Job:
     batch_rows: int = DEFAULT_BATCH_ROWS
     report: str | None = None
     engine: str = "duckdb"  # or "spark": see _run_on_spark
+    refresh: bool = False  # recompute only the keys whose input or arguments changed
+    schema: str | None = None  # publish: the schema of the published tables and views
+    raw_table: str | None = None  # publish: where new raw rows land, for provisional views
 
     @property
     def function(self) -> str:
@@ -164,6 +168,15 @@ class Outcome:
     seconds: float = 0.0
     message: str = ""
     bad_series: list[dict[str, Any]] = field(default_factory=list)
+    # a refresh (--refresh, publish): what became of each key, and how far the already
+    # published seasonally adjusted values moved (``refresh.summarise``)
+    refreshed: bool = False
+    keys_recomputed: int = 0
+    keys_new: int = 0
+    keys_reused: int = 0
+    keys_dropped: int = 0
+    refresh_note: str = ""
+    revisions: dict[str, Any] | None = None
 
     def line(self) -> str:
         """The last line of a run.
@@ -172,11 +185,24 @@ class Outcome:
         'tidesplit split: 2 keys split, 0 kept with a status, 0 failed; 9 rows in, 9 rows \
 out; 0.0 s; exit 0 (success)'
         """
+        refreshed = ""
+        if self.refreshed:
+            refreshed = (
+                f"{self.keys_recomputed:,} keys recomputed ({self.keys_new:,} new), "
+                f"{self.keys_reused:,} reused, {self.keys_dropped:,} dropped; "
+            )
+            moved = self.revisions or {}
+            if moved.get("points_compared"):
+                refreshed += (
+                    f"published adjusted values moved by {moved['mean_change']:.4g} on "
+                    f"average, {moved['largest_change']:.4g} at most "
+                    f"({100 * (moved['largest_share'] or 0):.2f}% of the level); "
+                )
         return (
-            f"tidesplit {self.command}: {self.keys_split:,} keys split, {self.keys_kept:,} "
-            f"kept with a status, {self.keys_failed:,} failed; {self.rows_in:,} rows in, "
-            f"{self.rows_out:,} rows out; {self.seconds:.1f} s; exit {self.exit_code} "
-            f"({EXIT_NAMES[self.exit_code]})"
+            f"tidesplit {self.command}: {refreshed}{self.keys_split:,} keys split, "
+            f"{self.keys_kept:,} kept with a status, {self.keys_failed:,} failed; "
+            f"{self.rows_in:,} rows in, {self.rows_out:,} rows out; {self.seconds:.1f} s; "
+            f"exit {self.exit_code} ({EXIT_NAMES[self.exit_code]})"
         )
 
     def as_json(self) -> str:
@@ -284,6 +310,8 @@ def run(job: Job, *, show_progress: bool = False) -> Outcome:
         outcome.message = _plain_message(error)
     if outcome.exit_code not in (EXIT_OK, EXIT_KEPT):  # nothing reached the target
         outcome.keys_split = outcome.keys_kept = outcome.rows_out = 0
+        outcome.keys_recomputed = outcome.keys_new = outcome.keys_reused = 0
+        outcome.keys_dropped, outcome.revisions = 0, None
     outcome.seconds = round(time.perf_counter() - started, 3)
     outcome.outcome = EXIT_CODES[outcome.exit_code]
     if job.report and os.path.isdir(os.path.dirname(os.path.abspath(job.report))):
@@ -346,44 +374,124 @@ def _check_columns(con: Any, relation: str, job: Job) -> None:
         )
 
 
-def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
-    import numpy as np
-
+def _connection(work: str) -> Any:
+    """A DuckDB connection with the tide_* functions, set up for one job's batches."""
     import tidesplit
 
-    from .endpoints import literal, open_source, open_target, quoted, stream_postgres
+    from .endpoints import literal
+
+    con = tidesplit.connect()
+    con.execute(f"SET temp_directory = {literal(os.path.join(work, 'spill'))}")
+    con.execute("SET preserve_insertion_order = false")
+    # Bounded memory (measured on 360 million rows in 180 batches: 6.0 GiB with
+    # DuckDB's defaults, 1.3 GiB so): no cache of the files read (each is read once or
+    # twice), partitioned writes flushed early, and a cap on what DuckDB holds.
+    con.execute("SET enable_external_file_cache = false")
+    con.execute(f"SET partitioned_write_flush_threshold = {STAGE_FLUSH_ROWS}")
+    con.execute(f"SET memory_limit = '{DUCKDB_MEMORY}'")
+    return con
+
+
+def _source_rows(con: Any, job: Job, work: str, source: Any) -> str:
+    """The FROM item DuckDB reads the source's rows from (a PostgreSQL source is first
+    streamed, in one pass over the server, into a local Parquet file)."""
+    from .endpoints import literal, stream_postgres
+
+    if not source.is_postgres:
+        return source.relation
+    columns = list(dict.fromkeys([*job.key, job.time, job.value]))
+    local = os.path.join(work, "source.parquet")
+    with stream_postgres(source, columns) as reader:
+        con.register("tide_postgres_rows", reader)
+        con.execute(f"COPY tide_postgres_rows TO {literal(local)} (FORMAT parquet)")
+        con.unregister("tide_postgres_rows")
+    return f"read_parquet({literal(local)})"
+
+
+@dataclass
+class Batches:
+    """The keys of a relation shared out into batches by a hash of the key."""
+
+    keys: int
+    rows: int
+    count: int
+    keys_of: Any  # per batch
+    rows_of: Any
+    staged: str | None  # the folder of the batch files (several batches), else None
+
+
+def _share_out(con: Any, job: Job, relation: str, work: str) -> Batches:
+    """Count the keys and rows and, for more than one batch, write each batch's rows to
+    its own files in one streaming pass."""
+    import numpy as np
+
+    from .endpoints import literal, quoted
+
+    hashes, counts = _key_counts(con, relation, job.key)
+    rows = int(counts.sum())
+    batches = max(1, math.ceil(rows / job.batch_rows))
+    by_batch = (hashes % np.uint64(batches)).astype(np.int64)
+    keys_of = np.bincount(by_batch, minlength=batches)
+    rows_of = np.bincount(by_batch, weights=counts, minlength=batches).astype(np.int64)
+    staged = None
+    if batches > 1:  # one streaming pass writes each batch's rows to its own files
+        wanted = ", ".join(quoted(c) for c in dict.fromkeys([*job.key, job.time, job.value]))
+        keys_sql = ", ".join(quoted(k) for k in job.key)
+        staged = os.path.join(work, f"batches-{len(os.listdir(work))}")
+        con.execute(
+            f"COPY (SELECT {wanted}, hash({keys_sql}) % {batches} AS {BATCH_COLUMN} "
+            f"FROM {relation}) TO {literal(staged)} "
+            f"(FORMAT parquet, PARTITION_BY ({BATCH_COLUMN}))"
+        )
+    return Batches(len(hashes), rows, batches, keys_of, rows_of, staged)
+
+
+def _each_batch(con: Any, job: Job, relation: str, batches: Batches) -> Any:
+    """Point the view ``tide_batch_rows`` at each batch in turn; yields (batch, keys, rows)."""
+    from .endpoints import literal, quoted
+
+    wanted = ", ".join(quoted(c) for c in dict.fromkeys([*job.key, job.time, job.value]))
+    for batch in range(batches.count):
+        if batches.staged is not None:
+            if batches.keys_of[batch] == 0:
+                continue
+            files = os.path.join(batches.staged, f"{BATCH_COLUMN}={batch}", "*.parquet")
+            rows = f"read_parquet({literal(files)}, hive_partitioning = false)"
+        else:
+            rows = relation
+        con.execute(f"CREATE OR REPLACE TEMP VIEW tide_batch_rows AS SELECT {wanted} FROM {rows}")
+        yield batch, int(batches.keys_of[batch]), int(batches.rows_of[batch])
+
+
+def answer_batch(con: Any, job: Job, settings: Mapping[str, Any], outcome: Outcome) -> Any:
+    """The job's answer for the rows of ``tide_batch_rows`` (an Arrow table); under
+    'raise', a bad series names every bad key of the batch in the outcome first."""
+    try:
+        return con.sql(answer_query(job, settings, "tide_batch_rows")).to_arrow_table()
+    except Exception as error:
+        if _error_kind(error) == "series":
+            _list_bad_series(con, job, settings, outcome)
+        raise
+
+
+def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
+    from .endpoints import open_source, open_target, quoted
 
     settings = job.checked()
+    if job.refresh:
+        from .refresh import run_refresh
+
+        return run_refresh(job, settings, outcome, show_progress)
     _clear_killed_work()
     work = tempfile.mkdtemp(prefix=f"{WORK_PREFIX}{os.getpid()}-")
-    con = tidesplit.connect()
+    con = _connection(work)
     target, opened = None, False
     try:
-        con.execute(f"SET temp_directory = {literal(os.path.join(work, 'spill'))}")
-        con.execute("SET preserve_insertion_order = false")
-        # Bounded memory (measured on 360 million rows in 180 batches: 6.0 GiB with
-        # DuckDB's defaults, 1.3 GiB so): no cache of the files read (each is read once or
-        # twice), partitioned writes flushed early, and a cap on what DuckDB holds.
-        con.execute("SET enable_external_file_cache = false")
-        con.execute(f"SET partitioned_write_flush_threshold = {STAGE_FLUSH_ROWS}")
-        con.execute(f"SET memory_limit = '{DUCKDB_MEMORY}'")
         source = open_source(con, job.source, job.source_table, job.source_query)
         target = open_target(con, job.target, job.target_table, job.partition_by)
         target.open()  # before any long read: an unreachable target fails at once
         opened = True
-        columns = list(dict.fromkeys([*job.key, job.time, job.value]))
-        wanted = ", ".join(quoted(c) for c in columns)
-        keys_sql = ", ".join(quoted(k) for k in job.key)
-        if source.is_postgres:
-            # one pass over the server: the rows land in a local Parquet file
-            local = os.path.join(work, "source.parquet")
-            with stream_postgres(source, columns) as reader:
-                con.register("tide_postgres_rows", reader)
-                con.execute(f"COPY tide_postgres_rows TO {literal(local)} (FORMAT parquet)")
-                con.unregister("tide_postgres_rows")
-            relation = f"read_parquet({literal(local)})"
-        else:
-            relation = source.relation
+        relation = _source_rows(con, job, work, source)
         _check_columns(con, relation, job)
         if job.partition_by is not None and job.partition_by not in (
             *job.key,
@@ -392,43 +500,16 @@ def _run(job: Job, outcome: Outcome, show_progress: bool) -> None:
             raise ParamError(
                 f"--partition-by {quoted(job.partition_by)} is not a key or answer column"
             )
-        hashes, counts = _key_counts(con, relation, job.key)
-        outcome.keys, outcome.rows_in = len(hashes), int(counts.sum())
-        batches = max(1, math.ceil(outcome.rows_in / job.batch_rows))
-        by_batch = (hashes % np.uint64(batches)).astype(np.int64)
-        keys_of = np.bincount(by_batch, minlength=batches)
-        rows_of = np.bincount(by_batch, weights=counts, minlength=batches).astype(np.int64)
-        if batches > 1:  # one streaming pass writes each batch's rows to its own files
-            staged = os.path.join(work, "batches")
-            con.execute(
-                f"COPY (SELECT {wanted}, hash({keys_sql}) % {batches} AS {BATCH_COLUMN} "
-                f"FROM {relation}) TO {literal(staged)} "
-                f"(FORMAT parquet, PARTITION_BY ({BATCH_COLUMN}))"
-            )
+        batches = _share_out(con, job, relation, work)
+        outcome.keys, outcome.rows_in = batches.keys, batches.rows
         progress = _Progress(outcome.keys, show_progress)
         try:
-            for batch in range(batches):
-                if batches > 1:
-                    if keys_of[batch] == 0:
-                        continue
-                    files = os.path.join(staged, f"{BATCH_COLUMN}={batch}", "*.parquet")
-                    rows = f"read_parquet({literal(files)}, hive_partitioning = false)"
-                else:
-                    rows = relation
-                con.execute(
-                    f"CREATE OR REPLACE TEMP VIEW tide_batch_rows AS SELECT {wanted} FROM {rows}"
-                )
-                try:
-                    result = con.sql(answer_query(job, settings, "tide_batch_rows"))
-                    table = result.to_arrow_table()
-                except Exception as error:
-                    if _error_kind(error) == "series":
-                        _list_bad_series(con, job, settings, outcome)
-                    raise
-                _tally(con, job, table, outcome, int(keys_of[batch]))
+            for batch, keys, rows in _each_batch(con, job, relation, batches):
+                table = answer_batch(con, job, settings, outcome)
+                _tally(con, job, table, outcome, keys)
                 target.write(table, batch)
                 outcome.batches += 1
-                progress.advance(int(keys_of[batch]), int(rows_of[batch]))
+                progress.advance(keys, rows)
                 del table
         finally:
             progress.close()

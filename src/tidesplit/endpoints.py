@@ -57,6 +57,7 @@ def literal(text: str) -> str:
 
 
 POSTGRES_PREFIXES = ("postgresql://", "postgres://")
+LEDGER_SUFFIX = "_refresh_keys"  # a refresh's ledger beside a table (``refresh``)
 DUCKDB_MARK = ".duckdb:"
 
 
@@ -306,8 +307,11 @@ class ParquetFile(Target):
         self.folder = target.parent
         if not self.folder.is_dir():
             raise UnreachableError(f"no folder {self.folder} to write {target.name} into")
-        for stale in self.folder.glob(f".{target.name}.tide-*.tmp"):
-            stale.unlink(missing_ok=True)
+        for stale in self.folder.glob(f".{target.name}.tide-*"):  # a refresh's are folders
+            if stale.is_dir():
+                shutil.rmtree(stale, ignore_errors=True)
+            else:
+                stale.unlink(missing_ok=True)
         try:
             handle, name = tempfile.mkstemp(
                 prefix=f".{target.name}.tide-", suffix=".tmp", dir=self.folder
@@ -446,9 +450,12 @@ class DuckDBTable(Target):
 
     def commit(self) -> None:
         final = f"{quoted(self.alias)}.main.{quoted(self.table)}"
+        ledger = f"{quoted(self.alias)}.main.{quoted(self.table + LEDGER_SUFFIX)}"
         self.con.execute("BEGIN TRANSACTION")
         try:
             self.con.execute(f"DROP TABLE IF EXISTS {final}")
+            # a full run leaves no ledger of a refresh that no longer describes the table
+            self.con.execute(f"DROP TABLE IF EXISTS {ledger}")
             self.con.execute(f"ALTER TABLE {self.stage} RENAME TO {quoted(self.table)}")
             self.con.execute("COMMIT")
         except duckdb.Error:
@@ -492,6 +499,7 @@ class PostgresTable(Target):
     def commit(self) -> None:
         with self.connection.cursor() as cursor:
             cursor.execute(f"DROP TABLE IF EXISTS {quoted(self.table)}")
+            cursor.execute(f"DROP TABLE IF EXISTS {quoted(self.table + LEDGER_SUFFIX)}")
             cursor.execute(f"ALTER TABLE {quoted(self.stage)} RENAME TO {quoted(self.table)}")
         self.connection.commit()
         self.connection.close()

@@ -102,6 +102,7 @@ class SplitParams:
     season_spans: tuple[int, ...] | None = None
     iterations: int | None = None
     boxcox_bounds: tuple[float, float] | None = None  # Guerrero's search interval
+    choose_spans: bool = False  # season and trend span chosen per series (span_choice)
 
     @classmethod
     def from_kwargs(cls, **kwargs: Any) -> SplitParams:
@@ -231,6 +232,17 @@ class SplitParams:
                 raise ParamError(f"{name} must be at least 1, got {jump}")
             jumps.append(jump)
 
+        if not isinstance(self.choose_spans, (bool, np.bool_)):
+            raise ParamError(f"choose_spans must be true or false, got {self.choose_spans!r}")
+        if self.choose_spans and self.multi:
+            raise ParamError(
+                "choose_spans chooses the spans of one period; give period, not periods"
+            )
+        if self.choose_spans and self.season_span is not None and self.trend_span is not None:
+            raise ParamError(
+                "choose_spans chooses season_span and trend_span: give at most one of them "
+                "(it is kept and the other chosen), or leave choose_spans out"
+            )
         if not isinstance(self.robust, (bool, np.bool_)):
             raise ParamError(f"robust must be true or false, got {self.robust!r}")
         robust = bool(self.robust)

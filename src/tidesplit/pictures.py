@@ -576,6 +576,7 @@ def draw_spans(
     season_spans: Sequence[int] = (7, 13, 35, 0),
     trend_spans: Sequence[int] | None = None,
     path: str | Path | None = None,
+    mark_chosen: bool = False,
     **params: Any,
 ) -> Figure:
     """For one key, the parts under several season spans and several trend spans, side by side.
@@ -590,6 +591,9 @@ def draw_spans(
     trend_spans : trend spans for the bottom rows; default a half, one, two and four times
         the published default (``default_trend_span``), each made odd.
     path : a ``.png`` or ``.svg`` file to write; None writes nothing.
+    mark_chosen : also split the key with ``choose_spans`` and mark the pair chosen: its
+        season span and trend span join the sweep if they are not in it, their panels are
+        titled "(chosen)" and split with the chosen pair together.
     **params : the other split arguments (robust, transform, ...), the same in every split.
 
     Returns
@@ -628,7 +632,26 @@ def draw_spans(
     if not season_spans or not trend_spans:
         raise ValueError("give at least one season span and one trend span")
 
+    chosen = {}
+    if mark_chosen:
+        found = tidesplit.split_table(
+            rows, key, time, value, period=period, choose_spans=True, **params
+        )
+        chosen = {
+            "seasonal": int(found["season_span"].iloc[0]),
+            "trend": int(found["trend_span"].iloc[0]),
+        }
+        if chosen["seasonal"] not in season_spans:
+            season_spans.append(chosen["seasonal"])
+        if chosen["trend"] not in trend_spans:
+            trend_spans = sorted([*trend_spans, chosen["trend"]])
+
     def run(**spans: int) -> pd.DataFrame:
+        # a panel of the chosen span shows the chosen pair
+        if chosen and spans.get("season_span") == chosen["seasonal"]:
+            spans["trend_span"] = chosen["trend"]
+        elif chosen and spans.get("trend_span") == chosen["trend"]:
+            spans["season_span"] = chosen["seasonal"]
         return tidesplit.split_table(rows, key, time, value, period=period, **spans, **params)
 
     by_season = [run(season_span=s) for s in season_spans]
@@ -662,8 +685,13 @@ def draw_spans(
                 upper.append(ax)
                 lower.append(below)
                 shown = "0 (fixed)" if span == 0 else str(span)
-                if span == defaults[part]:
-                    shown += " (default)"
+                tags = [
+                    tag
+                    for tag, value in (("default", defaults[part]), ("chosen", chosen.get(part)))
+                    if span == value
+                ]
+                if tags:
+                    shown += f" ({', '.join(tags)})"
                 spread = np.nanstd(result["remainder"].to_numpy(dtype=float, na_value=np.nan))
                 ax.set_title(
                     f"{title} {shown}",

@@ -528,8 +528,9 @@ def split_table(
     Returns
     -------
     A Spark DataFrame, computed when used: the key(s), time and value, then ``trend``,
-    ``seasonal``, ``remainder``, ``adjusted``, ``weight``, ``inserted``, ``period`` (or
-    ``periods`` and ``seasonal_by_period``) and ``status``.
+    ``seasonal``, ``remainder``, ``adjusted``, ``weight``, ``inserted``, ``period``,
+    ``season_span`` and ``trend_span`` (or ``periods`` and ``seasonal_by_period``),
+    ``boxcox_lambda`` and ``status``.
 
     Examples
     --------

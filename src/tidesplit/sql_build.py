@@ -264,7 +264,7 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
 
 
 def _split_list() -> str:
-    fields = (*answers.COMPONENTS, "period", "boxcox_lambda", "status")
+    fields = (*answers.COMPONENTS, "period", "season_span", "trend_span", "boxcox_lambda", "status")
     picked = ", ".join(f"{f} := parts.{f}" for f in fields)
     return f"""\
 -- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
@@ -304,6 +304,8 @@ SELECT unnest(__key),
        __parts.period AS __period,
        __parts.periods AS __periods,
        unnest(__parts.seasonal_by_period) AS __seasonal_by_period,
+       __parts.season_span AS __season_span,
+       __parts.trend_span AS __trend_span,
        __parts.boxcox_lambda AS boxcox_lambda,
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
@@ -349,14 +351,16 @@ def render() -> str:
         "-- positional one.\n"
         + _public(
             SPLIT,
-            "SELECT * EXCLUDE (__seasonal_by_period, __periods) RENAME (__period AS period)\n"
+            "SELECT * EXCLUDE (__seasonal_by_period, __periods)\n"
+            "     RENAME (__period AS period, __season_span AS season_span, "
+            "__trend_span AS trend_span)\n"
             f"     FROM __tide_split_keys(tbl, {{keys}}, time, value, {_columns(answers.SPLIT)},\n"
             f"         {_checks(SPLIT)},\n         {split_named})",
         ),
         "-- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.\n"
         + _public(
             SPLIT_MULTI,
-            "SELECT * EXCLUDE (__period) RENAME (__periods AS periods, "
+            "SELECT * EXCLUDE (__period, __season_span, __trend_span) RENAME (__periods AS periods, "
             "__seasonal_by_period AS seasonal_by_period)\n"
             f"     FROM __tide_split_keys(tbl, {{keys}}, time, value, "
             f"{_columns(answers.SPLIT_MULTI)},\n         {_checks(SPLIT_MULTI)},\n"

@@ -30,13 +30,17 @@ from .layout import COL_OUTER
 from .stl import stl_batch_parallel, stl_batch_serial
 from .threads import launch
 
-# Longest series the shortcut takes. Building the two matrices costs n ordinary splits (about
-# 7 ms at 200 points on one core), paid once per length and settings in a process whatever
-# the batch holds; beyond about 200 points the products gain less than twice over the loops
-# (measured: 5x at 120 and 156 points, under 2x at 240).
-MAX_POINTS = 200
+# Longest series the split's shortcut takes. Building the two matrices costs n ordinary
+# splits (about 7 ms at 200 points on one core), paid once per length and settings in a
+# process whatever the batch holds; beyond about 200 points the products gain less than
+# twice over the loops (measured: 5x at 120 and 156 points, under 2x at 240).
+SHORTCUT_POINTS = 200
 
-# Matrices kept, in bytes: every length up to MAX_POINTS for a few settings (a fleet of
+# Longest series whose matrices are built at all: choosing spans scores candidates exactly
+# from them up to this length (span_choice), where they are worth more than in the split.
+MAX_POINTS = 1024
+
+# Matrices kept, in bytes: every length up to SHORTCUT_POINTS for a few settings (a fleet of
 # mixed lengths needs one pair per length), so that they are not built again call after call.
 _CACHE_BYTES = 256 * 2**20
 
@@ -55,7 +59,7 @@ def eligible(n: int, settings: np.ndarray) -> bool:
     >>> eligible(120, SplitParams(period=12, robust=True).resolve().settings_row())
     False
     """
-    return bool(2 <= n <= MAX_POINTS and settings[COL_OUTER] == 0)
+    return bool(2 <= n <= SHORTCUT_POINTS and settings[COL_OUTER] == 0)
 
 
 _cache: OrderedDict[tuple[int, tuple[int, ...]], tuple[np.ndarray, np.ndarray]] = OrderedDict()
