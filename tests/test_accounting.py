@@ -494,3 +494,30 @@ def test_arguments_beyond_their_bounds_are_refused_before_any_work(con, args, wo
             "SELECT * FROM tide_forecast(f, 'k', 't', 'v', period := 4, "
             "steps_ahead := 'NaN'::DOUBLE)"
         ).fetchall()
+
+
+def test_a_series_too_long_is_refused_before_its_grid(monkeypatch):
+    # the length bound, lowered here so that the test stays small: a series past it is
+    # not split (keep) or names its key (raise); the others are split as usual, and
+    # every row of the long one comes back
+    from tidesplit import calendar
+
+    monkeypatch.setattr(calendar, "MAX_SERIES_POINTS", 100)
+    t = np.arange(150)
+    frame = pd.DataFrame(
+        {
+            "k": np.repeat(["long", "short a", "short b"], [150, 60, 60]),
+            "t": np.concatenate([t, t[:60], t[:60]]),
+            "v": np.concatenate([np.sin(t), np.sin(t[:60]), np.cos(t[:60])]) + 5,
+        }
+    )
+    kept = tidesplit.split_table(frame, "k", "t", "v", period=12, on_error="keep")
+    assert len(kept) == len(frame)
+    status = kept.groupby("k")["status"].first()
+    assert status["long"] == (
+        "too long: 150 points on its regular grid, more than the 100 a series may have"
+    )
+    assert status["short a"] == status["short b"] == "ok"
+    assert kept.loc[kept["k"] == "long", "trend"].isna().all()
+    with pytest.raises(tidesplit.SplitError, match=r"series \{'k': 'long'\}: too long"):
+        tidesplit.split_table(frame, "k", "t", "v", period=12)

@@ -88,7 +88,7 @@ def messages() -> dict[str, str]:
     literals += re.findall(r"'((?:[^']|'')+)'\s*\|\|", sql)
     literals += re.findall(r"\|\|\s*'((?:[^']|'')+)'", sql)
     for literal in literals:
-        text = literal.replace("''", "'").strip(" ;:,()\".")
+        text = literal.replace("''", "'").strip(' ;:,()".')
         if len(text) >= 8 and " " in text:
             found.setdefault(text, "sql/tidesplit.sql")
     return found

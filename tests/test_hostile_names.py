@@ -88,10 +88,7 @@ MACROS = {
 def _macro_sql(macro: str, table: str, k: str, t: str, v: str) -> str:
     period = f"periods := [2, {PERIOD}]" if macro == "split_multi" else f"period := {PERIOD}"
     extra = ", all_rows := true" if macro == "outliers" else ""
-    return (
-        f"SELECT * FROM tide_{macro}({table}, {text(k)}, {text(t)}, {text(v)}, "
-        f"{period}{extra})"
-    )
+    return f"SELECT * FROM tide_{macro}({table}, {text(k)}, {text(t)}, {text(v)}, {period}{extra})"
 
 
 @pytest.fixture(scope="module")

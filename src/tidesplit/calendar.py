@@ -25,7 +25,7 @@ import numpy as np
 from . import memory
 from .kernel import grid, strengths
 from .status import OK
-from .tuning import MAX_GROWTH, PERIOD_PEAK_FLOOR
+from .tuning import MAX_GROWTH, MAX_SERIES_POINTS, PERIOD_PEAK_FLOOR
 
 US_PER_MINUTE = 60_000_000
 US_PER_HOUR = 60 * US_PER_MINUTE
@@ -214,7 +214,8 @@ def regularise(
                 unit[by_month] = UNIT_MONTH
 
     too_sparse = span > MAX_GROWTH * np.maximum(lengths, 1)
-    for s in np.flatnonzero((problem != grid.FINE) | too_sparse):
+    too_long = span > MAX_SERIES_POINTS
+    for s in np.flatnonzero((problem != grid.FINE) | too_sparse | too_long):
         if status[s] != OK:
             continue
         lo, hi = int(offsets[s]), int(offsets[s + 1])
@@ -222,6 +223,11 @@ def regularise(
             status[s] = f"duplicate time {describe(int(codes[where[s]]), kind)}"
         elif problem[s] == grid.UNEVEN:
             status[s] = _irregular_reason(codes[lo:hi], measured[lo:hi], kind)
+        elif too_long[s]:
+            status[s] = (
+                f"too long: {span[s]:,} points on its regular grid, more than the "
+                f"{MAX_SERIES_POINTS:,} a series may have"
+            )
         else:
             status[s] = (
                 f"too sparse: {lengths[s]} times spread over {span[s]} steps of "

@@ -462,9 +462,7 @@ def _split_bucket(plan: _Plan, table: pa.Table) -> pa.Table:
         # the driver checked this; the data may have changed since (a live source)
         longest = counts.idxmax()
         values = longest if isinstance(longest, tuple) else (longest,)
-        label = (
-            "{" + ", ".join(f"{k!r}: {v!r}" for k, v in zip(keys, values, strict=True)) + "}"
-        )
+        label = "{" + ", ".join(f"{k!r}: {v!r}" for k, v in zip(keys, values, strict=True)) + "}"
         raise _too_long(label, int(counts.max()), plan.points_per_key_limit)
     front = {
         SPLIT: api.split_table,

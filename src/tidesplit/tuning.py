@@ -19,6 +19,12 @@ LARGEST_MAGNITUDE = 1e150
 # (common practice guard against a stray time far from the rest).
 MAX_GROWTH = 10
 
+# A series may have at most this many points on its regular grid: a split holds about 20
+# numbers per point (input, grid, the kernel's scratch, three parts, the answer's columns),
+# so this is some 3 GiB for one series, checked before the grid is built (38 years of
+# minutes fit in it).
+MAX_SERIES_POINTS = 20_000_000
+
 # An implied period is the first autocorrelation peak above this (and above the rough 95%
 # band 2 / sqrt(n)): common practice.
 PERIOD_PEAK_FLOOR = 0.3
