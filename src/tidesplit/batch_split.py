@@ -11,9 +11,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import effects as effects_front
 from . import memory, transform
 from .errors import ParamError, SplitError
-from .kernel import checks, linear, threads
+from .kernel import checks, linear, regression, threads
 from .kernel.layout import COL_ACTIVE, COL_OUTER, COL_PERIOD, N_SETTINGS
 from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
@@ -39,6 +40,12 @@ class BatchResult:
     # period (row k of seasonal_parts belongs to the k-th period of each series).
     series_periods: list[tuple[int, ...]] | None = None
     seasonal_parts: np.ndarray | None = None
+    # Regression effects (``effects``): the calendar effect per point (0 without), the
+    # value without its seasonal part only, and per series its coefficients as
+    # (name, coefficient, standard error, t-value); None where no effects were asked.
+    calendar_effect: np.ndarray | None = None
+    adjusted_season_only: np.ndarray | None = None
+    coefficients: list[list[tuple[str, float, float, float]] | None] | None = None
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -325,6 +332,7 @@ def split_batch(
     status: list[str] | None = None,
     on_error: str = "raise",
     parallel: bool = True,
+    design: effects_front.Design | None = None,
 ) -> BatchResult:
     """Split every series of a flat batch.
 
@@ -344,6 +352,9 @@ def split_batch(
         (NaN components) with the reason in ``status``.
     parallel : spread series over numba's threads; pass False when the caller brings
         its own threads (a database running UDF calls in parallel).
+    design : regression columns on the same layout (``effects.build``), fitted beside the
+        split by backfitting (``kernel.regression.backfit``); None fits none, and the path
+        is the plain split's.
 
     Returns
     -------
@@ -379,16 +390,29 @@ def split_batch(
     if back is not None:
         ok = _settle(status, on_error, label)
     plan.settings[:, :, COL_ACTIVE] = ok[:, None]
-    trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
+    fitted = None
+    if design is not None:
+        if plan.multi:
+            raise ParamError("regression effects go with one seasonal period, not several")
+        trend, seasonal, weight, fitted = _run_effects(y, offsets, plan, design, parallel)
+        parts = None
+    else:
+        trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
     if _check_output(values, offsets, trend, seasonal, plan.settings, status, describe_phase).size:
         ok = _settle(status, on_error, label)
         rows = np.repeat(~ok, lengths)
         trend[rows] = seasonal[rows] = weight[rows] = np.nan
         if parts is not None:
             parts[:, rows] = np.nan
-    return _assemble(
+    result = _assemble(
         values, offsets, y, trend, seasonal, weight, parts, plan, ok, back, status, describe_point
     )
+    if fitted is not None:
+        _add_effects(result, y, fitted, design, plan, ok, back, status)
+    else:
+        result.calendar_effect = np.where(np.isnan(trend), np.nan, 0.0)
+        result.adjusted_season_only = result.adjusted
+    return result
 
 
 @dataclass
@@ -619,3 +643,106 @@ def _run_multi_kernel(
     unused = (np.arange(width)[:, None] >= np.repeat(n_periods, lengths)[None, :]) & active
     parts[unused] = 0.0
     return trend, parts, weight
+
+
+@dataclass
+class _Fitted:
+    """What backfitting gave beside the components."""
+
+    effect: np.ndarray  # X b per point, every column
+    coef: np.ndarray  # series x columns
+    cov: np.ndarray  # series x columns x columns
+    verdict: np.ndarray  # series x columns (kernel.regression KEPT, ...)
+    settled: np.ndarray  # per series
+    rounds: np.ndarray
+
+
+# Backfitting stops when no fitted effect moves by more than this share of the series'
+# spread in a round, or after this many rounds (ours).
+EFFECTS_TOLERANCE = 1e-8
+EFFECTS_ROUNDS = 50
+
+
+def _run_effects(
+    y: np.ndarray, offsets: np.ndarray, plan: _Plan, design: effects_front.Design, parallel: bool
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, _Fitted]:
+    """Trend, seasonal and weights of every active series fitted with the design's columns."""
+    settings = plan.settings[:, 0]
+    lengths = np.diff(offsets)
+    active = settings[:, COL_ACTIVE] == 1
+    seen = segment_counts(~np.isnan(y), offsets)
+    # the degrees of freedom the split takes, per distinct length and settings
+    used = np.zeros(lengths.size)
+    known: dict[tuple, float] = {}
+    for s in np.flatnonzero(active):
+        key = (int(lengths[s]), *settings[s].tolist())
+        if key not in known:
+            known[key] = regression.split_degrees(int(lengths[s]), settings[s])
+        used[s] = known[key] * seen[s] / max(lengths[s], 1)
+    verdict = np.where(design.absent, regression.ABSENT, regression.KEPT).astype(np.int64)
+    X = np.ascontiguousarray(design.X, dtype=np.float64)
+    regression.screen_batch(y, offsets, X, settings[:, COL_PERIOD].copy(), used, verdict)
+    kept = verdict == regression.KEPT
+
+    def split(values: np.ndarray, which: np.ndarray) -> tuple[np.ndarray, ...]:
+        chosen = settings.copy()
+        chosen[~which, COL_ACTIVE] = 0
+        return _run_kernel(values, offsets, chosen, parallel)
+
+    out = regression.backfit(
+        y, offsets, X, kept, active, split, used,
+        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
+    )  # fmt: skip
+    fitted = _Fitted(
+        out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"]
+    )
+    return out["trend"], out["seasonal"], out["weight"], fitted
+
+
+def _add_effects(
+    result: BatchResult,
+    y: np.ndarray,
+    fitted: _Fitted,
+    design: effects_front.Design,
+    plan: _Plan,
+    ok: np.ndarray,
+    back: np.ndarray | None,
+    status: list[str],
+) -> None:
+    """The effects' columns, the remainder without them, adjusted without the calendar
+    effect, the coefficients, and a note for each column dropped."""
+    lengths = np.diff(result.offsets)
+    rows_ok = np.repeat(ok, lengths)
+    width = design.calendar_width
+    coef = np.nan_to_num(fitted.coef)
+    calendar_part = (design.X[:, :width] * np.repeat(coef[:, :width], lengths, axis=0)).sum(1)
+    calendar_part[~rows_ok] = np.nan
+    result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
+    result.calendar_effect = calendar_part
+    result.adjusted_season_only = result.adjusted.copy()
+    adjusted = y - result.seasonal - calendar_part
+    if back is not None:
+        moved = back & rows_ok
+        adjusted[moved] = transform.inverse(
+            adjusted[moved], np.repeat(plan.lambdas, lengths)[moved]
+        )
+    result.adjusted = adjusted
+    result.coefficients = []
+    for s in range(lengths.size):
+        if not ok[s]:
+            result.coefficients.append(None)
+            continue
+        result.coefficients.append(
+            effects_front.coefficient_rows(design.names, fitted.coef[s], fitted.cov[s])
+        )
+        notes = [design.notes[s]] if design.notes[s] else []
+        for j, name in enumerate(design.names):
+            reason = effects_front.VERDICT_WORDS.get(int(fitted.verdict[s, j]))
+            if reason:
+                notes.append(f"{name} dropped: {reason}")
+        if not fitted.settled[s]:
+            notes.append(
+                f"the effects did not settle in {EFFECTS_ROUNDS} rounds; the last are shown"
+            )
+        for note in notes:
+            status[s] = with_note(status[s], note)

@@ -33,6 +33,7 @@ from .arguments import SQL_TYPES
 from .batch_split import segment_counts
 from .errors import ParamError
 from .kernel import grid
+from . import effects as effects_front
 from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
 from .status import OK
@@ -59,8 +60,9 @@ PART_ARROW_TYPE = pa.list_(
     pa.list_(pa.struct([("period", pa.int64()), ("seasonal", pa.float64())]))
 )
 RESULT_TYPE = (
-    "STRUCT(trend DOUBLE[], seasonal DOUBLE[], remainder DOUBLE[], adjusted DOUBLE[], "
-    f"weight DOUBLE[], seasonal_by_period {PART_TYPE}[], inserted BOOLEAN[], "
+    "STRUCT("
+    + "".join(f"{part} DOUBLE[], " for part in COMPONENTS)
+    + f"seasonal_by_period {PART_TYPE}[], inserted BOOLEAN[], "
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
     "boxcox_lambda DOUBLE, status VARCHAR)"
 )
@@ -155,6 +157,7 @@ class _Call:
             on_error=self.on_error,
             parallel=self.values.size >= PARALLEL_POINTS,
             fill_gaps=fill,
+            effects=effects_front.request(self.settings),
         )
         if self.order is None:
             return result
@@ -305,6 +308,32 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
     }
 
 
+_EFFECT_TYPE = pa.list_(
+    pa.struct(
+        [
+            ("name", pa.string()),
+            ("coefficient", pa.float64()),
+            ("std_error", pa.float64()),
+            ("t_value", pa.float64()),
+        ]
+    )
+)
+
+
+def _effect_lists(
+    coefficients: list[list[tuple[str, float, float, float]] | None] | None, count: int
+) -> pa.Array:
+    """Each series' coefficients as a list of structs (NULL without effects)."""
+    if coefficients is None:
+        return pa.nulls(count, _EFFECT_TYPE)
+    keys = ("name", "coefficient", "std_error", "t_value")
+    rows = [
+        None if found is None else [dict(zip(keys, row, strict=True)) for row in found]
+        for found in coefficients
+    ]
+    return pa.array(rows, _EFFECT_TYPE, from_pandas=True)
+
+
 def _profile_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     found = series_profile.profile(result, call.kind)
@@ -326,6 +355,7 @@ def _profile_handler(call: _Call) -> pa.Array:
     fields["peak_label"] = pa.array(found.peak_label, pa.string())
     fields["trough_position"] = pa.array(found.trough, pa.int64(), mask=found.trough < 0)
     fields["trough_label"] = pa.array(found.trough_label, pa.string())
+    fields["effects"] = _effect_lists(result.batch.coefficients, len(found.points))
     fields.update(_series_fields(result))
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 

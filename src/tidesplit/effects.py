@@ -1,0 +1,259 @@
+"""Regression effects asked of a split: which columns, built from each series' times.
+
+Calendar columns come from the regular grid of each series (``calendar.Grid``): the days
+each grid point covers give weekday counts, the period's length and the share of the days
+before Easter. Every calendar column is centred on its mean at the same place in the year
+over the 400-year Gregorian cycle (years 2000 to 2399): what is left varies from year to
+year only, so the seasonal part keeps the average calendar and the effect holds the
+departures from it (the long-run mean is taken away for the same reason by Bell & Hillmer
+1983). The numbers are computed in ``kernel.regression``.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from . import calendar
+from .errors import ParamError
+from .kernel import regression
+
+WEEKDAYS = "weekdays"
+EASTER = "easter"
+CALENDAR_WORDS = (WEEKDAYS, EASTER)
+# The weekday contrasts' names (Sunday's coefficient is derived: minus the sum of these).
+_CONTRASTS = tuple(f"weekday_{d}" for d in regression.WEEKDAYS[:6])
+LENGTH = "period_length"
+# where the long-run means are taken: one whole Gregorian cycle of 400 years
+_CYCLE_START = 2000
+_CYCLE_YEARS = 400
+
+
+def parse_calendar(text: str | None) -> tuple[str, ...]:
+    """The calendar effects named in ``calendar_effects`` (comma-separated), in our order.
+
+    >>> parse_calendar("easter, weekdays"), parse_calendar("none")
+    (('weekdays', 'easter'), ())
+    >>> parse_calendar("weekday")
+    Traceback (most recent call last):
+    ...
+    tidesplit.errors.ParamError: calendar_effects takes 'none' or any of weekdays, easter \
+(comma-separated); got 'weekday'
+    """
+    words = [w.strip().lower() for w in (text or "none").split(",") if w.strip()]
+    if words in ([], ["none"]):
+        return ()
+    wrong = [w for w in words if w not in CALENDAR_WORDS]
+    if wrong:
+        raise ParamError(
+            f"calendar_effects takes 'none' or any of {', '.join(CALENDAR_WORDS)} "
+            f"(comma-separated); got {wrong[0]!r}"
+        )
+    return tuple(w for w in CALENDAR_WORDS if w in words)
+
+
+@dataclass(frozen=True)
+class Request:
+    """The effects one call asks for."""
+
+    calendar: tuple[str, ...] = ()
+    easter_days: int = 8
+    outside: tuple[str, ...] = ()
+
+    @property
+    def any(self) -> bool:
+        return bool(self.calendar or self.outside)
+
+    def names(self) -> tuple[str, ...]:
+        """The design's columns, in order."""
+        out: list[str] = []
+        if WEEKDAYS in self.calendar:
+            out += [*_CONTRASTS, LENGTH]
+        if EASTER in self.calendar:
+            out.append(EASTER)
+        return (*out, *self.outside)
+
+    def calendar_width(self) -> int:
+        return len(self.names()) - len(self.outside)
+
+
+def request(settings: dict[str, Any]) -> Request | None:
+    """The effects asked for in a function's settings (``arguments.accept``), or None.
+
+    >>> request({"calendar_effects": "weekdays", "easter_days": 8}).names()[-1]
+    'period_length'
+    >>> request({"calendar_effects": "none"}) is None
+    True
+    """
+    chosen = parse_calendar(settings.get("calendar_effects"))
+    days = settings.get("easter_days")
+    days = 8 if days is None else int(days)
+    if days < 1:
+        raise ParamError(f"easter_days must be at least 1, got {days}")
+    if EASTER not in chosen and settings.get("easter_days") not in (None, 8):
+        raise ParamError("easter_days goes with calendar_effects including 'easter'")
+    found = Request(calendar=chosen, easter_days=days)
+    return found if found.any else None
+
+
+@functools.lru_cache(maxsize=4096)
+def easter_day(year: int) -> int:
+    """Easter Sunday (Western, Gregorian) of ``year`` in days since 1970-01-01, from
+    python-dateutil.
+
+    >>> str(np.datetime64(easter_day(2024), "D"))
+    '2024-03-31'
+    """
+    from dateutil.easter import EASTER_WESTERN, easter
+
+    return int(np.datetime64(easter(year, EASTER_WESTERN), "D").astype(np.int64))
+
+
+def _easter_days(first_year: int, last_year: int) -> np.ndarray:
+    return np.array([easter_day(y) for y in range(first_year, last_year + 1)], dtype=np.int64)
+
+
+def period_days(month_index: np.ndarray, step: int, ends: bool) -> tuple[np.ndarray, np.ndarray]:
+    """First and last day (days since 1970-01-01) of the periods of ``step`` months named by
+    their month index (months since 1970-01): the months from it on, or, for times stamped at
+    month ends (``ends``), the months up to it.
+
+    >>> first, last = period_days(np.array([600]), 3, ends=True)  # 2020-01, quarter ending
+    >>> str(np.datetime64(int(first[0]), "D")), str(np.datetime64(int(last[0]), "D"))
+    ('2019-11-01', '2020-01-31')
+    """
+    start = month_index - (step - 1 if ends else 0)
+    first = start.astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    last = (start + step).astype("datetime64[M]").astype("datetime64[D]").astype(np.int64) - 1
+    return first, last
+
+
+def _raw_columns(
+    request: Request, first: np.ndarray, last: np.ndarray
+) -> np.ndarray:
+    """Calendar columns before centring."""
+    parts = []
+    if WEEKDAYS in request.calendar:
+        parts.append(regression.trading_day_columns(first, last))
+    if EASTER in request.calendar:
+        years = first.astype("datetime64[D]").astype("datetime64[Y]").astype(np.int64) + 1970
+        lo = int(years.min()) if years.size else 1970
+        hi = int(years.max()) + 1 if years.size else 1970
+        shares = regression.easter_shares(first, last, _easter_days(lo, hi), request.easter_days)
+        parts.append(shares[:, None])
+    return np.hstack(parts) if parts else np.empty((first.size, 0))
+
+
+@functools.lru_cache(maxsize=256)
+def _long_run_means(request: Request, step: int, ends: bool) -> np.ndarray:
+    """Each calendar column's mean at each of the 12 places in the year (by the month that
+    names the period), over the 400-year Gregorian cycle."""
+    months = np.arange(_CYCLE_YEARS * 12) + (_CYCLE_START - 1970) * 12
+    first, last = period_days(months, step, ends)
+    raw = _raw_columns(request, first, last)
+    return raw.reshape(_CYCLE_YEARS, 12, raw.shape[1]).mean(axis=0)
+
+
+def calendar_columns(
+    request: Request, month_index: np.ndarray, step: int, ends: bool
+) -> np.ndarray:
+    """The centred calendar columns of the periods named by ``month_index``.
+
+    >>> one = Request(calendar=("weekdays",))
+    >>> cols = calendar_columns(one, np.arange(600, 600 + 4800), 1, False)
+    >>> bool(np.abs(cols.reshape(400, 12, 7).mean(axis=0)).max() < 1e-9)
+    True
+    """
+    raw = _raw_columns(request, *period_days(month_index, step, ends))
+    means = _long_run_means(request, step, ends)
+    return raw - means[month_index % 12]
+
+
+@dataclass
+class Design:
+    """The regression design of a batch on its grid, and what the front says about it."""
+
+    X: np.ndarray  # points x columns
+    names: tuple[str, ...]
+    calendar_width: int  # the first columns are calendar ones, the others outside ones
+    absent: np.ndarray  # series x columns: the column does not apply
+    notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
+
+
+def build(
+    request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kind: str
+) -> Design:
+    """The design of every series on its grid (``offsets`` are the grid's)."""
+    names = request.names()
+    width = request.calendar_width()
+    count = offsets.size - 1
+    lengths = np.diff(offsets)
+    X = np.zeros((int(offsets[-1]), len(names)))
+    absent = np.zeros((count, len(names)), dtype=bool)
+    notes = [""] * count
+    if width == 0:
+        return Design(X, names, width, absent, notes)
+    for s in range(count):
+        lo, hi = int(offsets[s]), int(offsets[s + 1])
+        monthly = (
+            grid is not None
+            and kind != "integer"
+            and int(grid.unit[s]) == calendar.UNIT_MONTH
+            and int(grid.step[s]) in (1, 3)
+        )
+        if not monthly:
+            absent[s, :width] = True
+            step = (
+                "integer times"
+                if grid is None or kind == "integer"
+                else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
+            )
+            notes[s] = (
+                f"no calendar effects: they need monthly or quarterly dates, the series has "
+                f"{step}"
+            )
+            continue
+        step_months = int(grid.step[s])
+        months = int(grid.first[s]) + step_months * np.arange(lengths[s], dtype=np.int64)
+        X[lo:hi, :width] = calendar_columns(request, months, step_months, grid.anchor[s] == -1)
+    return Design(X, names, width, absent, notes)
+
+
+def coefficient_rows(
+    names: tuple[str, ...], coef: np.ndarray, cov: np.ndarray
+) -> list[tuple[str, float, float, float]]:
+    """One series' coefficients as (name, coefficient, standard error, t-value), fitted
+    columns only; with all six weekday contrasts, Sunday's too (minus their sum, its
+    variance that of the sum).
+
+    >>> names = ("a", "b")
+    >>> coefficient_rows(names, np.array([2.0, np.nan]), np.diag([0.25, np.nan]))
+    [('a', 2.0, 0.5, 4.0)]
+    """
+    rows = []
+    for j, name in enumerate(names):
+        if np.isnan(coef[j]):
+            continue
+        rows.append(_row(name, coef[j], cov[j, j]))
+        if name == _CONTRASTS[-1]:
+            index = [names.index(c) for c in _CONTRASTS]
+            if not np.isnan(coef[index]).any():
+                block = cov[np.ix_(index, index)]
+                rows.append(_row("weekday_sunday", -coef[index].sum(), block.sum()))
+    return rows
+
+
+def _row(name: str, value: float, variance: float) -> tuple[str, float, float, float]:
+    error = float(np.sqrt(variance)) if variance >= 0 else float("nan")
+    t = float(value / error) if error > 0 else float("nan")
+    return (name, float(value), error, t)
+
+
+VERDICT_WORDS = {
+    regression.NO_VARIATION: "it does not vary beyond the seasonal pattern",
+    regression.COLLINEAR: "it is a combination of the effects before it",
+    regression.TOO_FEW: "too few observed points for one more coefficient",
+}
