@@ -11,11 +11,11 @@ import numpy as np
 import pandas as pd
 
 from . import answers, arguments, forecast_ahead, series_profile, unusual
+from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
 from .batch_split import segment_counts
 from .errors import ParamError
-from . import effects as effects_front
 from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
 from .status import OK, split_mask

@@ -693,9 +693,7 @@ def _run_effects(
         y, offsets, X, kept, active, split, used,
         tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
     )  # fmt: skip
-    fitted = _Fitted(
-        out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"]
-    )
+    fitted = _Fitted(out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"])
     return out["trend"], out["seasonal"], out["weight"], fitted
 
 

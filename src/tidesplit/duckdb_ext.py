@@ -28,12 +28,12 @@ from . import (
     sql_build,
     unusual,
 )
+from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import SQL_TYPES
 from .batch_split import segment_counts
 from .errors import ParamError
 from .kernel import grid
-from . import effects as effects_front
 from .keyed_split import RowsResult, split_rows
 from .params import SplitParams
 from .status import OK

@@ -131,9 +131,7 @@ def period_days(month_index: np.ndarray, step: int, ends: bool) -> tuple[np.ndar
     return first, last
 
 
-def _raw_columns(
-    request: Request, first: np.ndarray, last: np.ndarray
-) -> np.ndarray:
+def _raw_columns(request: Request, first: np.ndarray, last: np.ndarray) -> np.ndarray:
     """Calendar columns before centring."""
     parts = []
     if WEEKDAYS in request.calendar:
@@ -183,9 +181,7 @@ class Design:
     notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
 
 
-def build(
-    request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kind: str
-) -> Design:
+def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kind: str) -> Design:
     """The design of every series on its grid (``offsets`` are the grid's)."""
     names = request.names()
     width = request.calendar_width()
@@ -212,8 +208,7 @@ def build(
                 else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
             )
             notes[s] = (
-                f"no calendar effects: they need monthly or quarterly dates, the series has "
-                f"{step}"
+                f"no calendar effects: they need monthly or quarterly dates, the series has {step}"
             )
             continue
         step_months = int(grid.step[s])

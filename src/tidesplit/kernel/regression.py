@@ -193,9 +193,7 @@ def screen_batch(
     count = offsets.shape[0] - 1
     seen = ~np.isnan(y)
     for s in prange(count):
-        _screen_one(
-            X, seen, offsets[s], offsets[s + 1], periods[s], extra[s], verdict[s]
-        )
+        _screen_one(X, seen, offsets[s], offsets[s + 1], periods[s], extra[s], verdict[s])
 
 
 @njit(nogil=True, cache=True)
@@ -369,8 +367,10 @@ def backfit(
     n_seen = np.maximum(np.bincount(series_of, weights=seen, minlength=count), 1)
     mean = np.bincount(series_of, weights=filled, minlength=count) / n_seen
     spread = np.sqrt(
-        np.bincount(series_of, weights=np.where(seen, (y - mean[series_of]) ** 2, 0.0),
-                    minlength=count) / n_seen
+        np.bincount(
+            series_of, weights=np.where(seen, (y - mean[series_of]) ** 2, 0.0), minlength=count
+        )
+        / n_seen
     )
     spread = np.where(spread > 0, spread, 1.0)
     todo = active.copy()
