@@ -659,7 +659,7 @@ class _Fitted:
 
 # Backfitting stops when no fitted effect moves by more than this share of the series'
 # spread in a round, or after this many rounds (ours).
-EFFECTS_TOLERANCE = 1e-8
+EFFECTS_TOLERANCE = 1e-6
 EFFECTS_ROUNDS = 50
 
 
@@ -689,8 +689,26 @@ def _run_effects(
         chosen[~which, COL_ACTIVE] = 0
         return _run_kernel(values, offsets, chosen, parallel)
 
+    robust = settings[:, COL_OUTER] > 0
+    start = None
+    if (robust & active).any():
+        # robust fits start from the plain one: from no effect at all, the points the
+        # effects move most (a leap-year February) look like outliers, get no weight, and
+        # then cannot tell the effect any more
+        plain = settings.copy()
+        plain[:, COL_OUTER] = 0
+
+        def plain_split(values: np.ndarray, which: np.ndarray) -> tuple[np.ndarray, ...]:
+            chosen = plain.copy()
+            chosen[~which, COL_ACTIVE] = 0
+            return _run_kernel(values, offsets, chosen, parallel)
+
+        start = regression.backfit(
+            y, offsets, X, kept, robust & active, plain_split, used,
+            tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
+        )["effect"]  # fmt: skip
     out = regression.backfit(
-        y, offsets, X, kept, active, split, used,
+        y, offsets, X, kept, active, split, used, robust, start,
         tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
     )  # fmt: skip
     fitted = _Fitted(out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"])

@@ -205,6 +205,7 @@ def _fit_one(
     hi: int,
     kept: np.ndarray,
     used: float,
+    sandwich: bool,
     coef: np.ndarray,
     cov: np.ndarray,
 ) -> float:
@@ -238,11 +239,34 @@ def _fit_one(
     dof = rows - m - used
     scale = np.sum(residual * residual) / dof if dof > 0 else np.nan
     R_inv = np.linalg.solve(R, np.eye(m))
-    unscaled = R_inv @ np.ascontiguousarray(R_inv.T)
+    bread = R_inv @ np.ascontiguousarray(R_inv.T)
+    if sandwich:
+        # robustness weights make this an M-estimate (bisquare): its covariance is the
+        # sandwich B^-1 M B^-1 with B = sum psi'(r) x x' and M = sum psi(r)^2 x x'
+        # (Huber 1981, Robust Statistics, section 7.6, from memory), scaled by points /
+        # residual degrees of freedom. With w = (1 - u^2)^2 the bisquare weight of
+        # u = r / h, psi(r) = w r and psi'(r) = sqrt(w) (5 sqrt(w) - 4), so that
+        # psi'(r) x x' = (5 - 4 / sqrt(w)) a a' for the weighted row a = sqrt(w) x.
+        meat = np.zeros((m, m))
+        slope = np.zeros((m, m))
+        r = 0
+        for i in range(lo, hi):
+            if not np.isnan(z[i]) and w[i] > 0.0:
+                shape = 5.0 - 4.0 / np.sqrt(w[i])
+                for c in range(m):
+                    for d in range(m):
+                        meat[c, d] += residual[r] * residual[r] * A[r, c] * A[r, d]
+                        slope[c, d] += shape * A[r, c] * A[r, d]
+                r += 1
+        slope_inv = np.linalg.solve(slope, np.eye(m))
+        found = slope_inv @ meat @ np.ascontiguousarray(slope_inv.T)
+        found *= rows / dof if dof > 0 else np.nan
+    else:
+        found = scale * bread
     for c in range(m):
         coef[columns[c]] = solution[c]
         for d in range(m):
-            cov[columns[c], columns[d]] = scale * unscaled[c, d]
+            cov[columns[c], columns[d]] = found[c, d]
     return scale
 
 
@@ -254,6 +278,7 @@ def fit_batch(
     weight: np.ndarray,
     kept: np.ndarray,
     used: np.ndarray,
+    sandwich: np.ndarray,
     active: np.ndarray,
     coef: np.ndarray,
     cov: np.ndarray,
@@ -264,13 +289,25 @@ def fit_batch(
 
     Points where ``z`` is NaN or the weight is 0 take no part. The residual variance is the
     weighted sum of squares over ``points - columns - used[s]``, where ``used`` counts the
-    degrees of freedom the split took (0 gives the textbook regression's figure).
+    degrees of freedom the split took (0 gives the textbook regression's figure). Where
+    ``sandwich[s]`` (robustness weights), the covariance is the sandwich form scaled by
+    ``points / (points - columns - used[s])``; otherwise the residual variance times
+    ``(X' W X)^-1``.
     """
     count = offsets.shape[0] - 1
     for s in prange(count):
         if active[s]:
             scale[s] = _fit_one(
-                z, X, weight, offsets[s], offsets[s + 1], kept[s], used[s], coef[s], cov[s]
+                z,
+                X,
+                weight,
+                offsets[s],
+                offsets[s + 1],
+                kept[s],
+                used[s],
+                sandwich[s],
+                coef[s],
+                cov[s],
             )
 
 
@@ -306,6 +343,8 @@ def backfit(
     active: np.ndarray,
     split: Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
     used: np.ndarray,
+    sandwich: np.ndarray | None = None,
+    start: np.ndarray | None = None,
     *,
     tolerance: float = 1e-8,
     most_rounds: int = 50,
@@ -323,6 +362,9 @@ def backfit(
     split : ``split(values, which)`` returns trend, seasonal and robustness weights (points
         long) of the series ``which``; NaN elsewhere.
     used : (series,) degrees of freedom the split takes (``split_degrees``).
+    sandwich : (series,) bool, the sandwich covariance (robust splits; see ``fit_batch``).
+    start : (points,) the effect to start from (a non-robust fit, before a robust one);
+        zero when left out.
     tolerance : a series has settled when no fitted effect moved by more than this share
         of the spread (standard deviation) of its values in the last round.
     most_rounds : the cap on rounds.
@@ -356,7 +398,7 @@ def backfit(
     trend = np.full(y.size, np.nan)
     seasonal = np.full(y.size, np.nan)
     weight = np.full(y.size, np.nan)
-    effect = np.zeros(y.size)
+    effect = np.zeros(y.size) if start is None else np.where(active[series_of], start, 0.0)
     coef = np.full((count, k), np.nan)
     cov = np.full((count, k, k), np.nan)
     scale = np.full(count, np.nan)
@@ -373,6 +415,7 @@ def backfit(
         / n_seen
     )
     spread = np.where(spread > 0, spread, 1.0)
+    sandwich = np.zeros(count, dtype=bool) if sandwich is None else sandwich
     todo = active.copy()
     settled = ~active
     for _ in range(most_rounds):
@@ -386,7 +429,9 @@ def backfit(
         new_coef = np.full((count, k), np.nan)
         new_cov = np.full((count, k, k), np.nan)
         new_scale = np.full(count, np.nan)
-        fit_batch(z, offsets, X, fit_weight, kept, used, todo, new_coef, new_cov, new_scale)
+        fit_batch(
+            z, offsets, X, fit_weight, kept, used, sandwich, todo, new_coef, new_cov, new_scale
+        )
         new_effect = (X * np.repeat(np.nan_to_num(new_coef), lengths, axis=0)).sum(axis=1)
         moved = np.zeros(count)
         np.maximum.at(moved, series_of[rows], np.abs(new_effect - effect)[rows])
