@@ -192,28 +192,32 @@ def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kin
     notes = [""] * count
     if width == 0:
         return Design(X, names, width, absent, notes)
-    for s in range(count):
-        lo, hi = int(offsets[s]), int(offsets[s + 1])
-        monthly = (
-            grid is not None
-            and kind != "integer"
-            and int(grid.unit[s]) == calendar.UNIT_MONTH
-            and int(grid.step[s]) in (1, 3)
+    if grid is not None and kind != "integer":
+        monthly = (grid.unit == calendar.UNIT_MONTH) & np.isin(grid.step, (1, 3))
+    else:
+        monthly = np.zeros(count, dtype=bool)
+    for s in np.flatnonzero(~monthly):
+        absent[s, :width] = True
+        step = (
+            "integer times"
+            if grid is None or kind == "integer"
+            else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
         )
-        if not monthly:
-            absent[s, :width] = True
-            step = (
-                "integer times"
-                if grid is None or kind == "integer"
-                else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
-            )
-            notes[s] = (
-                f"no calendar effects: they need monthly or quarterly dates, the series has {step}"
-            )
-            continue
-        step_months = int(grid.step[s])
-        months = int(grid.first[s]) + step_months * np.arange(lengths[s], dtype=np.int64)
-        X[lo:hi, :width] = calendar_columns(request, months, step_months, grid.anchor[s] == -1)
+        notes[s] = (
+            f"no calendar effects: they need monthly or quarterly dates, the series has {step}"
+        )
+    # one pass per kind of calendar (step, stamped at month ends or not), every point of
+    # its series at once
+    series_of = np.repeat(np.arange(count), lengths)
+    position = np.arange(int(offsets[-1])) - np.repeat(offsets[:-1], lengths)
+    for step_months in (1, 3):
+        for ends in (False, True):
+            chosen = monthly & (grid.step == step_months) & ((grid.anchor == -1) == ends)
+            if not chosen.any():
+                continue
+            rows = chosen[series_of]
+            months = grid.first[series_of[rows]] + step_months * position[rows]
+            X[rows, :width] = calendar_columns(request, months, step_months, ends)
     return Design(X, names, width, absent, notes)
 
 
