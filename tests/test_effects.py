@@ -531,3 +531,16 @@ def test_open_retail_series_has_a_weekday_effect_that_leaves_the_remainder():
     after = trading_day_power(fitted["remainder"].to_numpy())
     # measured: the power falls to 15% of the plain split's (README)
     assert after < 0.3 * before
+
+
+def test_demo_takings_show_the_week_and_easter_they_were_made_with():
+    from tidesplit.examples import retail_chain
+
+    table = retail_chain.monthly_takings(shops=4)
+    found = api.profile(table, "shop", "month", "takings", calendar_effects="weekdays, easter")
+    for rows, status in zip(found["effects"], found["status"], strict=True):
+        assert status == "ok"
+        t = {r["name"]: r["t_value"] for r in rows}
+        # the invented week: Saturday the busiest day, Sunday the quietest (WEEKDAY_LIFT)
+        assert t["weekday_saturday"] > 2 and t["weekday_sunday"] < -2
+        assert t["easter"] > 5

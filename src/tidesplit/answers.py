@@ -145,7 +145,7 @@ PROFILE_COLUMNS = (
         "effects",
         EFFECTS_TYPE,
         "with `calendar_effects`: each fitted effect's `{name, coefficient, std_error, "
-        "t_value}` (transformed scale; see Calendar and outside effects); NULL without",
+        "t_value}` (transformed scale; see Calendar effects); NULL without",
     ),
     _PERIOD,
     Column("periods", "BIGINT[]", "the periods used"),

@@ -224,7 +224,7 @@ REGISTRY: tuple[Argument, ...] = (
     Argument(
         "calendar_effects",
         TEXT,
-        "calendar effects fitted beside the split (see Calendar and outside effects), "
+        "calendar effects fitted beside the split (see Calendar effects), "
         "comma-separated: 'weekdays' (trading days: a coefficient per weekday and one for "
         "the period's length; monthly and quarterly dates), 'easter' (the days before "
         "Easter), or 'none'",

@@ -660,7 +660,7 @@ class _Fitted:
 # Backfitting stops when no fitted effect moves by more than this share of the series'
 # spread in a round, or after this many rounds (ours).
 EFFECTS_TOLERANCE = 1e-6
-EFFECTS_ROUNDS = 50
+EFFECTS_ROUNDS = 25
 
 
 def _run_effects(
