@@ -12,7 +12,9 @@ daily effects sum to zero over a week), a length-of-period term, and the share o
 of ``w`` days before Easter that falls in each period.
 
 Days are whole days since 1970-01-01 (a Thursday). Nothing here knows of tables: the fronts
-hand over day numbers, Easter days and flat arrays.
+hand over day numbers, Easter days and flat arrays. The compiled loops run on the calling
+thread (no numba threads): they cost little beside the split, and a database calls them
+from several threads at once.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ from __future__ import annotations
 from collections.abc import Callable
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from . import linear
 from .layout import COL_OUTER
@@ -171,7 +173,7 @@ def _screen_one(
         verdict[j] = KEPT
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def screen_batch(
     y: np.ndarray,
     offsets: np.ndarray,
@@ -192,8 +194,41 @@ def screen_batch(
     """
     count = offsets.shape[0] - 1
     seen = ~np.isnan(y)
-    for s in prange(count):
+    for s in range(count):
         _screen_one(X, seen, offsets[s], offsets[s + 1], periods[s], extra[s], verdict[s])
+
+
+@njit(nogil=True, cache=True)
+def _inverse(matrix: np.ndarray) -> np.ndarray:
+    """The inverse of a small square matrix by Gauss-Jordan elimination with partial
+    pivoting; NaN throughout when it is singular. Hand-written: for the few columns of a
+    calendar design a LAPACK call costs more than the arithmetic."""
+    m = matrix.shape[0]
+    work = matrix.copy()
+    out = np.eye(m)
+    for c in range(m):
+        pivot = c
+        for r in range(c + 1, m):
+            if abs(work[r, c]) > abs(work[pivot, c]):
+                pivot = r
+        if work[pivot, c] == 0.0:
+            out[:, :] = np.nan
+            return out
+        if pivot != c:
+            for j in range(m):
+                work[c, j], work[pivot, j] = work[pivot, j], work[c, j]
+                out[c, j], out[pivot, j] = out[pivot, j], out[c, j]
+        scale = 1.0 / work[c, c]
+        for j in range(m):
+            work[c, j] *= scale
+            out[c, j] *= scale
+        for r in range(m):
+            if r != c and work[r, c] != 0.0:
+                factor = work[r, c]
+                for j in range(m):
+                    work[r, j] -= factor * work[c, j]
+                    out[r, j] -= factor * out[c, j]
+    return out
 
 
 @njit(nogil=True, cache=True)
@@ -244,9 +279,15 @@ def _fit_one(
     for c in range(m):
         for d in range(c):
             gram[c, d] = gram[d, c]
-    bread = np.linalg.inv(gram)
-    solution = bread @ right
-    residual = b - A @ solution
+    bread = _inverse(gram)
+    solution = np.zeros(m)
+    for c in range(m):
+        for d in range(m):
+            solution[c] += bread[c, d] * right[d]
+    residual = b.copy()
+    for i in range(rows):
+        for c in range(m):
+            residual[i] -= A[i, c] * solution[c]
     dof = rows - m - used
     scale = np.sum(residual * residual) / dof if dof > 0 else np.nan
     if sandwich:
@@ -267,7 +308,7 @@ def _fit_one(
                         meat[c, d] += residual[r] * residual[r] * A[r, c] * A[r, d]
                         slope[c, d] += shape * A[r, c] * A[r, d]
                 r += 1
-        slope_inv = np.linalg.solve(slope, np.eye(m))
+        slope_inv = _inverse(slope)
         found = slope_inv @ meat @ np.ascontiguousarray(slope_inv.T)
         found *= rows / dof if dof > 0 else np.nan
     else:
@@ -279,7 +320,7 @@ def _fit_one(
     return scale
 
 
-@njit(nogil=True, parallel=True, cache=True)
+@njit(nogil=True, cache=True)
 def fit_batch(
     z: np.ndarray,
     offsets: np.ndarray,
@@ -304,7 +345,7 @@ def fit_batch(
     ``(X' W X)^-1``.
     """
     count = offsets.shape[0] - 1
-    for s in prange(count):
+    for s in range(count):
         if active[s]:
             scale[s] = _fit_one(
                 z,
@@ -342,6 +383,32 @@ def split_degrees(n: int, settings: np.ndarray) -> float:
     both = trend_op + seasonal_op
     degrees = 2.0 * np.trace(both) - float(np.sum(both * both))
     return float(degrees * n / size)
+
+
+@njit(nogil=True, cache=True)
+def _update_effect(
+    X: np.ndarray,
+    offsets: np.ndarray,
+    coef: np.ndarray,
+    active: np.ndarray,
+    effect: np.ndarray,
+    moved: np.ndarray,
+) -> None:
+    """``effect = X b`` on the points of each active series (columns with a NaN
+    coefficient count as 0), and in ``moved`` the largest change of each."""
+    k = X.shape[1]
+    for s in range(offsets.shape[0] - 1):
+        if not active[s]:
+            continue
+        largest = 0.0
+        for i in range(offsets[s], offsets[s + 1]):
+            total = 0.0
+            for j in range(k):
+                if not np.isnan(coef[s, j]):
+                    total += X[i, j] * coef[s, j]
+            largest = max(largest, abs(total - effect[i]))
+            effect[i] = total
+        moved[s] = largest
 
 
 def backfit(
@@ -441,15 +508,8 @@ def backfit(
         fit_batch(
             z, offsets, X, fit_weight, kept, used, sandwich, todo, new_coef, new_cov, new_scale
         )
-        index = np.flatnonzero(rows)
-        owner = series_of[index]
-        new_effect = np.einsum("ij,ij->i", X[index], np.nan_to_num(new_coef)[owner])
         moved = np.zeros(count)
-        if index.size:
-            starts = np.flatnonzero(np.diff(owner, prepend=-1))
-            change = np.abs(new_effect - effect[index])
-            moved[owner[starts]] = np.maximum.reduceat(change, starts)
-        effect[index] = new_effect
+        _update_effect(X, offsets, new_coef, todo, effect, moved)
         coef[todo], cov[todo], scale[todo] = new_coef[todo], new_cov[todo], new_scale[todo]
         rounds[todo] += 1
         done = todo & (moved <= tolerance * spread)
