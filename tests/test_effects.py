@@ -544,3 +544,25 @@ def test_demo_takings_show_the_week_and_easter_they_were_made_with():
         # the invented week: Saturday the busiest day, Sunday the quietest (WEEKDAY_LIFT)
         assert t["weekday_saturday"] > 2 and t["weekday_sunday"] < -2
         assert t["easter"] > 5
+
+
+def test_command_line_profile_carries_the_coefficients(tmp_path):
+    import pyarrow.parquet as pq
+
+    from tidesplit.cli import main
+    from tidesplit.examples import retail_chain
+
+    source, target = tmp_path / "takings.parquet", tmp_path / "profile.parquet"
+    pq.write_table(retail_chain.monthly_takings(shops=2), source)
+    code = main(["profile", "--from", str(source), "--to", str(target), "--key", "shop",
+                 "--time", "month", "--value", "takings", "--calendar-effects",
+                 "weekdays,easter", "--quiet"])  # fmt: skip
+    assert code in (0, None)
+    table = pq.read_table(target).to_pandas().sort_values("shop")
+    direct = api.profile(
+        retail_chain.monthly_takings(shops=2), "shop", "month", "takings",
+        calendar_effects="weekdays,easter",
+    ).sort_values("shop")  # fmt: skip
+    for a, b in zip(table["effects"], direct["effects"], strict=True):
+        assert [r["name"] for r in a] == [r["name"] for r in b]
+        assert np.allclose([r["coefficient"] for r in a], [r["coefficient"] for r in b])
