@@ -548,9 +548,9 @@ def test_demo_takings_show_the_week_and_easter_they_were_made_with():
 
 def test_command_line_profile_carries_the_coefficients(tmp_path):
     import pyarrow.parquet as pq
+    from tidesplit.examples import retail_chain
 
     from tidesplit.cli import main
-    from tidesplit.examples import retail_chain
 
     source, target = tmp_path / "takings.parquet", tmp_path / "profile.parquet"
     pq.write_table(retail_chain.monthly_takings(shops=2), source)
