@@ -566,3 +566,25 @@ def test_command_line_profile_carries_the_coefficients(tmp_path):
     for a, b in zip(table["effects"], direct["effects"], strict=True):
         assert [r["name"] for r in a] == [r["name"] for r in b]
         assert np.allclose([r["coefficient"] for r in a], [r["coefficient"] for r in b])
+
+
+def test_quarterly_series_recover_their_effects():
+    rng = np.random.default_rng(21)
+    request = effects.Request(calendar=("weekdays", "easter"))
+    frames, truth = [], []
+    for k in range(40):
+        quarters = (1990 - 1970) * 12 + 3 * np.arange(80)  # 20 years, stamped at the start
+        X = effects.calendar_columns(request, quarters, 3, False)
+        b = np.r_[rng.normal(0, 2.0, 6), rng.normal(30, 5), rng.normal(20, 3)]
+        t = np.arange(80)
+        y = 500 + t + 20 * np.sin(2 * np.pi * (t + k) / 4) + X @ b + rng.normal(0, 1, 80)
+        stamps = quarters.astype("datetime64[M]").astype("datetime64[ns]")
+        frames.append(pd.DataFrame({"key": f"q{k:03d}", "quarter": stamps, "value": y}))
+        truth.append(np.r_[b[:6], -b[:6].sum(), b[6:]])
+    found = api.profile(pd.concat(frames), "key", "quarter", "value",
+                        calendar_effects="weekdays, easter")  # fmt: skip
+    est = np.array([[r["coefficient"] for r in rows] for rows in found["effects"]])
+    error = np.array([[r["std_error"] for r in rows] for rows in found["effects"]])
+    within_two = (np.abs(est - np.array(truth)) <= 2 * error).mean()
+    # the normal distribution's 95%, less a margin for 360 draws
+    assert within_two > 0.88
