@@ -655,6 +655,7 @@ class _Fitted:
     verdict: np.ndarray  # series x columns (kernel.regression KEPT, ...)
     settled: np.ndarray  # per series
     rounds: np.ndarray
+    last_move: np.ndarray  # per series: the last round's largest change / the spread
 
 
 # Backfitting stops when no fitted effect moves by more than this share of the series'
@@ -711,7 +712,10 @@ def _run_effects(
         y, offsets, X, kept, active, split, used, robust, start,
         tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
     )  # fmt: skip
-    fitted = _Fitted(out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"])
+    fitted = _Fitted(
+        out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"],
+        out["last_move"],
+    )  # fmt: skip
     return out["trend"], out["seasonal"], out["weight"], fitted
 
 
@@ -758,7 +762,9 @@ def _add_effects(
                 notes.append(f"{name} dropped: {reason}")
         if not fitted.settled[s]:
             notes.append(
-                f"the effects did not settle in {EFFECTS_ROUNDS} rounds; the last are shown"
+                f"the effects did not settle in {EFFECTS_ROUNDS} rounds (the last moved by "
+                f"{fitted.last_move[s]:.1e} of the values' standard deviation); the last "
+                "round's are shown"
             )
         for note in notes:
             status[s] = with_note(status[s], note)

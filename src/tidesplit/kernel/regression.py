@@ -449,7 +449,9 @@ def backfit(
     -------
     dict
         ``trend``, ``seasonal``, ``weight``, ``effect`` (X b per point), ``coef``,
-        ``cov``, ``scale`` and ``rounds``, plus ``settled`` (bool per series).
+        ``cov``, ``scale`` and ``rounds``, plus ``settled`` (bool per series) and
+        ``last_move`` (the last round's largest change of the effect, as a share of the
+        spread).
 
     Examples
     --------
@@ -479,6 +481,7 @@ def backfit(
     cov = np.full((count, k, k), np.nan)
     scale = np.full(count, np.nan)
     rounds = np.zeros(count, dtype=np.int64)
+    last_move = np.zeros(count)
     # the spread the tolerance is measured against: the values' standard deviation
     seen = ~np.isnan(y)
     filled = np.where(seen, y, 0.0)
@@ -512,6 +515,7 @@ def backfit(
         _update_effect(X, offsets, new_coef, todo, effect, moved)
         coef[todo], cov[todo], scale[todo] = new_coef[todo], new_cov[todo], new_scale[todo]
         rounds[todo] += 1
+        last_move[todo] = moved[todo] / spread[todo]
         done = todo & (moved <= tolerance * spread)
         settled |= done
         todo &= ~done
@@ -525,4 +529,5 @@ def backfit(
         "scale": scale,
         "rounds": rounds,
         "settled": settled,
+        "last_move": last_move,
     }
