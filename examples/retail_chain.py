@@ -87,10 +87,26 @@ CLOSED_WEEK = 70
 SLIP_SHOP, SLIP_PRODUCT, SLIP_WEEK = 5, 0, 120  # a value typed with an extra zero
 
 
+def _name(names: tuple[str, ...], i: int) -> str:
+    """The i-th name; past the list, the names again with a number, so every key differs.
+
+    >>> _name(SHOP_NAMES, 0), _name(SHOP_NAMES, len(SHOP_NAMES))
+    ('Quayside', 'Quayside 2')
+    """
+    turn = i // len(names)
+    return names[i % len(names)] + (f" {turn + 1}" if turn else "")
+
+
 def weekly_units(shops: int = 12, products: int = 20, years: int = 6, seed: int = 7) -> pa.Table:
     """Weekly units per shop and product: columns shop, product, week (0, 1, ...), units.
 
     Units are NULL in the week the closed shop was shut; one row carries a data-entry slip.
+    Past the 12 shop and 20 product names, the names come again with a number ("Quayside
+    2"), so a larger chain still has one series per shop and product.
+
+    >>> chain = weekly_units(shops=13, products=21, years=1)
+    >>> len(set(zip(chain["shop"].to_pylist(), chain["product"].to_pylist()))) == 13 * 21
+    True
     """
     rng = np.random.default_rng(seed)
     weeks = WEEKS_PER_YEAR * years
@@ -113,8 +129,8 @@ def weekly_units(shops: int = 12, products: int = 20, years: int = 6, seed: int 
                 present[CLOSED_WEEK] = False
             if (s, p) == (SLIP_SHOP, SLIP_PRODUCT) and weeks > SLIP_WEEK:
                 units[SLIP_WEEK] *= 10
-            shop_col += [SHOP_NAMES[s % len(SHOP_NAMES)]] * weeks
-            product_col += [PRODUCT_NAMES[p % len(PRODUCT_NAMES)]] * weeks
+            shop_col += [_name(SHOP_NAMES, s)] * weeks
+            product_col += [_name(PRODUCT_NAMES, p)] * weeks
             week_col.append(t)
             unit_col.append(np.where(present, units, np.nan))
     return pa.table(

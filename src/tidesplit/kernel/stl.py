@@ -101,6 +101,54 @@ def _subseries_smooth(
 
 
 @njit(nogil=True, cache=True)
+def _select(a: np.ndarray, count: int, k: int) -> float:
+    """The ``k``-th smallest of ``a[:count]`` (0-based), reordering ``a`` in place.
+
+    Hoare's selection, in place: np.median copied and sorted the residuals on every
+    robustness pass (about a tenth of a robust split's time on monthly series).
+    """
+    lo = 0
+    hi = count - 1
+    while lo < hi:
+        pivot = a[(lo + hi) // 2]
+        i = lo
+        j = hi
+        while i <= j:
+            while a[i] < pivot:
+                i += 1
+            while a[j] > pivot:
+                j -= 1
+            if i <= j:
+                a[i], a[j] = a[j], a[i]
+                i += 1
+                j -= 1
+        if k <= j:
+            hi = j
+        elif k >= i:
+            lo = i
+        else:
+            break
+    return a[k]
+
+
+@njit(nogil=True, cache=True)
+def _median(a: np.ndarray, count: int) -> float:
+    """Median of ``a[:count]`` (the mean of the middle two for an even count), as
+    np.median gives it, NaN if any value is; reorders ``a``."""
+    for i in range(count):
+        if math.isnan(a[i]):
+            return math.nan
+    upper = _select(a, count, count // 2)
+    if count % 2:
+        return upper
+    lower = a[0]
+    for i in range(1, count // 2):
+        if a[i] > lower:
+            lower = a[i]
+    return 0.5 * (lower + upper)
+
+
+@njit(nogil=True, cache=True)
 def _robustness_weights(
     y: np.ndarray, fit: np.ndarray, n: int, rw: np.ndarray, absres: np.ndarray
 ) -> None:
@@ -115,7 +163,7 @@ def _robustness_weights(
             count += 1
     if count == 0:
         return
-    scale = 6.0 * np.median(absres[:count])
+    scale = 6.0 * _median(absres, count)
     near = NEAR * scale
     far = FAR * scale
     for i in range(n):

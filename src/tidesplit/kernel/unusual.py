@@ -113,15 +113,22 @@ def departure_from_neighbours(
             out[i] = math.nan
             if math.isnan(remainder[i]):
                 continue
+            # insertion sort into a small buffer: np.sort here allocated once per point
+            # and took most of the time
             k = 0
             for j in range(max(lo, i - reach), min(hi, i + reach + 1)):
-                if j != i and not math.isnan(remainder[j]):
-                    window[k] = remainder[j]
-                    k += 1
+                x = remainder[j]
+                if j == i or math.isnan(x):
+                    continue
+                m = k
+                while m > 0 and window[m - 1] > x:
+                    window[m] = window[m - 1]
+                    m -= 1
+                window[m] = x
+                k += 1
             if k == 0:
                 continue
-            ordered = np.sort(window[:k])
-            middle = ordered[k // 2] if k % 2 else 0.5 * (ordered[k // 2 - 1] + ordered[k // 2])
+            middle = window[k // 2] if k % 2 else 0.5 * (window[k // 2 - 1] + window[k // 2])
             out[i] = remainder[i] - middle
 
 
