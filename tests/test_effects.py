@@ -588,3 +588,16 @@ def test_quarterly_series_recover_their_effects():
     within_two = (np.abs(est - np.array(truth)) <= 2 * error).mean()
     # the normal distribution's 95%, less a margin for 360 draws
     assert within_two > 0.88
+
+
+def test_box_cox_fits_on_its_scale():
+    frame, _ = simulated(2, seed=6)
+    frame = frame[["key", "month", "value"]]
+    out = api.split_table(frame, "key", "month", "value", calendar_effects="weekdays, easter",
+                          transform="boxcox", boxcox_lambda=0.5)  # fmt: skip
+    scaled = (out["value"] ** 0.5 - 1) / 0.5
+    total = out["trend"] + out["seasonal"] + out["calendar_effect"] + out["remainder"]
+    assert np.allclose(total, scaled, atol=1e-9)
+    back = (0.5 * (scaled - out["seasonal"] - out["calendar_effect"]) + 1) ** 2
+    assert np.allclose(out["adjusted"], back)
+    assert (out["status"] == "ok").all()

@@ -408,7 +408,7 @@ def split_batch(
         values, offsets, y, trend, seasonal, weight, parts, plan, ok, back, status, describe_point
     )
     if fitted is not None:
-        _add_effects(result, y, fitted, design, plan, ok, back, status)
+        _add_effects(result, y, fitted, design, plan, ok, back, status, describe_point)
     else:
         result.calendar_effect = np.where(np.isnan(trend), np.nan, 0.0)
         result.adjusted_season_only = result.adjusted
@@ -728,6 +728,7 @@ def _add_effects(
     ok: np.ndarray,
     back: np.ndarray | None,
     status: list[str],
+    describe_point: Callable[[int, int], str] | None,
 ) -> None:
     """The effects' columns, the remainder without them, adjusted without the calendar
     effect, the coefficients, and a note for each column dropped."""
@@ -746,6 +747,12 @@ def _add_effects(
         adjusted[moved] = transform.inverse(
             adjusted[moved], np.repeat(plan.lambdas, lengths)[moved]
         )
+        # a point that the calendar effect takes out of the transform's reach (see
+        # _note_unreachable); those without a seasonal part alone were noted already
+        fresh = np.isnan(adjusted) & ~np.isnan(result.adjusted_season_only)
+        if fresh.any():
+            probe = np.where(fresh, np.nan, 0.0)
+            _note_unreachable(y, result.offsets, probe, plan.lambdas, moved, status, describe_point)
     result.adjusted = adjusted
     result.coefficients = []
     for s in range(lengths.size):
