@@ -691,23 +691,23 @@ def _run_effects(
         return _run_kernel(values, offsets, chosen, parallel)
 
     robust = settings[:, COL_OUTER] > 0
-    start = None
-    if (robust & active).any():
-        # robust fits start from the plain one: from no effect at all, the points the
-        # effects move most (a leap-year February) look like outliers, get no weight, and
-        # then cannot tell the effect any more
-        plain = settings.copy()
-        plain[:, COL_OUTER] = 0
-
-        def plain_split(values: np.ndarray, which: np.ndarray) -> tuple[np.ndarray, ...]:
-            chosen = plain.copy()
-            chosen[~which, COL_ACTIVE] = 0
-            return _run_kernel(values, offsets, chosen, parallel)
-
-        start = regression.backfit(
-            y, offsets, X, kept, robust & active, plain_split, used,
-            tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
-        )["effect"]  # fmt: skip
+    # start from where backfitting with the plain (linear) split settles, solved directly:
+    # the plain fit then settles in a round or two, and a robust fit starts from it (from
+    # no effect at all, the points the effects move most, a leap-year February, look like
+    # outliers, get no weight, and then cannot tell the effect any more)
+    plain = settings.copy()
+    plain[:, COL_OUTER] = 0
+    missing = np.isnan(y)
+    X_rest = np.empty_like(X)
+    for j in range(X.shape[1]):
+        column = np.where(missing, np.nan, X[:, j])
+        trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
+        X_rest[:, j] = X[:, j] - trend - seasonal
+    trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
+    coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
+    regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
+    coef = np.where(np.isfinite(coef), coef, 0.0)
+    start = np.einsum("ij,ij->i", X, np.repeat(coef, lengths, axis=0))
     out = regression.backfit(
         y, offsets, X, kept, active, split, used, robust, start,
         tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
@@ -754,14 +754,14 @@ def _add_effects(
             probe = np.where(fresh, np.nan, 0.0)
             _note_unreachable(y, result.offsets, probe, plan.lambdas, moved, status, describe_point)
     result.adjusted = adjusted
-    result.coefficients = []
-    for s in range(lengths.size):
-        if not ok[s]:
-            result.coefficients.append(None)
-            continue
-        result.coefficients.append(
-            effects_front.coefficient_rows(design.names, fitted.coef[s], fitted.cov[s])
-        )
+    tables = effects_front.coefficient_tables(design.names, fitted.coef, fitted.cov)
+    result.coefficients = [table if good else None for table, good in zip(tables, ok, strict=True)]
+    noted = (
+        (fitted.verdict > regression.ABSENT).any(axis=1)
+        | ~fitted.settled
+        | np.array([bool(n) for n in design.notes], dtype=bool)
+    )
+    for s in np.flatnonzero(ok & noted):
         notes = [design.notes[s]] if design.notes[s] else []
         for j, name in enumerate(design.names):
             reason = effects_front.VERDICT_WORDS.get(int(fitted.verdict[s, j]))

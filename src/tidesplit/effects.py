@@ -165,9 +165,11 @@ def calendar_columns(
     >>> bool(np.abs(cols.reshape(400, 12, 7).mean(axis=0)).max() < 1e-9)
     True
     """
-    raw = _raw_columns(request, *period_days(month_index, step, ends))
-    means = _long_run_means(request, step, ends)
-    return raw - means[month_index % 12]
+    # a fleet's series share their months: each distinct month once
+    months, back = np.unique(month_index, return_inverse=True)
+    raw = _raw_columns(request, *period_days(months, step, ends))
+    centred = raw - _long_run_means(request, step, ends)[months % 12]
+    return centred[back.reshape(-1)]
 
 
 @dataclass
@@ -232,17 +234,41 @@ def coefficient_rows(
     >>> coefficient_rows(names, np.array([2.0, np.nan]), np.diag([0.25, np.nan]))
     [('a', 2.0, 0.5, 4.0)]
     """
-    rows = []
-    for j, name in enumerate(names):
-        if np.isnan(coef[j]):
-            continue
-        rows.append(_row(name, coef[j], cov[j, j]))
-        if name == _CONTRASTS[-1]:
-            index = [names.index(c) for c in _CONTRASTS]
-            if not np.isnan(coef[index]).any():
-                block = cov[np.ix_(index, index)]
-                rows.append(_row("weekday_sunday", -coef[index].sum(), block.sum()))
-    return rows
+    return coefficient_tables(names, coef[None, :], cov[None, :, :])[0]
+
+
+def coefficient_tables(
+    names: tuple[str, ...], coef: np.ndarray, cov: np.ndarray
+) -> list[list[tuple[str, float, float, float]]]:
+    """``coefficient_rows`` of every series (``coef``: series x columns, ``cov``: series
+    x columns x columns), computed for all series at once."""
+    count, k = coef.shape
+    variance = np.diagonal(cov, axis1=1, axis2=2)
+    shown = list(names)
+    values = [coef[:, j] for j in range(k)]
+    variances = [variance[:, j] for j in range(k)]
+    order = list(range(k))
+    if all(c in names for c in _CONTRASTS):
+        index = [names.index(c) for c in _CONTRASTS]
+        values.append(-coef[:, index].sum(axis=1))
+        variances.append(cov[:, index][:, :, index].sum(axis=(1, 2)))
+        shown.append("weekday_sunday")
+        # Sunday right after Saturday
+        order.insert(order.index(index[-1]) + 1, k)
+    table = np.column_stack([values[j] for j in order]) if order else np.empty((count, 0))
+    var = np.column_stack([variances[j] for j in order]) if order else np.empty((count, 0))
+    labels = [shown[j] for j in order]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        error = np.sqrt(np.where(var >= 0, var, np.nan))
+        t = np.where(error > 0, table / error, np.nan)
+    fitted = ~np.isnan(table)
+    rows_out = []
+    for c_row, e_row, t_row, f_row in zip(
+        table.tolist(), error.tolist(), t.tolist(), fitted.tolist(), strict=True
+    ):
+        found = [(labels[j], c_row[j], e_row[j], t_row[j]) for j in range(len(labels)) if f_row[j]]
+        rows_out.append(found)
+    return rows_out
 
 
 def _row(name: str, value: float, variance: float) -> tuple[str, float, float, float]:

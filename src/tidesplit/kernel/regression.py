@@ -361,6 +361,45 @@ def fit_batch(
             )
 
 
+@njit(nogil=True, cache=True)
+def start_batch(
+    rest: np.ndarray,
+    X: np.ndarray,
+    X_rest: np.ndarray,
+    offsets: np.ndarray,
+    kept: np.ndarray,
+    active: np.ndarray,
+    coef: np.ndarray,
+) -> None:
+    """Where backfitting with a linear split ``L`` settles, solved directly: the
+    coefficients with ``X' (X - L X) b = X' (y - L y)`` over the observed points
+    (``rest = y - L y``, NaN where ``y`` is missing; ``X_rest = X - L X``). Backfitting
+    started there has (nearly) nothing left to do. NaN where the system is singular.
+    """
+    for s in range(offsets.shape[0] - 1):
+        if not active[s]:
+            continue
+        columns = np.flatnonzero(kept[s])
+        m = columns.size
+        if m == 0:
+            continue
+        system = np.zeros((m, m))
+        right = np.zeros(m)
+        for i in range(offsets[s], offsets[s + 1]):
+            if np.isnan(rest[i]):
+                continue
+            for c in range(m):
+                right[c] += X[i, columns[c]] * rest[i]
+                for d in range(m):
+                    system[c, d] += X[i, columns[c]] * X_rest[i, columns[d]]
+        inverse = _inverse(system)
+        for c in range(m):
+            total = 0.0
+            for d in range(m):
+                total += inverse[c, d] * right[d]
+            coef[s, columns[c]] = total
+
+
 def split_degrees(n: int, settings: np.ndarray) -> float:
     """The degrees of freedom a split of ``n`` points takes from the remainder:
     ``tr(2 L - L L')`` of its linear map ``L`` (trend plus seasonal), the residual
