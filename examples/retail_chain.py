@@ -185,7 +185,7 @@ def monthly_takings(shops: int = 12, years: int = 8, seed: int = 11) -> pa.Table
         daily = level * np.exp(growth * np.arange(days.size)) * season * lift
         daily *= np.exp(rng.normal(0.0, 0.05, days.size))
         takings = np.bincount(month_index, weights=daily)
-        shop_col += [SHOP_NAMES[s % len(SHOP_NAMES)]] * takings.size
+        shop_col += [_name(SHOP_NAMES, s)] * takings.size
         month_col.append(np.unique(months))
         take_col.append(np.round(takings, 2))
     return pa.table(
