@@ -601,3 +601,37 @@ def test_box_cox_fits_on_its_scale():
     back = (0.5 * (scaled - out["seasonal"] - out["calendar_effect"]) + 1) ** 2
     assert np.allclose(out["adjusted"], back)
     assert (out["status"] == "ok").all()
+
+
+def test_the_direct_start_is_where_backfitting_from_nothing_settles():
+    from tidesplit.kernel.stl import stl_batch_serial
+
+    frame, _ = simulated(3, seed=13)
+    y = frame["value"].to_numpy().copy()
+    y[[5, 200, 401]] = np.nan  # gaps too
+    offsets = np.array([0, 180, 360, 540])
+    request = effects.Request(calendar=("weekdays", "easter"))
+    months = frame["month"].to_numpy().astype("datetime64[M]").astype(np.int64)
+    X = effects.calendar_columns(request, months, 1, False)
+    row = SplitParams(period=12).resolve().settings_row()
+
+    def split(values, which):
+        settings = np.tile(row, (3, 1))
+        settings[~which, -1] = 0
+        t, s, w = (np.full(values.size, np.nan) for _ in range(3))
+        stl_batch_serial(values, offsets, settings, t, s, w)
+        return t, s, w
+
+    kept = np.ones((3, X.shape[1]), dtype=bool)
+    active = np.ones(3, dtype=bool)
+    slow = regression.backfit(y, offsets, X, kept, active, split, np.zeros(3),
+                              tolerance=1e-12, most_rounds=200)  # fmt: skip
+    assert slow["settled"].all() and slow["rounds"].min() > 3
+    X_rest = np.empty_like(X)
+    for j in range(X.shape[1]):
+        t, s, _ = split(np.where(np.isnan(y), np.nan, X[:, j]), active)
+        X_rest[:, j] = X[:, j] - t - s
+    t, s, _ = split(y, active)
+    coef = np.full((3, X.shape[1]), np.nan)
+    regression.start_batch(y - t - s, X, X_rest, offsets, kept, active, coef)
+    assert np.abs(coef - slow["coef"]).max() < 1e-8
