@@ -2,6 +2,7 @@
 
     python benchmarks/effects.py                    # 100,000 monthly series x 120 points
     python benchmarks/effects.py --series 20000     # smaller, on a busy machine
+    python benchmarks/effects.py --skip-robust      # without the robust queries
 
 Each query runs once to warm up (compiles, caches) and is then timed as the best of
 ``--runs``, in one process on one table, so the plain split is the baseline of the same
@@ -36,6 +37,9 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--series", type=int, default=100_000)
     parser.add_argument("--runs", type=int, default=2, help="best of this many runs")
+    parser.add_argument(
+        "--skip-robust", action="store_true", help="only the non-robust queries (quicker)"
+    )
     args = parser.parse_args()
     case = Case("monthly", args.series, 120, (12,))
     values, _ = make_batch(case)
@@ -55,6 +59,8 @@ def main() -> None:
     print(f"{case.series:,} monthly series x {case.points} points, best of {args.runs} runs\n")
     baseline = {}
     for name, query in QUERIES.items():
+        if args.skip_robust and "robust" in name:
+            continue
         sql = f"CREATE OR REPLACE TABLE answer AS SELECT * FROM {query}"
         con.execute(sql)
         seconds = best_of(args.runs, lambda sql=sql: con.execute(sql))
