@@ -61,11 +61,10 @@ class Request:
 
     calendar: tuple[str, ...] = ()
     easter_days: int = 8
-    outside: tuple[str, ...] = ()
 
     @property
     def any(self) -> bool:
-        return bool(self.calendar or self.outside)
+        return bool(self.calendar)
 
     def names(self) -> tuple[str, ...]:
         """The design's columns, in order."""
@@ -74,10 +73,10 @@ class Request:
             out += [*_CONTRASTS, LENGTH]
         if EASTER in self.calendar:
             out.append(EASTER)
-        return (*out, *self.outside)
+        return tuple(out)
 
     def calendar_width(self) -> int:
-        return len(self.names()) - len(self.outside)
+        return len(self.names())
 
 
 def request(settings: dict[str, Any]) -> Request | None:
@@ -178,7 +177,7 @@ class Design:
 
     X: np.ndarray  # points x columns
     names: tuple[str, ...]
-    calendar_width: int  # the first columns are calendar ones, the others outside ones
+    calendar_width: int  # the first columns are calendar ones (today, all of them)
     absent: np.ndarray  # series x columns: the column does not apply
     notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
 
