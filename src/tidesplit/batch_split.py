@@ -674,12 +674,12 @@ def _run_effects(
     seen = segment_counts(~np.isnan(y), offsets)
     # the degrees of freedom the split takes, per distinct length and settings
     used = np.zeros(lengths.size)
-    known: dict[tuple, float] = {}
-    for s in np.flatnonzero(active):
-        key = (int(lengths[s]), *settings[s].tolist())
-        if key not in known:
-            known[key] = regression.split_degrees(int(lengths[s]), settings[s])
-        used[s] = known[key] * seen[s] / max(lengths[s], 1)
+    members = np.flatnonzero(active)
+    if members.size:
+        shapes = np.column_stack([lengths[members], settings[members]])
+        distinct, which = np.unique(shapes, axis=0, return_inverse=True)
+        degrees = np.array([regression.split_degrees(int(d[0]), d[1:]) for d in distinct])
+        used[members] = degrees[which.reshape(-1)] * seen[members] / np.maximum(lengths[members], 1)
     verdict = np.where(design.absent, regression.ABSENT, regression.KEPT).astype(np.int64)
     X = np.ascontiguousarray(design.X, dtype=np.float64)
     regression.screen_batch(y, offsets, X, settings[:, COL_PERIOD].copy(), used, verdict)
@@ -706,8 +706,8 @@ def _run_effects(
     trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
     coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
     regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
-    coef = np.where(np.isfinite(coef), coef, 0.0)
-    start = np.einsum("ij,ij->i", X, np.repeat(coef, lengths, axis=0))
+    start = np.zeros(y.size)
+    regression.effect_of(X, offsets, np.where(np.isfinite(coef), coef, np.nan), active, start)
     out = regression.backfit(
         y, offsets, X, kept, active, split, used, robust, start,
         tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
@@ -735,9 +735,11 @@ def _add_effects(
     lengths = np.diff(result.offsets)
     rows_ok = np.repeat(ok, lengths)
     width = design.calendar_width
-    coef = np.nan_to_num(fitted.coef)
-    calendar_part = (design.X[:, :width] * np.repeat(coef[:, :width], lengths, axis=0)).sum(1)
-    calendar_part[~rows_ok] = np.nan
+    calendar_part = np.full(y.size, np.nan)
+    regression.effect_of(
+        np.ascontiguousarray(design.X[:, :width]), result.offsets,
+        np.ascontiguousarray(fitted.coef[:, :width]), ok, calendar_part,
+    )  # fmt: skip
     result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
     result.calendar_effect = calendar_part
     result.adjusted_season_only = result.adjusted.copy()

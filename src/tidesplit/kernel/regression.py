@@ -450,6 +450,20 @@ def _update_effect(
         moved[s] = largest
 
 
+def effect_of(
+    X: np.ndarray, offsets: np.ndarray, coef: np.ndarray, active: np.ndarray, out: np.ndarray
+) -> None:
+    """``out = X b`` on the points of each active series (a NaN coefficient counts as 0).
+
+    >>> out = np.zeros(3)
+    >>> effect_of(np.ones((3, 2)), np.array([0, 3]), np.array([[1.0, np.nan]]),
+    ...           np.ones(1, bool), out)
+    >>> out.tolist()
+    [1.0, 1.0, 1.0]
+    """
+    _update_effect(X, offsets, coef, active, out, np.zeros(offsets.size - 1))
+
+
 def backfit(
     y: np.ndarray,
     offsets: np.ndarray,
