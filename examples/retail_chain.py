@@ -141,3 +141,57 @@ def weekly_units(shops: int = 12, products: int = 20, years: int = 6, seed: int 
             "units": pa.array(np.concatenate(unit_col), from_pandas=True),
         }
     )
+
+
+# The shops' week, in takings relative to an average day: busiest on Saturday, short hours on
+# Sunday. And the Easter rush: the eight days before Easter Sunday sell this much more.
+WEEKDAY_LIFT = {"monday": 0.85, "tuesday": 0.9, "wednesday": 0.95, "thursday": 1.0,
+                "friday": 1.2, "saturday": 1.45, "sunday": 0.65}  # fmt: skip
+EASTER_LIFT = 0.6
+EASTER_DAYS = 8
+
+
+def monthly_takings(shops: int = 12, years: int = 8, seed: int = 11) -> pa.Table:
+    """Monthly takings per shop: columns shop, month (DATE, the first of the month), takings.
+
+    Each month is the sum of its invented days, so months with more Saturdays take more and
+    the days before Easter lift March or April (see ``WEEKDAY_LIFT``, ``EASTER_LIFT``):
+    the calendar effects that ``calendar_effects := 'weekdays, easter'`` takes out.
+
+    >>> table = monthly_takings(shops=2, years=2)
+    >>> table.column_names, table.num_rows
+    (['shop', 'month', 'takings'], 48)
+    """
+    from tidesplit.effects import easter_day
+
+    rng = np.random.default_rng(seed)
+    first = np.datetime64("2017-01-01", "D")
+    days = np.arange(first, np.datetime64(f"{2017 + years}-01-01", "D"))
+    day_numbers = days.astype(np.int64)
+    weekday = (day_numbers + 3) % 7  # 0 is Monday (1970-01-01 was a Thursday)
+    lift = np.array(list(WEEKDAY_LIFT.values()))[weekday]
+    easter = np.array([easter_day(y) for y in range(2017, 2017 + years)])
+    before_easter = ((day_numbers[:, None] >= easter - EASTER_DAYS)
+                     & (day_numbers[:, None] < easter)).any(axis=1)  # fmt: skip
+    lift = lift * (1.0 + EASTER_LIFT * before_easter)
+    months = days.astype("datetime64[M]")
+    month_index = (months - months[0]).astype(np.int64)
+    day_of_year = (days - days.astype("datetime64[Y]")).astype(np.int64)
+    shop_col, month_col, take_col = [], [], []
+    for s in range(shops):
+        level = rng.uniform(800, 3000)
+        growth = rng.normal(0.0001, 0.00005)  # per day, on the log scale
+        season = np.exp(0.25 * np.cos(2 * np.pi * (day_of_year - rng.integers(150, 350)) / 365.25))
+        daily = level * np.exp(growth * np.arange(days.size)) * season * lift
+        daily *= np.exp(rng.normal(0.0, 0.05, days.size))
+        takings = np.bincount(month_index, weights=daily)
+        shop_col += [_name(SHOP_NAMES, s)] * takings.size
+        month_col.append(np.unique(months))
+        take_col.append(np.round(takings, 2))
+    return pa.table(
+        {
+            "shop": pa.array(shop_col),
+            "month": pa.array(np.concatenate(month_col).astype("datetime64[D]")),
+            "takings": pa.array(np.concatenate(take_col)),
+        }
+    )

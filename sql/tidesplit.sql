@@ -109,7 +109,7 @@ CREATE OR REPLACE TEMP MACRO tide_part(parts, period) AS
     list_filter(parts, lambda part: part.period = period)[1].seasonal;
 
 -- The public fields of the split UDF's result (DuckDB calls the UDF once for all of them).
-CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack(trend := parts.trend, seasonal := parts.seasonal, remainder := parts.remainder, adjusted := parts.adjusted, weight := parts.weight, period := parts.period, season_span := parts.season_span, trend_span := parts.trend_span, boxcox_lambda := parts.boxcox_lambda, status := parts.status);
+CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack(trend := parts.trend, seasonal := parts.seasonal, remainder := parts.remainder, adjusted := parts.adjusted, weight := parts.weight, calendar_effect := parts.calendar_effect, adjusted_season_only := parts.adjusted_season_only, period := parts.period, season_span := parts.season_span, trend_span := parts.trend_span, boxcox_lambda := parts.boxcox_lambda, status := parts.status);
 
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, on_error := 'raise') AS
@@ -152,13 +152,15 @@ CREATE OR REPLACE TEMP MACRO tide_split_list(values, period := NULL, season_span
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(choose_spans AS BOOLEAN),
         NULL,
+        NULL,
+        NULL,
         TRY_CAST(on_error AS VARCHAR)))
     END;
 
 -- With fill_gaps the rows are those of the regular grid, input rows picked by their source
 -- and inserted times rebuilt from their codes; without, the input rows as they came.
 -- fill_gaps is a constant, so DuckDB folds the CASE and keeps one branch.
-CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := NULL, fill_gaps := NULL, on_error := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := NULL, calendar_effects := NULL, easter_days := NULL, fill_gaps := NULL, on_error := NULL) AS TABLE
 SELECT unnest(__key),
        unnest(CASE WHEN coalesce(fill_gaps, false)
                    THEN __tide_grid_time_rows(__parts.source, __parts.time_codes, __time_rows)
@@ -171,6 +173,8 @@ SELECT unnest(__key),
        unnest(__parts.remainder) AS remainder,
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
+       unnest(__parts.calendar_effect) AS calendar_effect,
+       unnest(__parts.adjusted_season_only) AS adjusted_season_only,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
        __parts.periods AS __periods,
@@ -202,6 +206,8 @@ FROM (SELECT __key, __time_rows, __value_rows,
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(choose_spans AS BOOLEAN),
+        TRY_CAST(calendar_effects AS VARCHAR),
+        TRY_CAST(easter_days AS DOUBLE),
         TRY_CAST(fill_gaps AS BOOLEAN),
         TRY_CAST(on_error AS VARCHAR)) AS __parts
       FROM __tide_grouped(tbl, keys, time, value),
@@ -211,10 +217,10 @@ FROM (SELECT __key, __time_rows, __value_rows,
 -- One key column by name, or a list of them (exact names, not patterns). Arguments
 -- after the value column are taken by name only: by_name_only catches a stray
 -- positional one.
-CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, fill_gaps := false, on_error := 'raise') AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, calendar_effects := 'none', easter_days := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods)
      RENAME (__period AS period, __season_span AS season_span, __trend_span AS trend_span)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'season_span', 'trend_span', 'boxcox_lambda', 'status'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', 'adjusted_season_only', 'inserted', 'period', 'season_span', 'trend_span', 'boxcox_lambda', 'status'],
          [__tide_check_number('period', period),
              __tide_check_number('season_span', season_span),
              __tide_check_number('trend_span', trend_span),
@@ -231,12 +237,14 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('choose_spans', choose_spans),
+             __tide_check_text('calendar_effects', calendar_effects),
+             __tide_check_number('easter_days', easter_days),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, fill_gaps := fill_gaps, on_error := on_error)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, fill_gaps := false, on_error := 'raise') AS TABLE
+         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, calendar_effects := calendar_effects, easter_days := easter_days, fill_gaps := fill_gaps, on_error := on_error)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, season_span := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, calendar_effects := 'none', easter_days := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__seasonal_by_period, __periods)
      RENAME (__period AS period, __season_span AS season_span, __trend_span AS trend_span)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'period', 'season_span', 'trend_span', 'boxcox_lambda', 'status'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', 'adjusted_season_only', 'inserted', 'period', 'season_span', 'trend_span', 'boxcox_lambda', 'status'],
          [__tide_check_number('period', period),
              __tide_check_number('season_span', season_span),
              __tide_check_number('trend_span', trend_span),
@@ -253,13 +261,15 @@ CREATE OR REPLACE TEMP MACRO tide_split(tbl, key VARCHAR, time VARCHAR, value VA
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('choose_spans', choose_spans),
+             __tide_check_text('calendar_effects', calendar_effects),
+             __tide_check_number('easter_days', easter_days),
              __tide_check_flag('fill_gaps', fill_gaps), __tide_check_text('on_error', on_error)],
-         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, fill_gaps := fill_gaps, on_error := on_error));
+         period := __tide_by_name(by_name_only, period), season_span := season_span, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, calendar_effects := calendar_effects, easter_days := easter_days, fill_gaps := fill_gaps, on_error := on_error));
 
 -- Several seasonal periods (MSTL); periods := NULL takes those the time step implies.
 CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period, __season_span, __trend_span) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
+     FROM __tide_split_keys(tbl, [key], time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', 'adjusted_season_only', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -281,7 +291,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
          periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error)),
     (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, fill_gaps := false, on_error := 'raise') AS TABLE
     (SELECT * EXCLUDE (__period, __season_span, __trend_span) RENAME (__periods AS periods, __seasonal_by_period AS seasonal_by_period)
-     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
+     FROM __tide_split_keys(tbl, key, time, value, ['trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', 'adjusted_season_only', 'inserted', 'periods', 'seasonal_by_period', 'boxcox_lambda', 'status'],
          [__tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -303,7 +313,7 @@ CREATE OR REPLACE TEMP MACRO tide_split_multi(tbl, key VARCHAR, time VARCHAR, va
          periods := coalesce(__tide_by_name(by_name_only, periods), []), season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, fill_gaps := fill_gaps, on_error := on_error));
 
 -- Per-series answers, one row per key.
-CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := NULL, on_error := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := NULL, calendar_effects := NULL, easter_days := NULL, on_error := NULL) AS TABLE
 SELECT unnest(__key), unnest(__p)
 FROM (SELECT __key,
              __tide_profile_series(CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),
@@ -328,9 +338,11 @@ FROM (SELECT __key,
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
         TRY_CAST(choose_spans AS BOOLEAN),
+        TRY_CAST(calendar_effects AS VARCHAR),
+        TRY_CAST(easter_days AS DOUBLE),
         TRY_CAST(on_error AS VARCHAR)) AS __p
       FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'time_step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'period', 'periods', 'season_span', 'trend_span', 'boxcox_lambda', 'status'])
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['points', 'missing', 'time_step', 'strength_of_trend', 'strength_of_season', 'seasonal_amplitude', 'remainder_sd', 'share_down_weighted', 'remainder_acf1', 'strength_by_period', 'peak_position', 'peak_label', 'trough_position', 'trough_label', 'effects', 'period', 'periods', 'season_span', 'trend_span', 'boxcox_lambda', 'status'])
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -349,13 +361,15 @@ FROM (SELECT __key,
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
              __tide_check_flag('choose_spans', choose_spans),
+             __tide_check_text('calendar_effects', calendar_effects),
+             __tide_check_number('easter_days', easter_days),
              __tide_check_text('on_error', on_error)]) AS __ok) AS __checked
       WHERE __checked.__ok);
 
-CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, on_error := 'raise') AS TABLE
-    (SELECT * FROM __tide_profile_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, on_error := on_error)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, on_error := 'raise') AS TABLE
-    (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, on_error := on_error));
+CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, calendar_effects := 'none', easter_days := NULL, on_error := 'raise') AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, calendar_effects := calendar_effects, easter_days := easter_days, on_error := on_error)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, choose_spans := false, calendar_effects := 'none', easter_days := NULL, on_error := 'raise') AS TABLE
+    (SELECT * FROM __tide_profile_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, choose_spans := choose_spans, calendar_effects := calendar_effects, easter_days := easter_days, on_error := on_error));
 
 -- Points too far out to be noise (all rows with all_rows := true); every row
 -- of a series that could not be split, with its status.

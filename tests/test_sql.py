@@ -12,6 +12,8 @@ from conftest import seasonal_series
 import tidesplit
 
 COMPONENTS = ["trend", "seasonal", "remainder", "adjusted", "weight"]
+# the calendar effects' columns, 0 and adjusted itself without calendar_effects
+EFFECT_COLUMNS = ["calendar_effect", "adjusted_season_only"]
 TAIL = ["inserted", "period", "season_span", "trend_span", "boxcox_lambda", "status"]
 
 
@@ -50,7 +52,7 @@ def test_one_row_per_input_row_with_own_column_names(con, sales):
         "SELECT * FROM tide_split(one_store, 'sku', 'month', 'units', period := 12)"
     ).df()
     # sku must not also pick up sku_name: key names are exact, not patterns
-    assert list(out.columns) == ["sku", "month", "units", *COMPONENTS, *TAIL]
+    assert list(out.columns) == ["sku", "month", "units", *COMPONENTS, *EFFECT_COLUMNS, *TAIL]
     assert len(out) == (sales["store"] == 1).sum()
     assert (out["status"] == "ok").all()
 
@@ -59,7 +61,15 @@ def test_several_keys_and_every_row_back(con, sales):
     out = con.sql(
         "SELECT * FROM tide_split(sales, ['store', 'sku'], 'month', 'units', period := 12)"
     ).df()
-    assert list(out.columns) == ["store", "sku", "month", "units", *COMPONENTS, *TAIL]
+    assert list(out.columns) == [
+        "store",
+        "sku",
+        "month",
+        "units",
+        *COMPONENTS,
+        *EFFECT_COLUMNS,
+        *TAIL,
+    ]
     assert len(out) == len(sales)
     merged = out.merge(sales, on=["store", "sku", "month"], suffixes=("", "_in"))
     assert len(merged) == len(sales)

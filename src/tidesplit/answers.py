@@ -53,6 +53,8 @@ _SPANS = (
     ),
     Column("trend_span", "BIGINT", "the same for the trend span"),
 )
+# The regression effects' coefficients of a series, one entry each.
+EFFECTS_TYPE = "STRUCT(name VARCHAR, coefficient DOUBLE, std_error DOUBLE, t_value DOUBLE)[]"
 SPLIT_COLUMNS = (
     Column("trend", "DOUBLE", _on_scale("the trend")),
     Column("seasonal", "DOUBLE", _on_scale("the seasonal part (with several periods, their sum)")),
@@ -62,12 +64,24 @@ SPLIT_COLUMNS = (
     Column(
         "adjusted",
         "DOUBLE",
-        "the seasonally adjusted series (value without its seasonal part), on the original scale",
+        "the seasonally adjusted series (value without its seasonal part and, with "
+        "`calendar_effects`, without its calendar effect), on the original scale",
     ),
     Column(
         "weight",
         "DOUBLE",
         "the robustness weight of the point (1 without `robust`); NULL where the value is NULL",
+    ),
+    Column(
+        "calendar_effect",
+        "DOUBLE",
+        _on_scale("the calendar effects fitted at the point (`calendar_effects`; 0 without)"),
+    ),
+    Column(
+        "adjusted_season_only",
+        "DOUBLE",
+        "the value without its seasonal part only, on the original scale (`adjusted` keeps "
+        "the calendar effect in it; equal to `adjusted` without `calendar_effects`)",
     ),
     Column(
         "inserted",
@@ -144,6 +158,12 @@ PROFILE_COLUMNS = (
     ),
     Column("trough_position", "BIGINT", "cycle position of the lowest mean seasonal value"),
     Column("trough_label", "VARCHAR", "the same as a name"),
+    Column(
+        "effects",
+        EFFECTS_TYPE,
+        "with `calendar_effects`: each fitted effect's `{name, coefficient, std_error, "
+        "t_value}` (transformed scale; see Calendar effects); NULL without",
+    ),
     _PERIOD,
     Column("periods", "BIGINT[]", "the periods used"),
     *_SPANS,
@@ -200,7 +220,7 @@ def names(columns: tuple[Column, ...]) -> tuple[str, ...]:
 
 SPLIT = names(SPLIT_COLUMNS)
 # the per-point components of a split, on every front
-COMPONENTS = SPLIT[:5]
+COMPONENTS = SPLIT[: SPLIT.index("inserted")]
 SPLIT_MULTI = names(SPLIT_MULTI_COLUMNS)
 PROFILE = names(PROFILE_COLUMNS)
 OUTLIERS = names(OUTLIERS_COLUMNS)

@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from . import answers, arguments, forecast_ahead, series_profile, unusual
+from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import AUDIT, FORECAST, OUTLIERS, PROFILE, SPLIT, SPLIT_LIST, SPLIT_MULTI
 from .batch_split import segment_counts
@@ -40,12 +41,16 @@ class Split:
     seasonal_parts: dict[int, np.ndarray] | None = None  # per period, with several periods
     season_span: int | None = None  # the spans split with (chosen with choose_spans)
     trend_span: int | None = None
+    # no calendar effects without times: zero, and adjusted as it is
+    calendar_effect: np.ndarray | None = None
+    adjusted_season_only: np.ndarray | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """The components as columns of a DataFrame (the input's index, if it had one).
 
         >>> split([1.0, 5, 3, 7] * 4, period=4).to_frame().columns.tolist()
-        ['value', 'trend', 'seasonal', 'remainder', 'adjusted', 'weight']
+        ['value', 'trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', \
+'adjusted_season_only']
         """
         data = {"value": self.observed} | {name: getattr(self, name) for name in COMPONENTS}
         return pd.DataFrame(data, index=self.index)
@@ -118,6 +123,8 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
         index=index,
         season_span=int(result.season_spans[0]) if parts is None else None,
         trend_span=int(result.trend_spans[0]) if parts is None else None,
+        calendar_effect=result.calendar_effect,
+        adjusted_season_only=result.adjusted_season_only,
     )
 
 
@@ -285,6 +292,7 @@ class _Table:
             status=list(self.status),
             on_error=on_error,
             fill_gaps=fill_gaps,
+            effects=effects_front.request(settings),
         )
 
     def key_frame(self, series_of_rows: np.ndarray) -> pd.DataFrame:
@@ -485,6 +493,7 @@ def profile(
     out["peak_label"] = found.peak_label
     out["trough_position"] = np.where(found.trough >= 0, found.trough, np.nan)
     out["trough_label"] = found.trough_label
+    out["effects"] = _effect_lists(result.batch.coefficients, len(out))
     used = result.batch.periods
     out["period"] = np.where(used > 0, used, np.nan)
     several = result.batch.series_periods or [(int(u),) if u > 0 else () for u in used]
@@ -494,6 +503,19 @@ def profile(
     out["boxcox_lambda"] = result.batch.lambdas
     out["status"] = result.status
     return out
+
+
+def _effect_lists(
+    coefficients: list[list[tuple[str, float, float, float]] | None] | None, count: int
+) -> list[list[dict[str, Any]] | None]:
+    """Each series' coefficients as a list of dicts (the SQL front's list of structs)."""
+    if coefficients is None:
+        return [None] * count
+    keys = ("name", "coefficient", "std_error", "t_value")
+    return [
+        None if rows is None else [dict(zip(keys, row, strict=True)) for row in rows]
+        for rows in coefficients
+    ]
 
 
 def outliers(

@@ -31,6 +31,8 @@ _ANSWERS = (PROFILE, OUTLIERS, FORECAST, AUDIT)
 _ONE_PERIOD = (SPLIT, SPLIT_LIST, *_ANSWERS)
 _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
+# the functions that fit regression effects beside the split
+_EFFECTS = (SPLIT, PROFILE)
 
 # What an argument holds: how SQL declares and checks it, how Python checks it.
 WHOLE = "whole number"
@@ -226,6 +228,26 @@ REGISTRY: tuple[Argument, ...] = (
         "criterion of the fit (see Choosing spans); a span given is kept and the other chosen",
         (SPLIT, SPLIT_LIST, PROFILE),
         default=False,
+    ),
+    Argument(
+        "calendar_effects",
+        TEXT,
+        "calendar effects fitted beside the split (see Calendar effects), "
+        "comma-separated: 'weekdays' (trading days: a coefficient per weekday and one for "
+        "the period's length; monthly and quarterly dates), 'easter' (the days before "
+        "Easter), or 'none'",
+        _EFFECTS,
+        default="none",
+        decomposition=False,
+    ),
+    Argument(
+        "easter_days",
+        WHOLE,
+        "how many days before Easter Sunday the Easter effect lasts (with 'easter')",
+        _EFFECTS,
+        default_text="8 (common practice)",
+        decomposition=False,
+        most=30,
     ),
     Argument(
         "fill_gaps",

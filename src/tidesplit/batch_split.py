@@ -11,9 +11,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import effects as effects_front
 from . import memory, span_choice, transform
 from .errors import ParamError, SplitError
-from .kernel import checks, linear
+from .kernel import checks, linear, regression
 from .kernel.layout import (
     COL_ACTIVE,
     COL_INNER,
@@ -51,6 +52,12 @@ class BatchResult:
     # chosen with choose_spans); -1 where the series was not split.
     season_spans: np.ndarray | None = None
     trend_spans: np.ndarray | None = None
+    # Regression effects (``effects``): the calendar effect per point (0 without), the
+    # value without its seasonal part only, and per series its coefficients as
+    # (name, coefficient, standard error, t-value); None where no effects were asked.
+    calendar_effect: np.ndarray | None = None
+    adjusted_season_only: np.ndarray | None = None
+    coefficients: list[list[tuple[str, float, float, float]] | None] | None = None
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -343,6 +350,7 @@ def split_batch(
     status: list[str] | None = None,
     on_error: str = "raise",
     parallel: bool = True,
+    design: effects_front.Design | None = None,
 ) -> BatchResult:
     """Split every series of a flat batch.
 
@@ -362,6 +370,9 @@ def split_batch(
         (NaN components) with the reason in ``status``.
     parallel : spread series over numba's threads; pass False when the caller brings
         its own threads (a database running UDF calls in parallel).
+    design : regression columns on the same layout (``effects.build``), fitted beside the
+        split by backfitting (``kernel.regression.backfit``); None fits none, and the path
+        is the plain split's.
 
     Returns
     -------
@@ -401,16 +412,29 @@ def split_batch(
         span_choice.choose(
             y, offsets, plan.settings[:, 0], plan.choose, plan.fixed, _run_kernel, parallel
         )
-    trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
+    fitted = None
+    if design is not None:
+        if plan.multi:
+            raise ParamError("regression effects go with one seasonal period, not several")
+        trend, seasonal, weight, fitted = _run_effects(y, offsets, plan, design, parallel)
+        parts = None
+    else:
+        trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
     if _check_output(values, offsets, trend, seasonal, plan.settings, status, describe_phase).size:
         ok = _settle(status, on_error, label)
         rows = np.repeat(~ok, lengths)
         trend[rows] = seasonal[rows] = weight[rows] = np.nan
         if parts is not None:
             parts[:, rows] = np.nan
-    return _assemble(
+    result = _assemble(
         values, offsets, y, trend, seasonal, weight, parts, plan, ok, back, status, describe_point
     )
+    if fitted is not None:
+        _add_effects(result, y, fitted, design, plan, ok, back, status, describe_point)
+    else:
+        result.calendar_effect = np.where(np.isnan(trend), np.nan, 0.0)
+        result.adjusted_season_only = result.adjusted
+    return result
 
 
 @dataclass
@@ -668,3 +692,137 @@ def _run_multi_kernel(
     unused = (np.arange(width)[:, None] >= np.repeat(n_periods, lengths)[None, :]) & active
     parts[unused] = 0.0
     return trend, parts, weight
+
+
+@dataclass
+class _Fitted:
+    """What backfitting gave beside the components."""
+
+    effect: np.ndarray  # X b per point, every column
+    coef: np.ndarray  # series x columns
+    cov: np.ndarray  # series x columns x columns
+    verdict: np.ndarray  # series x columns (kernel.regression KEPT, ...)
+    settled: np.ndarray  # per series
+    rounds: np.ndarray
+    last_move: np.ndarray  # per series: the last round's largest change / the spread
+
+
+# Backfitting stops when no fitted effect moves by more than this share of the series'
+# spread in a round, or after this many rounds (ours).
+EFFECTS_TOLERANCE = 1e-6
+EFFECTS_ROUNDS = 25
+
+
+def _run_effects(
+    y: np.ndarray, offsets: np.ndarray, plan: _Plan, design: effects_front.Design, parallel: bool
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, _Fitted]:
+    """Trend, seasonal and weights of every active series fitted with the design's columns."""
+    settings = plan.settings[:, 0]
+    lengths = np.diff(offsets)
+    active = settings[:, COL_ACTIVE] == 1
+    seen = segment_counts(~np.isnan(y), offsets)
+    # the degrees of freedom the split takes, per distinct length and settings
+    used = np.zeros(lengths.size)
+    members = np.flatnonzero(active)
+    if members.size:
+        shapes = np.column_stack([lengths[members], settings[members]])
+        distinct, which = np.unique(shapes, axis=0, return_inverse=True)
+        degrees = np.array([regression.split_degrees(int(d[0]), d[1:]) for d in distinct])
+        used[members] = degrees[which.reshape(-1)] * seen[members] / np.maximum(lengths[members], 1)
+    verdict = np.where(design.absent, regression.ABSENT, regression.KEPT).astype(np.int64)
+    X = np.ascontiguousarray(design.X, dtype=np.float64)
+    regression.screen_batch(y, offsets, X, settings[:, COL_PERIOD].copy(), used, verdict)
+    kept = verdict == regression.KEPT
+
+    def split(values: np.ndarray, which: np.ndarray) -> tuple[np.ndarray, ...]:
+        chosen = settings.copy()
+        chosen[~which, COL_ACTIVE] = 0
+        return _run_kernel(values, offsets, chosen, parallel)
+
+    robust = settings[:, COL_OUTER] > 0
+    # start from where backfitting with the plain (linear) split settles, solved directly:
+    # the plain fit then settles in a round or two, and a robust fit starts from it (from
+    # no effect at all, the points the effects move most, a leap-year February, look like
+    # outliers, get no weight, and then cannot tell the effect any more)
+    plain = settings.copy()
+    plain[:, COL_OUTER] = 0
+    missing = np.isnan(y)
+    X_rest = np.empty_like(X)
+    for j in range(X.shape[1]):
+        column = np.where(missing, np.nan, X[:, j])
+        trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
+        X_rest[:, j] = X[:, j] - trend - seasonal
+    trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
+    coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
+    regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
+    start = np.zeros(y.size)
+    regression.effect_of(X, offsets, np.where(np.isfinite(coef), coef, np.nan), active, start)
+    out = regression.backfit(
+        y, offsets, X, kept, active, split, used, robust, start,
+        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
+    )  # fmt: skip
+    fitted = _Fitted(
+        out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"],
+        out["last_move"],
+    )  # fmt: skip
+    return out["trend"], out["seasonal"], out["weight"], fitted
+
+
+def _add_effects(
+    result: BatchResult,
+    y: np.ndarray,
+    fitted: _Fitted,
+    design: effects_front.Design,
+    plan: _Plan,
+    ok: np.ndarray,
+    back: np.ndarray | None,
+    status: list[str],
+    describe_point: Callable[[int, int], str] | None,
+) -> None:
+    """The effects' columns, the remainder without them, adjusted without the calendar
+    effect, the coefficients, and a note for each column dropped."""
+    lengths = np.diff(result.offsets)
+    rows_ok = np.repeat(ok, lengths)
+    width = design.calendar_width
+    calendar_part = np.full(y.size, np.nan)
+    regression.effect_of(
+        np.ascontiguousarray(design.X[:, :width]), result.offsets,
+        np.ascontiguousarray(fitted.coef[:, :width]), ok, calendar_part,
+    )  # fmt: skip
+    result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
+    result.calendar_effect = calendar_part
+    result.adjusted_season_only = result.adjusted.copy()
+    adjusted = y - result.seasonal - calendar_part
+    if back is not None:
+        moved = back & rows_ok
+        adjusted[moved] = transform.inverse(
+            adjusted[moved], np.repeat(plan.lambdas, lengths)[moved]
+        )
+        # a point that the calendar effect takes out of the transform's reach (see
+        # _note_unreachable); those without a seasonal part alone were noted already
+        fresh = np.isnan(adjusted) & ~np.isnan(result.adjusted_season_only)
+        if fresh.any():
+            probe = np.where(fresh, np.nan, 0.0)
+            _note_unreachable(y, result.offsets, probe, plan.lambdas, moved, status, describe_point)
+    result.adjusted = adjusted
+    tables = effects_front.coefficient_tables(design.names, fitted.coef, fitted.cov)
+    result.coefficients = [table if good else None for table, good in zip(tables, ok, strict=True)]
+    noted = (
+        (fitted.verdict > regression.ABSENT).any(axis=1)
+        | ~fitted.settled
+        | np.array([bool(n) for n in design.notes], dtype=bool)
+    )
+    for s in np.flatnonzero(ok & noted):
+        notes = [design.notes[s]] if design.notes[s] else []
+        for j, name in enumerate(design.names):
+            reason = effects_front.VERDICT_WORDS.get(int(fitted.verdict[s, j]))
+            if reason:
+                notes.append(f"{name} dropped: {reason}")
+        if not fitted.settled[s]:
+            notes.append(
+                f"the effects did not settle in {EFFECTS_ROUNDS} rounds (the last moved by "
+                f"{fitted.last_move[s]:.1e} of the values' standard deviation); the last "
+                "round's are shown"
+            )
+        for note in notes:
+            status[s] = with_note(status[s], note)

@@ -28,6 +28,7 @@ from . import (
     sql_build,
     unusual,
 )
+from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import SQL_TYPES
 from .batch_split import segment_counts
@@ -59,8 +60,9 @@ PART_ARROW_TYPE = pa.list_(
     pa.list_(pa.struct([("period", pa.int64()), ("seasonal", pa.float64())]))
 )
 RESULT_TYPE = (
-    "STRUCT(trend DOUBLE[], seasonal DOUBLE[], remainder DOUBLE[], adjusted DOUBLE[], "
-    f"weight DOUBLE[], seasonal_by_period {PART_TYPE}[], inserted BOOLEAN[], "
+    "STRUCT("
+    + "".join(f"{part} DOUBLE[], " for part in COMPONENTS)
+    + f"seasonal_by_period {PART_TYPE}[], inserted BOOLEAN[], "
     "time_codes BIGINT[], source BIGINT[], period BIGINT, periods BIGINT[], "
     "season_span BIGINT, trend_span BIGINT, boxcox_lambda DOUBLE, status VARCHAR)"
 )
@@ -155,6 +157,7 @@ class _Call:
             on_error=self.on_error,
             parallel=self.values.size >= PARALLEL_POINTS,
             fill_gaps=fill,
+            effects=effects_front.request(self.settings),
         )
         if self.order is None:
             return result
@@ -319,6 +322,32 @@ def _span_fields(result: RowsResult) -> dict[str, pa.Array]:
     }
 
 
+_EFFECT_TYPE = pa.list_(
+    pa.struct(
+        [
+            ("name", pa.string()),
+            ("coefficient", pa.float64()),
+            ("std_error", pa.float64()),
+            ("t_value", pa.float64()),
+        ]
+    )
+)
+
+
+def _effect_lists(
+    coefficients: list[list[tuple[str, float, float, float]] | None] | None, count: int
+) -> pa.Array:
+    """Each series' coefficients as a list of structs (NULL without effects)."""
+    if coefficients is None:
+        return pa.nulls(count, _EFFECT_TYPE)
+    keys = ("name", "coefficient", "std_error", "t_value")
+    rows = [
+        None if found is None else [dict(zip(keys, row, strict=True)) for row in found]
+        for found in coefficients
+    ]
+    return pa.array(rows, _EFFECT_TYPE, from_pandas=True)
+
+
 def _profile_handler(call: _Call) -> pa.Array:
     result = call.split(fill_gaps=True)
     found = series_profile.profile(result, call.kind)
@@ -340,6 +369,7 @@ def _profile_handler(call: _Call) -> pa.Array:
     fields["peak_label"] = pa.array(found.peak_label, pa.string())
     fields["trough_position"] = pa.array(found.trough, pa.int64(), mask=found.trough < 0)
     fields["trough_label"] = pa.array(found.trough_label, pa.string())
+    fields["effects"] = _effect_lists(result.batch.coefficients, len(found.points))
     series = _series_fields(result)
     fields["period"], fields["periods"] = series.pop("period"), series.pop("periods")
     fields.update(_span_fields(result))

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import calendar, memory
+from . import effects as effects_front
 from .answers import COMPONENTS
 from .batch_split import BatchResult, split_batch
 from .params import SplitParams
@@ -30,6 +31,8 @@ class RowsResult:
     remainder: np.ndarray
     adjusted: np.ndarray
     weight: np.ndarray
+    calendar_effect: np.ndarray
+    adjusted_season_only: np.ndarray
     seasonal_parts: np.ndarray | None  # periods x output rows, with several periods
     inserted: np.ndarray  # per output row: a time inserted into a gap
     source: np.ndarray | None  # per output row: its input row, -1 if inserted (fill_gaps)
@@ -100,6 +103,7 @@ def split_rows(
     on_error: str = "raise",
     parallel: bool = True,
     fill_gaps: bool = False,
+    effects: effects_front.Request | None = None,
 ) -> RowsResult:
     """Split series given as rows sorted by time (``codes``), gaps and calendars included.
 
@@ -132,6 +136,9 @@ def split_rows(
             grid_values = memory.full(grid.offsets[-1], np.nan)
             grid_values[positions] = values
     sets, groups = _choose_periods(params, grid_values, grid, kind, status)
+    design = None
+    if effects is not None and effects.any:
+        design = effects_front.build(effects, grid, grid_offsets, kind)
     batch = split_batch(
         grid_values,
         grid_offsets,
@@ -143,6 +150,7 @@ def split_rows(
         status=status,
         on_error=on_error,
         parallel=parallel,
+        design=design,
     )
     parts = batch.seasonal_parts
     if fill_gaps and positions is not None:

@@ -1,0 +1,283 @@
+"""Regression effects asked of a split: which columns, built from each series' times.
+
+Calendar columns come from the regular grid of each series (``calendar.Grid``): the days
+each grid point covers give weekday counts, the period's length and the share of the days
+before Easter. Every calendar column is centred on its mean at the same place in the year
+over the 400-year Gregorian cycle (years 2000 to 2399): what is left varies from year to
+year only, so the seasonal part keeps the average calendar and the effect holds the
+departures from it (the long-run mean is taken away for the same reason by Bell & Hillmer
+1983). The numbers are computed in ``kernel.regression``.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from . import calendar
+from .errors import ParamError
+from .kernel import regression
+
+WEEKDAYS = "weekdays"
+EASTER = "easter"
+CALENDAR_WORDS = (WEEKDAYS, EASTER)
+# The weekday contrasts' names (Sunday's coefficient is derived: minus the sum of these).
+_CONTRASTS = tuple(f"weekday_{d}" for d in regression.WEEKDAYS[:6])
+LENGTH = "period_length"
+# where the long-run means are taken: one whole Gregorian cycle of 400 years
+_CYCLE_START = 2000
+_CYCLE_YEARS = 400
+
+
+def parse_calendar(text: str | None) -> tuple[str, ...]:
+    """The calendar effects named in ``calendar_effects`` (comma-separated), in our order.
+
+    >>> parse_calendar("easter, weekdays"), parse_calendar("none")
+    (('weekdays', 'easter'), ())
+    >>> parse_calendar("weekday")
+    Traceback (most recent call last):
+    ...
+    tidesplit.errors.ParamError: calendar_effects takes 'none' or any of weekdays, easter \
+(comma-separated); got 'weekday'
+    """
+    words = [w.strip().lower() for w in (text or "none").split(",") if w.strip()]
+    if words in ([], ["none"]):
+        return ()
+    wrong = [w for w in words if w not in CALENDAR_WORDS]
+    if wrong:
+        raise ParamError(
+            f"calendar_effects takes 'none' or any of {', '.join(CALENDAR_WORDS)} "
+            f"(comma-separated); got {wrong[0]!r}"
+        )
+    return tuple(w for w in CALENDAR_WORDS if w in words)
+
+
+@dataclass(frozen=True)
+class Request:
+    """The effects one call asks for."""
+
+    calendar: tuple[str, ...] = ()
+    easter_days: int = 8
+
+    @property
+    def any(self) -> bool:
+        return bool(self.calendar)
+
+    def names(self) -> tuple[str, ...]:
+        """The design's columns, in order."""
+        out: list[str] = []
+        if WEEKDAYS in self.calendar:
+            out += [*_CONTRASTS, LENGTH]
+        if EASTER in self.calendar:
+            out.append(EASTER)
+        return tuple(out)
+
+    def calendar_width(self) -> int:
+        return len(self.names())
+
+
+def request(settings: dict[str, Any]) -> Request | None:
+    """The effects asked for in a function's settings (``arguments.accept``), or None.
+
+    >>> request({"calendar_effects": "weekdays", "easter_days": 8}).names()[-1]
+    'period_length'
+    >>> request({"calendar_effects": "none"}) is None
+    True
+    """
+    chosen = parse_calendar(settings.get("calendar_effects"))
+    days = settings.get("easter_days")
+    days = 8 if days is None else int(days)
+    if days < 1:
+        raise ParamError(f"easter_days must be at least 1, got {days}")
+    if EASTER not in chosen and settings.get("easter_days") not in (None, 8):
+        raise ParamError("easter_days goes with calendar_effects including 'easter'")
+    found = Request(calendar=chosen, easter_days=days)
+    return found if found.any else None
+
+
+@functools.lru_cache(maxsize=4096)
+def easter_day(year: int) -> int:
+    """Easter Sunday (Western, Gregorian) of ``year`` in days since 1970-01-01, from
+    python-dateutil.
+
+    >>> str(np.datetime64(easter_day(2024), "D"))
+    '2024-03-31'
+    """
+    from dateutil.easter import EASTER_WESTERN, easter
+
+    return int(np.datetime64(easter(year, EASTER_WESTERN), "D").astype(np.int64))
+
+
+def _easter_days(first_year: int, last_year: int) -> np.ndarray:
+    return np.array([easter_day(y) for y in range(first_year, last_year + 1)], dtype=np.int64)
+
+
+def period_days(month_index: np.ndarray, step: int, ends: bool) -> tuple[np.ndarray, np.ndarray]:
+    """First and last day (days since 1970-01-01) of the periods of ``step`` months named by
+    their month index (months since 1970-01): the months from it on, or, for times stamped at
+    month ends (``ends``), the months up to it.
+
+    >>> first, last = period_days(np.array([600]), 3, ends=True)  # 2020-01, quarter ending
+    >>> str(np.datetime64(int(first[0]), "D")), str(np.datetime64(int(last[0]), "D"))
+    ('2019-11-01', '2020-01-31')
+    """
+    start = month_index - (step - 1 if ends else 0)
+    first = start.astype("datetime64[M]").astype("datetime64[D]").astype(np.int64)
+    last = (start + step).astype("datetime64[M]").astype("datetime64[D]").astype(np.int64) - 1
+    return first, last
+
+
+def _raw_columns(request: Request, first: np.ndarray, last: np.ndarray) -> np.ndarray:
+    """Calendar columns before centring."""
+    parts = []
+    if WEEKDAYS in request.calendar:
+        parts.append(regression.trading_day_columns(first, last))
+    if EASTER in request.calendar:
+        years = first.astype("datetime64[D]").astype("datetime64[Y]").astype(np.int64) + 1970
+        lo = int(years.min()) if years.size else 1970
+        hi = int(years.max()) + 1 if years.size else 1970
+        shares = regression.easter_shares(first, last, _easter_days(lo, hi), request.easter_days)
+        parts.append(shares[:, None])
+    return np.hstack(parts) if parts else np.empty((first.size, 0))
+
+
+@functools.lru_cache(maxsize=256)
+def _long_run_means(request: Request, step: int, ends: bool) -> np.ndarray:
+    """Each calendar column's mean at each of the 12 places in the year (by the month that
+    names the period), over the 400-year Gregorian cycle."""
+    months = np.arange(_CYCLE_YEARS * 12) + (_CYCLE_START - 1970) * 12
+    first, last = period_days(months, step, ends)
+    raw = _raw_columns(request, first, last)
+    return raw.reshape(_CYCLE_YEARS, 12, raw.shape[1]).mean(axis=0)
+
+
+def calendar_columns(
+    request: Request, month_index: np.ndarray, step: int, ends: bool
+) -> np.ndarray:
+    """The centred calendar columns of the periods named by ``month_index``.
+
+    >>> one = Request(calendar=("weekdays",))
+    >>> cols = calendar_columns(one, np.arange(600, 600 + 4800), 1, False)
+    >>> bool(np.abs(cols.reshape(400, 12, 7).mean(axis=0)).max() < 1e-9)
+    True
+    """
+    # a fleet's series share their months: each distinct month once
+    months, back = np.unique(month_index, return_inverse=True)
+    raw = _raw_columns(request, *period_days(months, step, ends))
+    centred = raw - _long_run_means(request, step, ends)[months % 12]
+    return centred[back.reshape(-1)]
+
+
+@dataclass
+class Design:
+    """The regression design of a batch on its grid, and what the front says about it."""
+
+    X: np.ndarray  # points x columns
+    names: tuple[str, ...]
+    calendar_width: int  # the first columns are calendar ones (today, all of them)
+    absent: np.ndarray  # series x columns: the column does not apply
+    notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
+
+
+def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kind: str) -> Design:
+    """The design of every series on its grid (``offsets`` are the grid's)."""
+    names = request.names()
+    width = request.calendar_width()
+    count = offsets.size - 1
+    lengths = np.diff(offsets)
+    X = np.zeros((int(offsets[-1]), len(names)))
+    absent = np.zeros((count, len(names)), dtype=bool)
+    notes = [""] * count
+    if width == 0:
+        return Design(X, names, width, absent, notes)
+    if grid is not None and kind != "integer":
+        monthly = (grid.unit == calendar.UNIT_MONTH) & np.isin(grid.step, (1, 3))
+    else:
+        monthly = np.zeros(count, dtype=bool)
+    for s in np.flatnonzero(~monthly):
+        absent[s, :width] = True
+        step = (
+            "integer times"
+            if grid is None or kind == "integer"
+            else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
+        )
+        notes[s] = (
+            f"no calendar effects: they need monthly or quarterly dates, the series has {step}"
+        )
+    # one pass per kind of calendar (step, stamped at month ends or not), every point of
+    # its series at once
+    series_of = np.repeat(np.arange(count), lengths)
+    position = np.arange(int(offsets[-1])) - np.repeat(offsets[:-1], lengths)
+    for step_months in (1, 3):
+        for ends in (False, True):
+            chosen = monthly & (grid.step == step_months) & ((grid.anchor == -1) == ends)
+            if not chosen.any():
+                continue
+            rows = chosen[series_of]
+            months = grid.first[series_of[rows]] + step_months * position[rows]
+            X[rows, :width] = calendar_columns(request, months, step_months, ends)
+    return Design(X, names, width, absent, notes)
+
+
+def coefficient_rows(
+    names: tuple[str, ...], coef: np.ndarray, cov: np.ndarray
+) -> list[tuple[str, float, float, float]]:
+    """One series' coefficients as (name, coefficient, standard error, t-value), fitted
+    columns only; with all six weekday contrasts, Sunday's too (minus their sum, its
+    variance that of the sum).
+
+    >>> names = ("a", "b")
+    >>> coefficient_rows(names, np.array([2.0, np.nan]), np.diag([0.25, np.nan]))
+    [('a', 2.0, 0.5, 4.0)]
+    """
+    return coefficient_tables(names, coef[None, :], cov[None, :, :])[0]
+
+
+def coefficient_tables(
+    names: tuple[str, ...], coef: np.ndarray, cov: np.ndarray
+) -> list[list[tuple[str, float, float, float]]]:
+    """``coefficient_rows`` of every series (``coef``: series x columns, ``cov``: series
+    x columns x columns), computed for all series at once."""
+    count, k = coef.shape
+    variance = np.diagonal(cov, axis1=1, axis2=2)
+    shown = list(names)
+    values = [coef[:, j] for j in range(k)]
+    variances = [variance[:, j] for j in range(k)]
+    order = list(range(k))
+    if all(c in names for c in _CONTRASTS):
+        index = [names.index(c) for c in _CONTRASTS]
+        values.append(-coef[:, index].sum(axis=1))
+        variances.append(cov[:, index][:, :, index].sum(axis=(1, 2)))
+        shown.append("weekday_sunday")
+        # Sunday right after Saturday
+        order.insert(order.index(index[-1]) + 1, k)
+    table = np.column_stack([values[j] for j in order]) if order else np.empty((count, 0))
+    var = np.column_stack([variances[j] for j in order]) if order else np.empty((count, 0))
+    labels = [shown[j] for j in order]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        error = np.sqrt(np.where(var >= 0, var, np.nan))
+        t = np.where(error > 0, table / error, np.nan)
+    fitted = ~np.isnan(table)
+    rows_out = []
+    for c_row, e_row, t_row, f_row in zip(
+        table.tolist(), error.tolist(), t.tolist(), fitted.tolist(), strict=True
+    ):
+        found = [(labels[j], c_row[j], e_row[j], t_row[j]) for j in range(len(labels)) if f_row[j]]
+        rows_out.append(found)
+    return rows_out
+
+
+def _row(name: str, value: float, variance: float) -> tuple[str, float, float, float]:
+    error = float(np.sqrt(variance)) if variance >= 0 else float("nan")
+    t = float(value / error) if error > 0 else float("nan")
+    return (name, float(value), error, t)
+
+
+VERDICT_WORDS = {
+    regression.NO_VARIATION: "it does not vary beyond the seasonal pattern",
+    regression.COLLINEAR: "it is a combination of the effects before it",
+    regression.TOO_FEW: "too few observed points for one more coefficient",
+}
