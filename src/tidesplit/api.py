@@ -407,7 +407,7 @@ def split_table(
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 14)
+    (16, 16)
     """
     multi = given.get("periods") is not None
     settings = _settings(SPLIT_MULTI if multi else SPLIT, period, given)
