@@ -531,7 +531,7 @@ def outliers(
 
     ``rule='stepwise'`` (default) tests the most extreme remainders one after another
     (Rosner's 1983 generalized extreme Studentized deviate procedure) at ``significance``
-    (default 0.05, the chance of any flag on a series of pure noise); ``rule='mad'``
+    (default 0.0005, per point: the share of pure noise's points flagged); ``rule='mad'``
     flags robust z-scores beyond ``threshold`` (default 3.5). See
     ``unusual.unusual_points``.
 
