@@ -429,9 +429,10 @@ def test_arguments_checked():
     frame = frame[["key", "month", "value"]]
     with pytest.raises(ParamError, match="calendar_effects takes 'none' or any of"):
         api.split_table(frame, "key", "month", "value", calendar_effects="holidays")
-    with pytest.raises(ParamError, match="easter_days goes with"):
-        api.split_table(frame, "key", "month", "value", calendar_effects="weekdays",
-                        easter_days=5)  # fmt: skip
+    for days in (5, 8):  # the default too: given without an Easter effect, it is refused
+        with pytest.raises(ParamError, match="easter_days goes with"):
+            api.split_table(frame, "key", "month", "value", calendar_effects="weekdays",
+                            easter_days=days)  # fmt: skip
     with pytest.raises(ParamError, match="easter_days must be at most 30"):
         api.split_table(frame, "key", "month", "value", calendar_effects="easter",
                         easter_days=40)  # fmt: skip

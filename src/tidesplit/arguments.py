@@ -17,6 +17,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from .errors import ParamError
+from .tuning import DEFAULT_MAD_THRESHOLD, DEFAULT_SIGNIFICANCE, EASTER_WINDOW_DAYS
 
 # The functions, by the name of their SQL macro without the ``tide_`` prefix.
 SPLIT = "split"
@@ -245,7 +246,7 @@ REGISTRY: tuple[Argument, ...] = (
         WHOLE,
         "how many days before Easter Sunday the Easter effect lasts (with 'easter')",
         _EFFECTS,
-        default_text="8 (common practice)",
+        default_text=f"{EASTER_WINDOW_DAYS} (common practice)",
         decomposition=False,
         most=30,
     ),
@@ -281,7 +282,7 @@ REGISTRY: tuple[Argument, ...] = (
         NUMBER,
         "the stepwise test's significance, per point: the share of pure noise's points flagged",
         (OUTLIERS,),
-        default_text="0.0005 (with 'stepwise')",
+        default_text=f"{DEFAULT_SIGNIFICANCE:g} (with 'stepwise')",
         decomposition=False,
     ),
     Argument(
@@ -289,7 +290,7 @@ REGISTRY: tuple[Argument, ...] = (
         NUMBER,
         "the robust z-score beyond which 'mad' flags",
         (OUTLIERS,),
-        default_text="3.5 (with 'mad')",
+        default_text=f"{DEFAULT_MAD_THRESHOLD:g} (with 'mad')",
         decomposition=False,
     ),
     Argument(

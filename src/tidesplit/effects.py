@@ -20,6 +20,7 @@ import numpy as np
 from . import calendar
 from .errors import ParamError
 from .kernel import regression
+from .tuning import EASTER_WINDOW_DAYS
 
 WEEKDAYS = "weekdays"
 EASTER = "easter"
@@ -60,7 +61,7 @@ class Request:
     """The effects one call asks for."""
 
     calendar: tuple[str, ...] = ()
-    easter_days: int = 8
+    easter_days: int = EASTER_WINDOW_DAYS
 
     @property
     def any(self) -> bool:
@@ -82,17 +83,20 @@ class Request:
 def request(settings: dict[str, Any]) -> Request | None:
     """The effects asked for in a function's settings (``arguments.accept``), or None.
 
-    >>> request({"calendar_effects": "weekdays", "easter_days": 8}).names()[-1]
+    >>> request({"calendar_effects": "weekdays", "easter_days": None}).names()[-1]
     'period_length'
+    >>> request({"calendar_effects": "weekdays, easter", "easter_days": 8}).easter_days
+    8
     >>> request({"calendar_effects": "none"}) is None
     True
     """
     chosen = parse_calendar(settings.get("calendar_effects"))
-    days = settings.get("easter_days")
-    days = 8 if days is None else int(days)
+    given = settings.get("easter_days")
+    days = EASTER_WINDOW_DAYS if given is None else int(given)
     if days < 1:
         raise ParamError(f"easter_days must be at least 1, got {days}")
-    if EASTER not in chosen and settings.get("easter_days") not in (None, 8):
+    if EASTER not in chosen and given is not None:
+        # given without an Easter effect it would change nothing: refused, not ignored
         raise ParamError("easter_days goes with calendar_effects including 'easter'")
     found = Request(calendar=chosen, easter_days=days)
     return found if found.any else None

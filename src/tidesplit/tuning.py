@@ -71,3 +71,7 @@ DEFAULT_MAD_THRESHOLD = 3.5  # robust z-score; Iglewicz & Hoaglin (1993) suggest
 # Earlier ends each series is forecast from, a cycle apart, to choose a method and
 # to check its intervals on the series' own past.
 ROLLING_ORIGINS = 24
+
+# The Easter effect's window: the days before Easter Sunday whose share falls in each period
+# (common practice in seasonal adjustment: about a week).
+EASTER_WINDOW_DAYS = 8
