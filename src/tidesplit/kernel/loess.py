@@ -71,6 +71,21 @@ def fit_at(
                 second += wj * u * u
                 value += wj * y[j]
                 cross += wj * y[j] * u
+    return _finish(total, first, second, value, cross, h, degree, full_range)
+
+
+@njit(nogil=True, cache=True)
+def _finish(
+    total: float,
+    first: float,
+    second: float,
+    value: float,
+    cross: float,
+    h: float,
+    degree: int,
+    full_range: float,
+) -> tuple[float, bool]:
+    """The fitted value from a fit's weighted moments (see ``fit_at``)."""
     if total <= 0.0:
         return 0.0, False
     mean_y = value / total
@@ -82,6 +97,87 @@ def fit_at(
             slope = (cross / total - centre * mean_y) / spread
             return mean_y - slope * centre, True
     return mean_y, True
+
+
+@njit(nogil=True, cache=True)
+def _fit_four(
+    y: np.ndarray,
+    pw: np.ndarray,
+    n: int,
+    span: int,
+    degree: int,
+    i: int,
+    step: int,
+    ys: np.ndarray,
+) -> None:
+    """``fit_at`` at the four interior positions ``i, i + step, i + 2 step, i + 3 step``.
+
+    Interior fits (a full window of ``span`` points centred on the position) share their
+    shape: the same distances, bandwidth and tricube weights. Computing those once for four
+    fits, and running the four fits' sums side by side, gives each fit exactly the
+    operations of ``fit_at`` in the same order (so the same bits), while the four chains of
+    additions overlap in the processor instead of waiting on each other.
+    """
+    half = (span + 1) // 2
+    full_range = n - 1.0
+    # fit_at's bandwidth: max(xs - nleft, nright - xs), both (span - 1) / 2 in the interior
+    h = float(max(half - 1, span - half))
+    h_far = FAR * h
+    h_near = NEAR * h
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    j0 = i + 1 - half
+    j1 = j0 + step
+    j2 = j1 + step
+    j3 = j2 + step
+    t0 = f0 = s0 = v0 = c0 = 0.0
+    t1 = f1 = s1 = v1 = c1 = 0.0
+    t2 = f2 = s2 = v2 = c2 = 0.0
+    t3 = f3 = s3 = v3 = c3 = 0.0
+    for t in range(span):
+        u = float(t - (half - 1))  # j - xs, a whole number, so exact either way
+        r = abs(u)
+        if r > h_far:
+            continue
+        near = r <= h_near
+        q = r * inv_h
+        q = 1.0 - q * q * q
+        c = q * q * q
+        w = pw[j0 + t] if near else c * pw[j0 + t]
+        if w != 0.0:
+            t0 += w
+            f0 += w * u
+            s0 += w * u * u
+            v0 += w * y[j0 + t]
+            c0 += w * y[j0 + t] * u
+        w = pw[j1 + t] if near else c * pw[j1 + t]
+        if w != 0.0:
+            t1 += w
+            f1 += w * u
+            s1 += w * u * u
+            v1 += w * y[j1 + t]
+            c1 += w * y[j1 + t] * u
+        w = pw[j2 + t] if near else c * pw[j2 + t]
+        if w != 0.0:
+            t2 += w
+            f2 += w * u
+            s2 += w * u * u
+            v2 += w * y[j2 + t]
+            c2 += w * y[j2 + t] * u
+        w = pw[j3 + t] if near else c * pw[j3 + t]
+        if w != 0.0:
+            t3 += w
+            f3 += w * u
+            s3 += w * u * u
+            v3 += w * y[j3 + t]
+            c3 += w * y[j3 + t] * u
+    value, ok = _finish(t0, f0, s0, v0, c0, h, degree, full_range)
+    ys[i] = value if ok else y[i]
+    value, ok = _finish(t1, f1, s1, v1, c1, h, degree, full_range)
+    ys[i + step] = value if ok else y[i + step]
+    value, ok = _finish(t2, f2, s2, v2, c2, h, degree, full_range)
+    ys[i + 2 * step] = value if ok else y[i + 2 * step]
+    value, ok = _finish(t3, f3, s3, v3, c3, h, degree, full_range)
+    ys[i + 3 * step] = value if ok else y[i + 3 * step]
 
 
 @njit(nogil=True, cache=True)
@@ -105,6 +201,109 @@ def fill_unfitted(ys: np.ndarray, n: int) -> None:
     if last >= 0:
         for j in range(last + 1, n):
             ys[j] = ys[last]
+
+
+@njit(nogil=True, cache=True)
+def _unit_moments(span: int, table: np.ndarray) -> tuple[float, float, float, int]:
+    """The interior fits' weights when every point weight is 1, and their moments.
+
+    With unit point weights ``fit_at``'s weight of a point is its tricube weight alone, the
+    same for every interior fit, and so are the sums of the weights and of their first and
+    second moments. ``table`` receives, for the points that get a weight (``count`` of
+    them), the offset into the window, the weight and the distance ``u``, in the order of
+    ``fit_at``'s loop; the sums are accumulated in that order, so they are the bits each
+    fit would accumulate itself.
+    """
+    half = (span + 1) // 2
+    h = float(max(half - 1, span - half))
+    h_far = FAR * h
+    h_near = NEAR * h
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    total = 0.0
+    first = 0.0
+    second = 0.0
+    count = 0
+    for t in range(span):
+        u = float(t - (half - 1))
+        r = abs(u)
+        if r > h_far:
+            continue
+        if r <= h_near:
+            w = 1.0  # fit_at takes the point weight itself: 1.0
+        else:
+            q = r * inv_h
+            q = 1.0 - q * q * q
+            w = q * q * q * 1.0
+        total += w
+        first += w * u
+        second += w * u * u
+        table[0, count] = t
+        table[1, count] = w
+        table[2, count] = u
+        count += 1
+    return total, first, second, count
+
+
+@njit(nogil=True, cache=True)
+def _fit_four_unit(
+    y: np.ndarray,
+    n: int,
+    span: int,
+    degree: int,
+    i: int,
+    step: int,
+    ys: np.ndarray,
+    table: np.ndarray,
+    count: int,
+    total: float,
+    first: float,
+    second: float,
+) -> None:
+    """``_fit_four`` when every point weight is 1: only the sums over ``y`` are left to do
+    (the weights' sums come from ``_unit_moments``), the same bits with a third of the work.
+    A weight is never 0 here, so no point is skipped."""
+    half = (span + 1) // 2
+    full_range = n - 1.0
+    h = float(max(half - 1, span - half))
+    j0 = i + 1 - half
+    j1 = j0 + step
+    j2 = j1 + step
+    j3 = j2 + step
+    v0 = c0 = v1 = c1 = v2 = c2 = v3 = c3 = 0.0
+    for k in range(count):
+        t = int(table[0, k])
+        w = table[1, k]
+        u = table[2, k]
+        p = w * y[j0 + t]
+        v0 += p
+        c0 += p * u
+        p = w * y[j1 + t]
+        v1 += p
+        c1 += p * u
+        p = w * y[j2 + t]
+        v2 += p
+        c2 += p * u
+        p = w * y[j3 + t]
+        v3 += p
+        c3 += p * u
+    value, ok = _finish(total, first, second, v0, c0, h, degree, full_range)
+    ys[i] = value if ok else y[i]
+    value, ok = _finish(total, first, second, v1, c1, h, degree, full_range)
+    ys[i + step] = value if ok else y[i + step]
+    value, ok = _finish(total, first, second, v2, c2, h, degree, full_range)
+    ys[i + 2 * step] = value if ok else y[i + 2 * step]
+    value, ok = _finish(total, first, second, v3, c3, h, degree, full_range)
+    ys[i + 3 * step] = value if ok else y[i + 3 * step]
+
+
+@njit(nogil=True, cache=True)
+def _window(i: int, n: int, span: int, half: int) -> tuple[int, int]:
+    """The neighbourhood [nleft, nright] of the fit at ``i`` (``span < n``)."""
+    if i + 1 < half:
+        return 0, span - 1
+    if i + 1 >= n - half + 1:
+        return n - span, n - 1
+    return i + 1 - half, span + i - half
 
 
 @njit(nogil=True, cache=True)
@@ -132,29 +331,36 @@ def smooth(
         for i in range(0, n, step):
             value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
             ys[i] = value if ok else y[i]
-    elif step == 1:
-        half = (span + 1) // 2
-        nright = span - 1
-        for i in range(n):
-            if i >= half and nright != n - 1:
-                nleft += 1
-                nright += 1
-            value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
-            ys[i] = value if ok else y[i]
     else:
+        # Fits at i = 0, step, 2 step, ...; the reference routines' neighbourhoods are
+        # [i + 1 - half, span + i - half], clamped to the series at both ends. Interior fits
+        # (no clamping) go four at a time through _fit_four, the same arithmetic.
         half = (span + 1) // 2
-        for i in range(0, n, step):
-            if i + 1 < half:
-                nleft = 0
-                nright = span - 1
-            elif i + 1 >= n - half + 1:
-                nleft = n - span
-                nright = n - 1
-            else:
-                nleft = i + 1 - half
-                nright = span + i - half
+        interior_last = n - 1 - span + half  # the last position whose window is not clamped
+        unit = True
+        for j in range(n):
+            if pw[j] != 1.0:
+                unit = False
+                break
+        if unit:
+            table = np.empty((3, span))
+            total, first, second, count = _unit_moments(span, table)
+        i = 0
+        while i < n:
+            if i + 1 >= half and i + 3 * step <= interior_last:
+                if unit:
+                    _fit_four_unit(
+                        y, n, span, degree, i, step, ys, table, count, total, first, second
+                    )
+                else:
+                    _fit_four(y, pw, n, span, degree, i, step, ys)
+                i += 4 * step
+                continue
+            nleft, nright = _window(i, n, span, half)
             value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
             ys[i] = value if ok else y[i]
+            i += step
+        nleft, nright = _window(((n - 1) // step) * step, n, span, half)
     if step != 1:
         for i in range(0, n - step, step):
             delta = (ys[i + step] - ys[i]) / step

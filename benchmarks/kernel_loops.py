@@ -1,0 +1,153 @@
+"""The STL kernel's direct loops, timed beside the same loops from an earlier commit.
+
+    python benchmarks/kernel_loops.py                 # against main, default sizes
+    python benchmarks/kernel_loops.py --before HEAD~3 # against another commit
+    python benchmarks/kernel_loops.py --series 2000 --hourly 20
+
+The earlier kernel is read with ``git show`` into a temporary package and compiled there,
+so both run in one process on the same data (``suite.make_batch``'s invented series), one
+thread each (the serial entry points), best of ``--runs`` taken in turn. Every case also
+checks that the two give the same bits for every series: trend, seasonal parts, weights.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import math
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from types import ModuleType
+
+import numpy as np
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from suite import HOURLY, Case, make_batch
+
+FILES = ("__init__.py", "layout.py", "loess.py", "threads.py", "stl.py", "mstl.py")
+
+
+def load_before(ref: str, folder: str) -> tuple[ModuleType, ModuleType]:
+    """The kernel's ``stl`` and ``mstl`` modules as they are at ``ref``."""
+    root = subprocess.run(
+        ["git", "rev-parse", "--show-toplevel"],
+        capture_output=True,
+        text=True,
+        check=True,
+        cwd=os.path.dirname(os.path.abspath(__file__)),
+    ).stdout.strip()
+    package = os.path.join(folder, "kernel_before")
+    os.makedirs(package)
+    for name in FILES:
+        text = subprocess.run(
+            ["git", "show", f"{ref}:src/tidesplit/kernel/{name}"],
+            capture_output=True,
+            text=True,
+            check=True,
+            cwd=root,
+        ).stdout
+        with open(os.path.join(package, name), "w") as f:
+            f.write(text)
+    sys.path.insert(0, folder)
+    return (
+        importlib.import_module("kernel_before.stl"),
+        importlib.import_module("kernel_before.mstl"),
+    )
+
+
+def interleaved(runs: int, first, second) -> tuple[float, float]:  # type: ignore[no-untyped-def]
+    """Best of ``runs`` of each, taken in turn, so that a busy spell weighs on both alike."""
+    best = [math.inf, math.inf]
+    for _ in range(runs):
+        for k, fn in enumerate((first, second)):
+            started = time.perf_counter()
+            fn()
+            best[k] = min(best[k], time.perf_counter() - started)
+    return best[0], best[1]
+
+
+def prepare(case: Case, stl_mod: ModuleType, mstl_mod: ModuleType):  # type: ignore[no-untyped-def]
+    """A call that runs the case through one kernel, and the arrays it fills."""
+    from tidesplit import SplitParams
+
+    values, offsets = make_batch(case)
+    r = SplitParams.from_kwargs(**case.params).resolve()
+    rows = r.settings_rows()
+    count = offsets.size - 1
+    if len(case.periods) == 1:
+        settings = np.tile(rows[0], (count, 1))
+        trend = np.full(values.size, np.nan)
+        seasonal = np.full(values.size, np.nan)
+        weight = np.full(values.size, np.nan)
+
+        def go() -> None:
+            stl_mod.stl_batch_serial(values, offsets, settings, trend, seasonal, weight)
+
+        seasonal_out = seasonal
+    else:
+        settings = np.tile(rows[None, :, :], (count, 1, 1))
+        n_periods = np.full(count, len(case.periods), dtype=np.int64)
+        trend = np.full(values.size, np.nan)
+        seasonal2 = np.full((len(case.periods), values.size), np.nan)
+        weight = np.full(values.size, np.nan)
+
+        def go() -> None:
+            mstl_mod.mstl_batch_serial(
+                values, offsets, settings, n_periods, r.iterations, trend, seasonal2, weight
+            )
+
+        seasonal_out = seasonal2
+    go()  # compile or load
+    return go, (trend, seasonal_out, weight)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--before", default="main", help="commit to compare with")
+    parser.add_argument("--series", type=int, default=10_000, help="monthly series")
+    parser.add_argument("--hourly", type=int, default=100, help="hourly series")
+    parser.add_argument("--runs", type=int, default=3)
+    args = parser.parse_args()
+    from tidesplit.kernel import mstl, stl
+
+    cases = [
+        Case(f"monthly {args.series} robust", args.series, 120, (12,), robust=True),
+        Case(f"monthly {args.series} 5% missing", args.series, 120, (12,), missing=0.05),
+        Case(
+            f"monthly {args.series} robust 5% missing",
+            args.series,
+            120,
+            (12,),
+            robust=True,
+            missing=0.05,
+        ),
+        Case(f"hourly {args.hourly} x 2 periods", args.hourly, 8_760, (24, 168), options=HOURLY),
+        Case(
+            f"hourly {args.hourly} x 2 periods robust",
+            args.hourly,
+            8_760,
+            (24, 168),
+            robust=True,
+            options=HOURLY,
+        ),
+    ]
+    print(f"kernel loops, one thread, best of {args.runs}; before = {args.before}\n")
+    print(f"{'case':<36}{'before s':>10}{'after s':>10}{'speed-up':>10}  same bits")
+    with tempfile.TemporaryDirectory() as folder:
+        old_stl, old_mstl = load_before(args.before, folder)
+        for case in cases:
+            old_go, old = prepare(case, old_stl, old_mstl)
+            new_go, new = prepare(case, stl, mstl)
+            before, after = interleaved(args.runs, old_go, new_go)
+            same = all(
+                np.array_equal(a.view(np.int64), b.view(np.int64))
+                for a, b in zip(old, new, strict=True)
+            )
+            print(f"{case.name:<36}{before:>10.3f}{after:>10.3f}{before / after:>9.2f}x  {same}")
+
+
+if __name__ == "__main__":
+    main()
