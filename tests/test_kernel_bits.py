@@ -1,0 +1,166 @@
+"""The loess smoothing's faster paths give the bits of the plain one.
+
+``smooth`` fits interior points four at a time with shared tricube weights, and with unit
+point weights takes the weights' sums once per smoothing; each fit must still do exactly
+``fit_at``'s arithmetic in ``fit_at``'s order. ``plain_smooth`` below is the smoothing as it
+was before those paths: one ``fit_at`` per fitted point. The two must agree to the bit over
+many lengths, spans, jumps, degrees and weight patterns (unit, missing points, robustness
+weights, all zero), and so must whole splits taken in one batch or one series at a time.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from numba import njit
+
+from tidesplit.kernel.layout import (
+    COL_ACTIVE,
+    COL_INNER,
+    COL_LOWPASS_DEGREE,
+    COL_LOWPASS_JUMP,
+    COL_LOWPASS_SPAN,
+    COL_OUTER,
+    COL_PERIOD,
+    COL_SEASON_DEGREE,
+    COL_SEASON_JUMP,
+    COL_SEASON_SPAN,
+    COL_TREND_DEGREE,
+    COL_TREND_JUMP,
+    COL_TREND_SPAN,
+    N_SETTINGS,
+)
+from tidesplit.kernel.loess import fill_unfitted, fit_at, smooth
+from tidesplit.kernel.stl import stl_batch_serial
+
+
+@njit(cache=False)
+def plain_smooth(y, pw, n, span, degree, jump, ys):
+    if n < 2:
+        ys[0] = y[0]
+        return
+    step = min(jump, n - 1)
+    nleft = 0
+    nright = n - 1
+    half = (span + 1) // 2
+    for i in range(0, n, step):
+        if span < n:
+            if i + 1 < half:
+                nleft = 0
+                nright = span - 1
+            elif i + 1 >= n - half + 1:
+                nleft = n - span
+                nright = n - 1
+            else:
+                nleft = i + 1 - half
+                nright = span + i - half
+        value, ok = fit_at(y, pw, n, span, degree, float(i), nleft, nright)
+        ys[i] = value if ok else y[i]
+    if step != 1:
+        for i in range(0, n - step, step):
+            delta = (ys[i + step] - ys[i]) / step
+            for j in range(i + 1, i + step):
+                ys[j] = ys[i] + delta * (j - i)
+        last_fit = ((n - 1) // step) * step
+        if last_fit != n - 1:
+            value, ok = fit_at(y, pw, n, span, degree, float(n - 1), nleft, nright)
+            ys[n - 1] = value if ok else y[n - 1]
+            if last_fit != n - 2:
+                delta = (ys[n - 1] - ys[last_fit]) / (n - 1 - last_fit)
+                for j in range(last_fit + 1, n - 1):
+                    ys[j] = ys[last_fit] + delta * (j - last_fit)
+    for i in range(n):
+        if math.isnan(ys[i]):
+            fill_unfitted(ys, n)
+            break
+
+
+def weights(kind: str, n: int, rng: np.random.Generator) -> np.ndarray:
+    if kind == "unit":
+        return np.ones(n)
+    if kind == "missing":
+        return (rng.random(n) >= 0.1).astype(float)
+    if kind == "robust":
+        w = rng.uniform(0.0, 1.0, n) ** 2
+        w[rng.random(n) < 0.05] = 0.0
+        w[rng.random(n) < 0.3] = 1.0
+        return w
+    if kind == "long gap":
+        w = np.ones(n)
+        w[n // 3 : n // 3 + max(1, n // 4)] = 0.0
+        return w
+    return np.zeros(n)  # nothing to fit: every point left to the fill
+
+
+def same_bits(a: np.ndarray, b: np.ndarray) -> bool:
+    return np.array_equal(a.view(np.int64), b.view(np.int64))
+
+
+@pytest.mark.parametrize("kind", ["unit", "missing", "robust", "long gap", "zero"])
+def test_smooth_matches_one_fit_at_a_time(kind):
+    rng = np.random.default_rng(7)
+    checked = 0
+    for _ in range(300):
+        n = int(rng.integers(2, 400))
+        span = int(rng.integers(1, 60)) * 2 + 1
+        if rng.random() < 0.2:
+            span = int(rng.integers(3, 80))  # even spans too: the paths must not assume odd
+        jump = int(rng.integers(1, max(2, span // 3)))
+        degree = int(rng.integers(0, 2))
+        pw = weights(kind, n, rng)
+        y = rng.normal(100.0, 20.0, n) + np.arange(n) * rng.normal()
+        y[pw == 0.0] = np.nan  # a missing value always has weight 0
+        fast = np.full(n, -1.0)
+        plain = np.full(n, -1.0)
+        smooth(y, pw, n, span, degree, jump, fast)
+        plain_smooth(y, pw, n, span, degree, jump, plain)
+        assert same_bits(fast, plain), (n, span, jump, degree, kind)
+        checked += 1
+    assert checked == 300
+
+
+def test_split_same_bits_in_a_batch_of_mixed_lengths_as_alone():
+    """Series of several lengths and settings (robust, missing values, jumps) split in one
+    batch give the bits each gives split alone."""
+    rng = np.random.default_rng(3)
+    series = []
+    rows = []
+    for s in range(40):
+        period = int(rng.choice([4, 7, 12, 24]))
+        n = int(rng.integers(2 * period + 1, 12 * period))
+        t = np.arange(n)
+        y = 50 + 0.1 * t + 5 * np.sin(2 * np.pi * t / period) + rng.normal(0, 1, n)
+        if s % 3 == 0:
+            holes = rng.random(n) < 0.08
+            holes[:2] = holes[-2:] = False
+            y[holes] = np.nan
+        season = int(rng.choice([7, 13, 35]))
+        trend = int(rng.choice([15, 21, 45]))
+        robust = s % 2 == 0
+        row = np.zeros(N_SETTINGS, dtype=np.int64)
+        row[COL_PERIOD] = period
+        row[COL_SEASON_SPAN] = season
+        row[COL_TREND_SPAN] = trend
+        row[COL_LOWPASS_SPAN] = period + 1 - period % 2
+        row[COL_SEASON_DEGREE] = row[COL_TREND_DEGREE] = row[COL_LOWPASS_DEGREE] = 1
+        row[COL_SEASON_JUMP] = rng.integers(1, 4)
+        row[COL_TREND_JUMP] = rng.integers(1, 6)
+        row[COL_LOWPASS_JUMP] = rng.integers(1, 4)
+        row[COL_INNER] = 1 if robust else 2
+        row[COL_OUTER] = 6 if robust else 0
+        row[COL_ACTIVE] = 1
+        series.append(y)
+        rows.append(row)
+    values = np.concatenate(series)
+    offsets = np.concatenate([[0], np.cumsum([len(y) for y in series])]).astype(np.int64)
+    settings = np.array(rows)
+    together = [np.empty(values.size) for _ in range(3)]
+    stl_batch_serial(values, offsets, settings, *together)
+    for s, y in enumerate(series):
+        alone = [np.empty(y.size) for _ in range(3)]
+        stl_batch_serial(y, np.array([0, y.size]), settings[s : s + 1], *alone)
+        part = slice(offsets[s], offsets[s + 1])
+        for a, b in zip(together, alone, strict=True):
+            assert same_bits(a[part], b), s
