@@ -12,12 +12,107 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+from llvmlite import ir
+from numba import njit, types
+from numba.core import cgutils
+from numba.extending import intrinsic
 
 # Tricube and bisquare cut-offs of the reference routines: a distance below 0.001 of the
 # bandwidth gets weight 1 exactly, one above 0.999 gets weight 0.
 NEAR = 0.001
 FAR = 0.999
+
+
+# Fits computed side by side (see _four_sums) run in four lanes of the processor's vector
+# registers: numba leaves such code scalar (its superword vectoriser is off by default), so
+# the loop is written out in LLVM's own terms. Each lane does a plain IEEE multiply or add,
+# exactly the scalar operation (no fused multiply-add, no reordering), so the bits are
+# those of fit_at.
+LANES = 4
+
+
+@intrinsic
+def _four_sums(typingctx, y, pw, start, lane_stride, point_stride, count, shift, h_far,
+               h_near, inv_h):  # fmt: skip
+    """The weighted moments of four loess fits that share their shape, as ``fit_at``
+    accumulates them: point ``t`` (``0 <= t < count``) of lane ``k`` is
+    ``y[start + k * lane_stride + t * point_stride]`` at distance ``u = t - shift`` from
+    the fitted position. Returns (total, first, second, value, cross) of lane 0, then of
+    lanes 1, 2 and 3."""
+    result = types.UniTuple(types.float64, 5 * LANES)
+    signature = result(y, pw, start, lane_stride, point_stride, count, shift, h_far, h_near,
+                       inv_h)  # fmt: skip
+
+    def codegen(context, builder, sig, args):
+        ya, pwa, start_v, lane_v, point_v, count_v, shift_v, far_v, near_v, inv_v = args
+        dbl = ir.DoubleType()
+        i64 = ir.IntType(64)
+        vec = ir.VectorType(dbl, LANES)
+        splat_mask = ir.Constant(ir.VectorType(ir.IntType(32), LANES), [0] * LANES)
+        undef = ir.Constant(vec, ir.Undefined)
+        zero = ir.Constant(vec, [0.0] * LANES)
+
+        def splat(x):
+            return builder.shuffle_vector(
+                builder.insert_element(undef, x, ir.Constant(i64, 0)), undef, splat_mask
+            )
+
+        y_ptr = context.make_array(sig.args[0])(context, builder, ya).data
+        pw_ptr = context.make_array(sig.args[1])(context, builder, pwa).data
+        sums = [cgutils.alloca_once_value(builder, zero) for _ in range(5)]
+        firsts = [
+            builder.add(start_v, builder.mul(lane_v, ir.Constant(i64, k))) for k in range(LANES)
+        ]
+        fabs = builder.module.declare_intrinsic("llvm.fabs", [dbl])
+        one = ir.Constant(dbl, 1.0)
+        with cgutils.for_range(builder, count_v) as loop:
+            t = loop.index
+            u = builder.fsub(builder.sitofp(t, dbl), shift_v)
+            r = builder.call(fabs, [u])
+            with builder.if_then(builder.not_(builder.fcmp_ordered(">", r, far_v))):
+                near = builder.fcmp_ordered("<=", r, near_v)
+                q = builder.fmul(r, inv_v)
+                q = builder.fsub(one, builder.fmul(builder.fmul(q, q), q))
+                tricube = builder.fmul(builder.fmul(q, q), q)
+                at = builder.mul(t, point_v)
+                pw_lanes = undef
+                y_lanes = undef
+                for k in range(LANES):
+                    j = builder.add(firsts[k], at)
+                    lane = ir.Constant(i64, k)
+                    pw_lanes = builder.insert_element(
+                        pw_lanes, builder.load(builder.gep(pw_ptr, [j])), lane
+                    )
+                    y_lanes = builder.insert_element(
+                        y_lanes, builder.load(builder.gep(y_ptr, [j])), lane
+                    )
+                u_lanes = splat(u)
+                # fit_at: the point weight alone when near, else tricube times it
+                w = builder.select(near, pw_lanes, builder.fmul(splat(tricube), pw_lanes))
+                # fit_at skips a point of weight 0. Its weight and moment terms are zeros
+                # (x + 0 = x for these sums, which start at +0 and so are never -0); the
+                # terms with y are replaced by 0, as a missing y (NaN) must not count.
+                taken = builder.fcmp_unordered("!=", w, zero)
+                wu = builder.fmul(w, u_lanes)
+                wy = builder.fmul(w, y_lanes)
+                terms = (
+                    w,
+                    wu,
+                    builder.fmul(wu, u_lanes),
+                    builder.select(taken, wy, zero),
+                    builder.select(taken, builder.fmul(wy, u_lanes), zero),
+                )
+                for total, term in zip(sums, terms, strict=True):
+                    builder.store(builder.fadd(builder.load(total), term), total)
+        out = cgutils.get_null_value(context.get_value_type(result))
+        final = [builder.load(total) for total in sums]
+        for k in range(LANES):
+            for m in range(5):
+                part = builder.extract_element(final[m], ir.Constant(i64, k))
+                out = builder.insert_value(out, part, 5 * k + m)
+        return out
+
+    return signature, codegen
 
 
 @njit(nogil=True, cache=True)
@@ -113,71 +208,23 @@ def _fit_four(
     """``fit_at`` at the four interior positions ``i, i + step, i + 2 step, i + 3 step``.
 
     Interior fits (a full window of ``span`` points centred on the position) share their
-    shape: the same distances, bandwidth and tricube weights. Computing those once for four
-    fits, and running the four fits' sums side by side, gives each fit exactly the
-    operations of ``fit_at`` in the same order (so the same bits), while the four chains of
-    additions overlap in the processor instead of waiting on each other.
+    shape: the same distances, bandwidth and tricube weights. They are computed once for
+    the four fits, whose sums run side by side (``_four_sums``), each with exactly the
+    operations of ``fit_at`` in the same order, so the same bits.
     """
     half = (span + 1) // 2
     full_range = n - 1.0
     # fit_at's bandwidth: max(xs - nleft, nright - xs), both (span - 1) / 2 in the interior
     h = float(max(half - 1, span - half))
-    h_far = FAR * h
-    h_near = NEAR * h
     inv_h = 1.0 / h if h > 0.0 else 0.0
-    j0 = i + 1 - half
-    j1 = j0 + step
-    j2 = j1 + step
-    j3 = j2 + step
-    t0 = f0 = s0 = v0 = c0 = 0.0
-    t1 = f1 = s1 = v1 = c1 = 0.0
-    t2 = f2 = s2 = v2 = c2 = 0.0
-    t3 = f3 = s3 = v3 = c3 = 0.0
-    for t in range(span):
-        u = float(t - (half - 1))  # j - xs, a whole number, so exact either way
-        r = abs(u)
-        if r > h_far:
-            continue
-        near = r <= h_near
-        q = r * inv_h
-        q = 1.0 - q * q * q
-        c = q * q * q
-        w = pw[j0 + t] if near else c * pw[j0 + t]
-        if w != 0.0:
-            t0 += w
-            f0 += w * u
-            s0 += w * u * u
-            v0 += w * y[j0 + t]
-            c0 += w * y[j0 + t] * u
-        w = pw[j1 + t] if near else c * pw[j1 + t]
-        if w != 0.0:
-            t1 += w
-            f1 += w * u
-            s1 += w * u * u
-            v1 += w * y[j1 + t]
-            c1 += w * y[j1 + t] * u
-        w = pw[j2 + t] if near else c * pw[j2 + t]
-        if w != 0.0:
-            t2 += w
-            f2 += w * u
-            s2 += w * u * u
-            v2 += w * y[j2 + t]
-            c2 += w * y[j2 + t] * u
-        w = pw[j3 + t] if near else c * pw[j3 + t]
-        if w != 0.0:
-            t3 += w
-            f3 += w * u
-            s3 += w * u * u
-            v3 += w * y[j3 + t]
-            c3 += w * y[j3 + t] * u
-    value, ok = _finish(t0, f0, s0, v0, c0, h, degree, full_range)
-    ys[i] = value if ok else y[i]
-    value, ok = _finish(t1, f1, s1, v1, c1, h, degree, full_range)
-    ys[i + step] = value if ok else y[i + step]
-    value, ok = _finish(t2, f2, s2, v2, c2, h, degree, full_range)
-    ys[i + 2 * step] = value if ok else y[i + 2 * step]
-    value, ok = _finish(t3, f3, s3, v3, c3, h, degree, full_range)
-    ys[i + 3 * step] = value if ok else y[i + 3 * step]
+    # u = j - xs = t - (half - 1) for point t of the window: whole numbers, so exact
+    m = _four_sums(y, pw, i + 1 - half, step, 1, span, float(half - 1), FAR * h, NEAR * h, inv_h)
+    for k in range(LANES):
+        value, ok = _finish(
+            m[5 * k], m[5 * k + 1], m[5 * k + 2], m[5 * k + 3], m[5 * k + 4], h, degree,
+            full_range,
+        )  # fmt: skip
+        ys[i + k * step] = value if ok else y[i + k * step]
 
 
 @njit(nogil=True, cache=True)
