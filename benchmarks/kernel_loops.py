@@ -104,12 +104,89 @@ def prepare(case: Case, stl_mod: ModuleType, mstl_mod: ModuleType):  # type: ign
     return go, (trend, seasonal_out, weight)
 
 
+def random_batch(rng: np.random.Generator, count: int, periods: int):  # type: ignore[no-untyped-def]
+    """Series of random lengths, periods, spans, jumps, degrees, loops and missing points,
+    with one settings row per period (MSTL's layout when ``periods`` is 2)."""
+    from tidesplit.kernel import layout as k
+
+    series, rows = [], []
+    for _ in range(count):
+        cycle = sorted(int(p) for p in rng.choice([2, 3, 4, 5, 7, 12, 24, 52], periods, False))
+        n = int(rng.integers(2 * cycle[-1] + 1, 15 * cycle[-1] + 40))
+        t = np.arange(n)
+        y = rng.normal(0, 1, n) * rng.uniform(0.1, 5) + rng.uniform(-50, 500) + 0.03 * t
+        for p in cycle:
+            y = y + rng.uniform(0, 10) * np.sin(2 * np.pi * t / p + rng.uniform(0, 6))
+        if rng.random() < 0.5:
+            y[rng.random(n) < rng.uniform(0, 0.3)] = np.nan
+        if rng.random() < 0.2:
+            y[rng.integers(0, n) :][: int(rng.integers(1, 3 * cycle[-1]))] = np.nan  # a long gap
+        y[rng.integers(0, n, 3)] += rng.normal(0, 50, 3)  # outliers
+        robust = rng.random() < 0.5
+        row = np.zeros((periods, k.N_SETTINGS), dtype=np.int64)
+        for r, p in enumerate(cycle):
+            season = int(rng.choice([0, 3, 5, 7, 9, 13, 21, 35, 101]))
+            trend = int(rng.integers(1, 4 * p + 20)) * 2 + 1
+            row[r, k.COL_PERIOD] = p
+            row[r, k.COL_SEASON_SPAN] = season
+            row[r, k.COL_TREND_SPAN] = trend
+            row[r, k.COL_LOWPASS_SPAN] = p + 1 if p % 2 == 0 else p + 2
+            row[r, k.COL_SEASON_DEGREE : k.COL_LOWPASS_DEGREE + 1] = rng.integers(0, 2, 3)
+            row[r, k.COL_SEASON_JUMP : k.COL_LOWPASS_JUMP + 1] = rng.integers(1, 8, 3)
+            row[r, k.COL_INNER] = rng.integers(1, 3)
+            row[r, k.COL_OUTER] = rng.integers(1, 8) if robust else 0
+            row[r, k.COL_ACTIVE] = 1
+        series.append(y)
+        rows.append(row)
+    values = np.concatenate(series)
+    offsets = np.concatenate([[0], np.cumsum([y.size for y in series])]).astype(np.int64)
+    return values, offsets, np.array(rows)
+
+
+def check(count: int, old: tuple[ModuleType, ModuleType]) -> int:
+    """Random batches through both kernels; the number of series that differ in any bit."""
+    from tidesplit.kernel import mstl, stl
+
+    rng = np.random.default_rng(2024)
+    differ = 0
+    for periods in (1, 2):
+        values, offsets, settings = random_batch(rng, count, periods)
+        outs = []
+        for stl_k, mstl_k in ((old[0], old[1]), (stl, mstl)):
+            trend = np.full(values.size, np.nan)
+            weight = np.full(values.size, np.nan)
+            if periods == 1:
+                seasonal = np.full(values.size, np.nan)
+                stl_k.stl_batch_serial(values, offsets, settings[:, 0], trend, seasonal, weight)
+            else:
+                seasonal = np.full((2, values.size), np.nan)
+                n_periods = np.full(offsets.size - 1, 2, dtype=np.int64)
+                mstl_k.mstl_batch_serial(
+                    values, offsets, settings, n_periods, 2, trend, seasonal, weight
+                )
+            outs.append((trend, seasonal, weight))
+        for s in range(offsets.size - 1):
+            part = slice(offsets[s], offsets[s + 1])
+            for a, b in zip(outs[0], outs[1], strict=True):
+                if not np.array_equal(a[..., part].view(np.int64), b[..., part].view(np.int64)):
+                    differ += 1
+                    break
+    return differ
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--before", default="main", help="commit to compare with")
     parser.add_argument("--series", type=int, default=10_000, help="monthly series")
     parser.add_argument("--hourly", type=int, default=100, help="hourly series")
     parser.add_argument("--runs", type=int, default=3)
+    parser.add_argument(
+        "--check",
+        type=int,
+        default=0,
+        help="also compare the bits on this many random series of each kind (one and two "
+        "periods: lengths, spans, jumps, degrees, loops, missing points)",
+    )
     args = parser.parse_args()
     from tidesplit.kernel import mstl, stl
 
@@ -147,6 +224,12 @@ def main() -> None:
                 for a, b in zip(old, new, strict=True)
             )
             print(f"{case.name:<36}{before:>10.3f}{after:>10.3f}{before / after:>9.2f}x  {same}")
+        if args.check:
+            differ = check(args.check, (old_stl, old_mstl))
+            print(
+                f"\nrandom series, one and two periods, {args.check} of each: "
+                f"{differ} differ in any bit"
+            )
 
 
 if __name__ == "__main__":

@@ -30,7 +30,7 @@ from .layout import (
     COL_TREND_JUMP,
     COL_TREND_SPAN,
 )
-from .loess import FAR, NEAR, fit_at, smooth
+from .loess import FAR, LANES, NEAR, _finish, _four_sums, fill_unfitted, fit_at, smooth
 from .threads import launch
 
 
@@ -47,6 +47,97 @@ def _moving_average(x: np.ndarray, n: int, length: int, out: np.ndarray) -> None
 
 
 @njit(nogil=True, cache=True)
+def _whole_fit_four(
+    detrended: np.ndarray,
+    pw: np.ndarray,
+    period: int,
+    phase: int,
+    k: int,
+    span: int,
+    degree: int,
+    xs: float,
+    lfit: np.ndarray,
+    at: int,
+    fallback: int,
+) -> None:
+    """``fit_at`` at ``xs`` over the whole of the subseries of phases ``phase`` to
+    ``phase + 3`` (``k`` points each, a span of at least ``k``) into column ``at`` of
+    ``lfit``, a row per phase. The four fits share their shape, so they run side by side
+    (``_four_sums``) with ``fit_at``'s arithmetic. An empty neighbourhood takes the
+    subseries' point ``fallback`` (``fallback >= 0``) or ``lfit``'s column
+    ``-1 - fallback``."""
+    full_range = k - 1.0
+    h = max(xs - 0, (k - 1) - xs)  # fit_at's bandwidth over [0, k - 1]
+    if span > k:
+        h += (span - k) // 2
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    m = _four_sums(detrended, pw, phase, 1, period, k, xs, FAR * h, NEAR * h, inv_h)
+    for lane in range(LANES):
+        value, ok = _finish(
+            m[5 * lane], m[5 * lane + 1], m[5 * lane + 2], m[5 * lane + 3], m[5 * lane + 4],
+            h, degree, full_range,
+        )  # fmt: skip
+        if ok:
+            lfit[lane, at] = value
+        elif fallback >= 0:
+            lfit[lane, at] = detrended[fallback * period + phase + lane]
+        else:
+            lfit[lane, at] = lfit[lane, -1 - fallback]
+
+
+@njit(nogil=True, cache=True)
+def _subseries_four(
+    detrended: np.ndarray,
+    pw: np.ndarray,
+    period: int,
+    phase: int,
+    k: int,
+    span: int,
+    degree: int,
+    jump: int,
+    cycle: np.ndarray,
+    lfit: np.ndarray,
+) -> None:
+    """``_subseries_smooth``'s work for phases ``phase`` to ``phase + 3``, each of
+    ``k >= 2`` points, when the span covers a whole subseries (``span >= k``): the steps of
+    ``smooth`` and the two end fits, with the fits four phases at a time."""
+    # smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:]): column m + 1 is point m
+    step = min(jump, k - 1)
+    for i in range(0, k, step):
+        _whole_fit_four(detrended, pw, period, phase, k, span, degree, float(i), lfit, i + 1, i)
+    if step != 1:
+        for lane in range(LANES):
+            ys = lfit[lane, 1:]
+            for i in range(0, k - step, step):
+                delta = (ys[i + step] - ys[i]) / step
+                for j in range(i + 1, i + step):
+                    ys[j] = ys[i] + delta * (j - i)
+        last_fit = ((k - 1) // step) * step
+        if last_fit != k - 1:
+            _whole_fit_four(
+                detrended, pw, period, phase, k, span, degree, float(k - 1), lfit, k, k - 1
+            )
+            if last_fit != k - 2:
+                for lane in range(LANES):
+                    ys = lfit[lane, 1:]
+                    delta = (ys[k - 1] - ys[last_fit]) / (k - 1 - last_fit)
+                    for j in range(last_fit + 1, k - 1):
+                        ys[j] = ys[last_fit] + delta * (j - last_fit)
+    for lane in range(LANES):
+        ys = lfit[lane, 1:]
+        for i in range(k):
+            if math.isnan(ys[i]):
+                fill_unfitted(ys, k)
+                break
+    # one point beyond each end; an empty neighbourhood repeats the end's fitted value
+    _whole_fit_four(detrended, pw, period, phase, k, span, degree, -1.0, lfit, 0, -2)
+    _whole_fit_four(detrended, pw, period, phase, k, span, degree, float(k), lfit, k + 1, -1 - k)
+    for lane in range(LANES):
+        for m in range(k + 2):
+            cycle[m * period + phase + lane] = lfit[lane, m]
+
+
+@njit(nogil=True, cache=True)
 def _subseries_smooth(
     detrended: np.ndarray,
     pw: np.ndarray,
@@ -59,13 +150,37 @@ def _subseries_smooth(
     sub_y: np.ndarray,
     sub_w: np.ndarray,
     sub_fit: np.ndarray,
+    lfit: np.ndarray,
 ) -> None:
     """Cycle-subseries smoothing (paper, step 2), one point beyond each end of each subseries.
 
     ``cycle`` receives ``n + 2 * period`` values: position ``i`` of the padded series is
-    time ``i - period``.
+    time ``i - period``. ``lfit`` is scratch of (4, n // period + 3) values.
     """
+    # Phases below n % period have one point more than the others. Where the span covers
+    # a whole subseries, four neighbouring phases of one length at a time go through
+    # _subseries_four; the rest (fewer than four of a length, or shorter spans) one by one.
+    longer = n % period
+    four_long = 0
+    four_short = longer
+    if span != 0:
+        if longer > 0 and 2 <= n // period + 1 <= span:
+            four_long = (longer // LANES) * LANES
+            for first in range(0, four_long, LANES):
+                _subseries_four(
+                    detrended, pw, period, first, n // period + 1, span, degree, jump, cycle,
+                    lfit,
+                )  # fmt: skip
+        if 2 <= n // period <= span:
+            four_short = longer + ((period - longer) // LANES) * LANES
+            for first in range(longer, four_short, LANES):
+                _subseries_four(
+                    detrended, pw, period, first, n // period, span, degree, jump, cycle,
+                    lfit,
+                )  # fmt: skip
     for phase in range(period):
+        if phase < four_long or longer <= phase < four_short:
+            continue
         k = (n - phase - 1) // period + 1
         for m in range(k):
             sub_y[m] = detrended[m * period + phase]
@@ -184,7 +299,7 @@ def _robustness_weights(
 @njit(nogil=True, cache=True)
 def buffer_size(n: int, period: int) -> int:
     """Scratch values that ``_stl_one`` needs for a series of ``n`` points."""
-    return 7 * (n + 2 * period + 2) + 3 * (n // period + 3)
+    return 7 * (n + 2 * period + 2) + 7 * (n // period + 3)
 
 
 @njit(nogil=True, cache=True)
@@ -219,6 +334,7 @@ def _stl_one(
     sub_y = buf[7 * width : 7 * width + kmax]
     sub_w = buf[7 * width + kmax : 7 * width + 2 * kmax]
     sub_fit = buf[7 * width + 2 * kmax : 7 * width + 3 * kmax]
+    lfit = buf[7 * width + 3 * kmax : 7 * width + 7 * kmax].reshape((LANES, kmax))
 
     for i in range(n):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
@@ -244,6 +360,7 @@ def _stl_one(
                 sub_y,
                 sub_w,
                 sub_fit,
+                lfit,
             )
             # Low-pass filter of the cycle-subseries (paper, step 3): moving averages of
             # length period, period and 3, then a loess fit.
