@@ -30,7 +30,17 @@ from .layout import (
     COL_TREND_JUMP,
     COL_TREND_SPAN,
 )
-from .loess import FAR, LANES, NEAR, _finish, _four_sums, fill_unfitted, fit_at, smooth
+from .loess import (
+    FAR,
+    LANES,
+    NEAR,
+    _finish,
+    _four_sums,
+    _window,
+    fill_unfitted,
+    fit_at,
+    smooth,
+)
 from .threads import launch
 
 
@@ -47,7 +57,7 @@ def _moving_average(x: np.ndarray, n: int, length: int, out: np.ndarray) -> None
 
 
 @njit(nogil=True, cache=True)
-def _whole_fit_four(
+def _lane_fit_four(
     detrended: np.ndarray,
     pw: np.ndarray,
     period: int,
@@ -56,22 +66,28 @@ def _whole_fit_four(
     span: int,
     degree: int,
     xs: float,
+    nleft: int,
+    nright: int,
     lfit: np.ndarray,
     at: int,
     fallback: int,
 ) -> None:
-    """``fit_at`` at ``xs`` over the whole of the subseries of phases ``phase`` to
-    ``phase + 3`` (``k`` points each, a span of at least ``k``) into column ``at`` of
-    ``lfit``, a row per phase. The four fits share their shape, so they run side by side
-    (``_four_sums``) with ``fit_at``'s arithmetic. An empty neighbourhood takes the
-    subseries' point ``fallback`` (``fallback >= 0``) or ``lfit``'s column
-    ``-1 - fallback``."""
+    """``fit_at(sub_y, sub_w, k, span, degree, xs, nleft, nright)`` for the subseries of
+    phases ``phase`` to ``phase + 3`` (``k`` points each) into column ``at`` of ``lfit``, a
+    row per phase. The four fits share their shape, so they run side by side
+    (``_four_sums``, reading the subseries in place) with ``fit_at``'s arithmetic. An empty
+    neighbourhood takes the subseries' point ``fallback`` (``fallback >= 0``) or ``lfit``'s
+    column ``-1 - fallback``."""
     full_range = k - 1.0
-    h = max(xs - 0, (k - 1) - xs)  # fit_at's bandwidth over [0, k - 1]
+    h = max(xs - nleft, nright - xs)
     if span > k:
-        h += (span - k) // 2
+        h += (span - k) // 2  # as in fit_at
     inv_h = 1.0 / h if h > 0.0 else 0.0
-    m = _four_sums(detrended, pw, phase, 1, period, k, xs, FAR * h, NEAR * h, inv_h)
+    # point t of the neighbourhood is subseries point nleft + t, at u = t - (xs - nleft)
+    m = _four_sums(
+        detrended, pw, nleft * period + phase, 1, period, nright - nleft + 1, xs - nleft,
+        FAR * h, NEAR * h, inv_h,
+    )  # fmt: skip
     for lane in range(LANES):
         value, ok = _finish(
             m[5 * lane], m[5 * lane + 1], m[5 * lane + 2], m[5 * lane + 3], m[5 * lane + 4],
@@ -99,12 +115,20 @@ def _subseries_four(
     lfit: np.ndarray,
 ) -> None:
     """``_subseries_smooth``'s work for phases ``phase`` to ``phase + 3``, each of
-    ``k >= 2`` points, when the span covers a whole subseries (``span >= k``): the steps of
-    ``smooth`` and the two end fits, with the fits four phases at a time."""
+    ``k >= 2`` points, with a finite span: the steps of ``smooth`` and the two end fits,
+    the fits four phases at a time."""
     # smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:]): column m + 1 is point m
     step = min(jump, k - 1)
+    half = (span + 1) // 2
+    nleft = 0
+    nright = k - 1
     for i in range(0, k, step):
-        _whole_fit_four(detrended, pw, period, phase, k, span, degree, float(i), lfit, i + 1, i)
+        if span < k:
+            nleft, nright = _window(i, k, span, half)
+        _lane_fit_four(
+            detrended, pw, period, phase, k, span, degree, float(i), nleft, nright, lfit,
+            i + 1, i,
+        )  # fmt: skip
     if step != 1:
         for lane in range(LANES):
             ys = lfit[lane, 1:]
@@ -114,9 +138,11 @@ def _subseries_four(
                     ys[j] = ys[i] + delta * (j - i)
         last_fit = ((k - 1) // step) * step
         if last_fit != k - 1:
-            _whole_fit_four(
-                detrended, pw, period, phase, k, span, degree, float(k - 1), lfit, k, k - 1
-            )
+            # the neighbourhood left over from the final jump, as in smooth
+            _lane_fit_four(
+                detrended, pw, period, phase, k, span, degree, float(k - 1), nleft, nright,
+                lfit, k, k - 1,
+            )  # fmt: skip
             if last_fit != k - 2:
                 for lane in range(LANES):
                     ys = lfit[lane, 1:]
@@ -130,8 +156,13 @@ def _subseries_four(
                 fill_unfitted(ys, k)
                 break
     # one point beyond each end; an empty neighbourhood repeats the end's fitted value
-    _whole_fit_four(detrended, pw, period, phase, k, span, degree, -1.0, lfit, 0, -2)
-    _whole_fit_four(detrended, pw, period, phase, k, span, degree, float(k), lfit, k + 1, -1 - k)
+    _lane_fit_four(
+        detrended, pw, period, phase, k, span, degree, -1.0, 0, min(span, k) - 1, lfit, 0, -2
+    )
+    _lane_fit_four(
+        detrended, pw, period, phase, k, span, degree, float(k), max(0, k - span), k - 1,
+        lfit, k + 1, -1 - k,
+    )  # fmt: skip
     for lane in range(LANES):
         for m in range(k + 2):
             cycle[m * period + phase + lane] = lfit[lane, m]
@@ -157,21 +188,21 @@ def _subseries_smooth(
     ``cycle`` receives ``n + 2 * period`` values: position ``i`` of the padded series is
     time ``i - period``. ``lfit`` is scratch of (4, n // period + 3) values.
     """
-    # Phases below n % period have one point more than the others. Where the span covers
-    # a whole subseries, four neighbouring phases of one length at a time go through
-    # _subseries_four; the rest (fewer than four of a length, or shorter spans) one by one.
+    # Phases below n % period have one point more than the others. Four neighbouring
+    # phases of one length at a time go through _subseries_four; the rest (fewer than four
+    # of a length) and infinite spans one by one.
     longer = n % period
     four_long = 0
     four_short = longer
     if span != 0:
-        if longer > 0 and 2 <= n // period + 1 <= span:
+        if longer > 0 and n // period + 1 >= 2:
             four_long = (longer // LANES) * LANES
             for first in range(0, four_long, LANES):
                 _subseries_four(
                     detrended, pw, period, first, n // period + 1, span, degree, jump, cycle,
                     lfit,
                 )  # fmt: skip
-        if 2 <= n // period <= span:
+        if n // period >= 2:
             four_short = longer + ((period - longer) // LANES) * LANES
             for first in range(longer, four_short, LANES):
                 _subseries_four(
