@@ -115,6 +115,62 @@ def _four_sums(typingctx, y, pw, start, lane_stride, point_stride, count, shift,
     return signature, codegen
 
 
+@intrinsic
+def _four_unit_sums(typingctx, y, start, lane_stride, offsets, weights, distances, count):
+    """``_four_sums`` when every point weight is 1: the weight of point ``k`` of the list
+    (``k < count``) is ``weights[k]``, at offset ``offsets[k]`` into the window and
+    distance ``distances[k]``; only (value, cross) of lanes 0 to 3 are left to sum."""
+    result = types.UniTuple(types.float64, 2 * LANES)
+    signature = result(y, start, lane_stride, offsets, weights, distances, count)
+
+    def codegen(context, builder, sig, args):
+        ya, start_v, lane_v, offs_a, wts_a, us_a, count_v = args
+        dbl = ir.DoubleType()
+        i64 = ir.IntType(64)
+        vec = ir.VectorType(dbl, LANES)
+        splat_mask = ir.Constant(ir.VectorType(ir.IntType(32), LANES), [0] * LANES)
+        undef = ir.Constant(vec, ir.Undefined)
+        zero = ir.Constant(vec, [0.0] * LANES)
+
+        def splat(x):
+            return builder.shuffle_vector(
+                builder.insert_element(undef, x, ir.Constant(i64, 0)), undef, splat_mask
+            )
+
+        y_ptr = context.make_array(sig.args[0])(context, builder, ya).data
+        offs_ptr = context.make_array(sig.args[3])(context, builder, offs_a).data
+        wts_ptr = context.make_array(sig.args[4])(context, builder, wts_a).data
+        us_ptr = context.make_array(sig.args[5])(context, builder, us_a).data
+        value = cgutils.alloca_once_value(builder, zero)
+        cross = cgutils.alloca_once_value(builder, zero)
+        firsts = [
+            builder.add(start_v, builder.mul(lane_v, ir.Constant(i64, k))) for k in range(LANES)
+        ]
+        with cgutils.for_range(builder, count_v) as loop:
+            k = loop.index
+            t = builder.fptosi(builder.load(builder.gep(offs_ptr, [k])), i64)
+            w = splat(builder.load(builder.gep(wts_ptr, [k])))
+            u = splat(builder.load(builder.gep(us_ptr, [k])))
+            y_lanes = undef
+            for lane in range(LANES):
+                j = builder.add(firsts[lane], t)
+                y_lanes = builder.insert_element(
+                    y_lanes, builder.load(builder.gep(y_ptr, [j])), ir.Constant(i64, lane)
+                )
+            term = builder.fmul(w, y_lanes)  # fit_at's w * y, then (w * y) * u
+            builder.store(builder.fadd(builder.load(value), term), value)
+            builder.store(builder.fadd(builder.load(cross), builder.fmul(term, u)), cross)
+        out = cgutils.get_null_value(context.get_value_type(result))
+        final = (builder.load(value), builder.load(cross))
+        for lane in range(LANES):
+            for m in range(2):
+                part = builder.extract_element(final[m], ir.Constant(i64, lane))
+                out = builder.insert_value(out, part, 2 * lane + m)
+        return out
+
+    return signature, codegen
+
+
 @njit(nogil=True, cache=True)
 def fit_at(
     y: np.ndarray,
@@ -312,35 +368,10 @@ def _fit_four_unit(
     half = (span + 1) // 2
     full_range = n - 1.0
     h = float(max(half - 1, span - half))
-    j0 = i + 1 - half
-    j1 = j0 + step
-    j2 = j1 + step
-    j3 = j2 + step
-    v0 = c0 = v1 = c1 = v2 = c2 = v3 = c3 = 0.0
-    for k in range(count):
-        t = int(table[0, k])
-        w = table[1, k]
-        u = table[2, k]
-        p = w * y[j0 + t]
-        v0 += p
-        c0 += p * u
-        p = w * y[j1 + t]
-        v1 += p
-        c1 += p * u
-        p = w * y[j2 + t]
-        v2 += p
-        c2 += p * u
-        p = w * y[j3 + t]
-        v3 += p
-        c3 += p * u
-    value, ok = _finish(total, first, second, v0, c0, h, degree, full_range)
-    ys[i] = value if ok else y[i]
-    value, ok = _finish(total, first, second, v1, c1, h, degree, full_range)
-    ys[i + step] = value if ok else y[i + step]
-    value, ok = _finish(total, first, second, v2, c2, h, degree, full_range)
-    ys[i + 2 * step] = value if ok else y[i + 2 * step]
-    value, ok = _finish(total, first, second, v3, c3, h, degree, full_range)
-    ys[i + 3 * step] = value if ok else y[i + 3 * step]
+    m = _four_unit_sums(y, i + 1 - half, step, table[0], table[1], table[2], count)
+    for k in range(LANES):
+        value, ok = _finish(total, first, second, m[2 * k], m[2 * k + 1], h, degree, full_range)
+        ys[i + k * step] = value if ok else y[i + k * step]
 
 
 @njit(nogil=True, cache=True)
