@@ -33,7 +33,7 @@ from tidesplit.kernel.layout import (
     N_SETTINGS,
 )
 from tidesplit.kernel.loess import fill_unfitted, fit_at, smooth
-from tidesplit.kernel.stl import stl_batch_serial
+from tidesplit.kernel.stl import _subseries_smooth, stl_batch_serial
 
 
 @njit(cache=False)
@@ -75,6 +75,28 @@ def plain_smooth(y, pw, n, span, degree, jump, ys):
         if math.isnan(ys[i]):
             fill_unfitted(ys, n)
             break
+
+
+@njit(cache=False)
+def plain_subseries(detrended, pw, n, period, span, degree, jump, cycle):
+    """Cycle-subseries smoothing one phase at a time, each copied out and smoothed with
+    ``smooth`` and two end fits (finite spans)."""
+    kmax = n // period + 3
+    sub_y = np.empty(kmax)
+    sub_w = np.empty(kmax)
+    sub_fit = np.empty(kmax)
+    for phase in range(period):
+        k = (n - phase - 1) // period + 1
+        for m in range(k):
+            sub_y[m] = detrended[m * period + phase]
+            sub_w[m] = pw[m * period + phase]
+        smooth(sub_y, sub_w, k, span, degree, jump, sub_fit[1:])
+        value, ok = fit_at(sub_y, sub_w, k, span, degree, -1.0, 0, min(span, k) - 1)
+        sub_fit[0] = value if ok else sub_fit[1]
+        value, ok = fit_at(sub_y, sub_w, k, span, degree, float(k), max(0, k - span), k - 1)
+        sub_fit[k + 1] = value if ok else sub_fit[k]
+        for m in range(k + 2):
+            cycle[m * period + phase] = sub_fit[m]
 
 
 def weights(kind: str, n: int, rng: np.random.Generator) -> np.ndarray:
@@ -119,6 +141,29 @@ def test_smooth_matches_one_fit_at_a_time(kind):
         assert same_bits(fast, plain), (n, span, jump, degree, kind)
         checked += 1
     assert checked == 300
+
+
+@pytest.mark.parametrize("kind", ["unit", "missing", "robust", "long gap"])
+def test_subseries_four_phases_at_a_time_match_one_at_a_time(kind):
+    """Neighbouring phases of one length are fitted four at a time; the bits are those of
+    one phase at a time, for spans shorter and longer than the subseries."""
+    rng = np.random.default_rng(11)
+    for _ in range(150):
+        period = int(rng.choice([4, 5, 7, 12, 24, 52]))
+        n = int(rng.integers(2 * period, 30 * period))
+        span = int(rng.integers(1, 30)) * 2 + 1
+        jump = int(rng.integers(1, max(2, span // 2)))
+        degree = int(rng.integers(0, 2))
+        pw = weights(kind, n, rng)
+        y = rng.normal(10.0, 3.0, n) + np.sin(np.arange(n) * 2 * np.pi / period)
+        y[pw == 0.0] = np.nan
+        kmax = n // period + 3
+        fast = np.full(n + 2 * period, -1.0)
+        plain = np.full(n + 2 * period, -1.0)
+        scratch = [np.empty(kmax) for _ in range(3)]
+        _subseries_smooth(y, pw, n, period, span, degree, jump, fast, *scratch, np.empty((4, kmax)))
+        plain_subseries(y, pw, n, period, span, degree, jump, plain)
+        assert same_bits(fast, plain), (n, period, span, jump, degree, kind)
 
 
 def test_split_same_bits_in_a_batch_of_mixed_lengths_as_alone():
