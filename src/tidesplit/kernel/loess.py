@@ -171,6 +171,78 @@ def _four_unit_sums(typingctx, y, start, lane_stride, offsets, weights, distance
     return signature, codegen
 
 
+@intrinsic
+def _four_listed_sums(typingctx, y, pw, start, lane_stride, offsets, weights, distances, count):
+    """``_four_sums`` for interior fits, whose points and tricube weights are listed once
+    per smoothing (see ``_unit_moments``): point ``k`` of the list (``k < count``) is at
+    offset ``offsets[k]`` into the window, with tricube weight ``weights[k]`` (1.0 where
+    ``fit_at`` takes the point weight alone: 1.0 times it is the same number) and
+    distance ``distances[k]``. Returns (total, first, second, value, cross) per lane."""
+    result = types.UniTuple(types.float64, 5 * LANES)
+    signature = result(y, pw, start, lane_stride, offsets, weights, distances, count)
+
+    def codegen(context, builder, sig, args):
+        ya, pwa, start_v, lane_v, offs_a, wts_a, us_a, count_v = args
+        dbl = ir.DoubleType()
+        i64 = ir.IntType(64)
+        vec = ir.VectorType(dbl, LANES)
+        splat_mask = ir.Constant(ir.VectorType(ir.IntType(32), LANES), [0] * LANES)
+        undef = ir.Constant(vec, ir.Undefined)
+        zero = ir.Constant(vec, [0.0] * LANES)
+
+        def splat(x):
+            return builder.shuffle_vector(
+                builder.insert_element(undef, x, ir.Constant(i64, 0)), undef, splat_mask
+            )
+
+        y_ptr = context.make_array(sig.args[0])(context, builder, ya).data
+        pw_ptr = context.make_array(sig.args[1])(context, builder, pwa).data
+        offs_ptr = context.make_array(sig.args[4])(context, builder, offs_a).data
+        wts_ptr = context.make_array(sig.args[5])(context, builder, wts_a).data
+        us_ptr = context.make_array(sig.args[6])(context, builder, us_a).data
+        sums = [cgutils.alloca_once_value(builder, zero) for _ in range(5)]
+        firsts = [
+            builder.add(start_v, builder.mul(lane_v, ir.Constant(i64, k))) for k in range(LANES)
+        ]
+        with cgutils.for_range(builder, count_v) as loop:
+            k = loop.index
+            t = builder.fptosi(builder.load(builder.gep(offs_ptr, [k])), i64)
+            tricube = splat(builder.load(builder.gep(wts_ptr, [k])))
+            u_lanes = splat(builder.load(builder.gep(us_ptr, [k])))
+            pw_lanes = undef
+            y_lanes = undef
+            for lane in range(LANES):
+                j = builder.add(firsts[lane], t)
+                at = ir.Constant(i64, lane)
+                pw_lanes = builder.insert_element(
+                    pw_lanes, builder.load(builder.gep(pw_ptr, [j])), at
+                )
+                y_lanes = builder.insert_element(y_lanes, builder.load(builder.gep(y_ptr, [j])), at)
+            w = builder.fmul(tricube, pw_lanes)
+            # as in _four_sums: a point of weight 0 adds zeros, and no y
+            taken = builder.fcmp_unordered("!=", w, zero)
+            wu = builder.fmul(w, u_lanes)
+            wy = builder.fmul(w, y_lanes)
+            terms = (
+                w,
+                wu,
+                builder.fmul(wu, u_lanes),
+                builder.select(taken, wy, zero),
+                builder.select(taken, builder.fmul(wy, u_lanes), zero),
+            )
+            for total, term in zip(sums, terms, strict=True):
+                builder.store(builder.fadd(builder.load(total), term), total)
+        out = cgutils.get_null_value(context.get_value_type(result))
+        final = [builder.load(total) for total in sums]
+        for lane in range(LANES):
+            for m in range(5):
+                part = builder.extract_element(final[m], ir.Constant(i64, lane))
+                out = builder.insert_value(out, part, 5 * lane + m)
+        return out
+
+    return signature, codegen
+
+
 @njit(nogil=True, cache=True)
 def fit_at(
     y: np.ndarray,
@@ -260,21 +332,23 @@ def _fit_four(
     i: int,
     step: int,
     ys: np.ndarray,
+    table: np.ndarray,
+    count: int,
 ) -> None:
     """``fit_at`` at the four interior positions ``i, i + step, i + 2 step, i + 3 step``.
 
     Interior fits (a full window of ``span`` points centred on the position) share their
-    shape: the same distances, bandwidth and tricube weights. They are computed once for
-    the four fits, whose sums run side by side (``_four_sums``), each with exactly the
-    operations of ``fit_at`` in the same order, so the same bits.
+    shape: the same distances, bandwidth and tricube weights. Those are listed once per
+    smoothing (``table``, ``count``: see ``_unit_moments``) and the four fits' sums run side
+    by side (``_four_listed_sums``), each with exactly the operations of ``fit_at`` in the
+    same order, so the same bits.
     """
     half = (span + 1) // 2
     full_range = n - 1.0
     # fit_at's bandwidth: max(xs - nleft, nright - xs), both (span - 1) / 2 in the interior
     h = float(max(half - 1, span - half))
-    inv_h = 1.0 / h if h > 0.0 else 0.0
-    # u = j - xs = t - (half - 1) for point t of the window: whole numbers, so exact
-    m = _four_sums(y, pw, i + 1 - half, step, 1, span, float(half - 1), FAR * h, NEAR * h, inv_h)
+    # the window's points, tricube weights and distances, listed by _unit_moments
+    m = _four_listed_sums(y, pw, i + 1 - half, step, table[0], table[1], table[2], count)
     for k in range(LANES):
         value, ok = _finish(
             m[5 * k], m[5 * k + 1], m[5 * k + 2], m[5 * k + 3], m[5 * k + 4], h, degree,
@@ -308,14 +382,15 @@ def fill_unfitted(ys: np.ndarray, n: int) -> None:
 
 @njit(nogil=True, cache=True)
 def _unit_moments(span: int, table: np.ndarray) -> tuple[float, float, float, int]:
-    """The interior fits' weights when every point weight is 1, and their moments.
+    """The interior fits' points and tricube weights, and their moments for unit weights.
 
-    With unit point weights ``fit_at``'s weight of a point is its tricube weight alone, the
-    same for every interior fit, and so are the sums of the weights and of their first and
-    second moments. ``table`` receives, for the points that get a weight (``count`` of
-    them), the offset into the window, the weight and the distance ``u``, in the order of
-    ``fit_at``'s loop; the sums are accumulated in that order, so they are the bits each
-    fit would accumulate itself.
+    ``table`` receives, for the points of an interior window that get a weight (``count``
+    of them, in the order of ``fit_at``'s loop), the offset into the window, the tricube
+    weight (1.0 where ``fit_at`` takes the point weight alone) and the distance ``u``. With
+    unit point weights ``fit_at``'s weight of a point is that tricube weight, the same for
+    every interior fit, and so are the sums of the weights and of their first and second
+    moments, returned here: accumulated in ``fit_at``'s order, they are the bits each fit
+    would accumulate itself.
     """
     half = (span + 1) // 2
     h = float(max(half - 1, span - half))
@@ -420,9 +495,9 @@ def smooth(
             if pw[j] != 1.0:
                 unit = False
                 break
-        if unit:
-            table = np.empty((3, span))
-            total, first, second, count = _unit_moments(span, table)
+        # the interior fits' points and tricube weights, listed once for all of them
+        table = np.empty((3, span))
+        total, first, second, count = _unit_moments(span, table)
         i = 0
         while i < n:
             if i + 1 >= half and i + 3 * step <= interior_last:
@@ -431,7 +506,7 @@ def smooth(
                         y, n, span, degree, i, step, ys, table, count, total, first, second
                     )
                 else:
-                    _fit_four(y, pw, n, span, degree, i, step, ys)
+                    _fit_four(y, pw, n, span, degree, i, step, ys, table, count)
                 i += 4 * step
                 continue
             nleft, nright = _window(i, n, span, half)
