@@ -5,6 +5,7 @@
     python benchmarks/suite.py --scale    # also 1,000,000 series end to end (minutes)
     python benchmarks/suite.py --start    # also the cold start, warm and cold numba cache
     python benchmarks/suite.py --rounds 5 # SQL and floor over five alternating rounds
+    python benchmarks/suite.py --only hourly --only "100k robust"  # the cases so named
 
 Every measurement runs in a fresh process of its own, so its peak memory (max RSS) is its
 own. Baselines come from the same run: statsmodels' STL or MSTL per series with matched
@@ -367,6 +368,12 @@ def main() -> None:
         help="SQL and floor measured this many times, alternating, in fresh processes; the "
         "median of the rounds is shown, with the spread of SQL / floor",
     )
+    parser.add_argument(
+        "--only",
+        action="append",
+        default=[],
+        help="run only the cases whose name contains this text (may be given again)",
+    )
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
@@ -389,6 +396,8 @@ def main() -> None:
     )
     print(header)
     for case in cases(args.quick):
+        if args.only and not any(part in case.name for part in args.only):
+            continue
         kernel = in_child(case, "kernel", args.runs)
         # alternating rounds, so that a slow spell of the machine weighs on both alike
         rounds = [
