@@ -285,15 +285,21 @@ def test_coefficients_equal_statsmodels_least_squares(robust):
         expected = fit.bse * np.sqrt((z.size - k) / (points - k - used))
         covariance = fit.cov_params() * (z.size - k) / (points - k - used)
     else:
-        # the bisquare M-estimate's sandwich, written out here from its definition
-        # (Huber 1981, section 7.6): B^-1 M B^-1 with B = X' diag(psi') X and
-        # M = X' diag(psi^2) X, psi = w r and psi' = (1 - u^2)(1 - 5 u^2), w = (1 - u^2)^2
+        # Huber's corrected covariance of an M-estimate, written out here from its
+        # definition (Huber 1981, Robust Statistics, section 7.6, from memory; statsmodels
+        # calls it "H1"): K^2 [sum psi^2 / (n - p)] / [mean psi']^2 (X'X)^-1 with
+        # K = 1 + (p / n) var(psi') / mean(psi')^2, psi = w r, psi' = (1 - u^2)(1 - 5 u^2)
+        # for the bisquare w = (1 - u^2)^2 (0 where w is 0), over all n points; ours: p
+        # counts the split's degrees of freedom beside the columns
         r = z - X @ fit.params
-        u2 = np.where(weight > 0, 1 - np.sqrt(weight), 1.0)
-        slope = X.T @ (((1 - u2) * (1 - 5 * u2))[:, None] * X)
-        meat = X.T @ (((weight * r) ** 2)[:, None] * X)
-        covariance = np.linalg.inv(slope) @ meat @ np.linalg.inv(slope)
-        covariance *= points / (points - k - used)
+        root = np.sqrt(weight)
+        slope = np.where(weight > 0, root * (5 * root - 4), 0.0)
+        n, p = z.size, k + used
+        K = 1 + p / n * slope.var() / slope.mean() ** 2
+        covariance = (
+            K**2 * ((weight * r) ** 2).sum() / (n - p) / slope.mean() ** 2
+            * np.linalg.inv(X.T @ X)
+        )  # fmt: skip
         expected = np.sqrt(np.diag(covariance))
     assert np.abs(errors / expected - 1).max() < 1e-9
     # Sunday's coefficient is minus the sum of the six contrasts, its variance the sum's

@@ -739,33 +739,72 @@ def _run_effects(
         chosen[~which, COL_ACTIVE] = 0
         return _run_kernel(values, offsets, chosen, parallel)
 
-    robust = settings[:, COL_OUTER] > 0
-    # start from where backfitting with the plain (linear) split settles, solved directly:
-    # the plain fit then settles in a round or two, and a robust fit starts from it (from
-    # no effect at all, the points the effects move most, a leap-year February, look like
-    # outliers, get no weight, and then cannot tell the effect any more)
-    plain = settings.copy()
-    plain[:, COL_OUTER] = 0
-    missing = np.isnan(y)
-    X_rest = np.empty_like(X)
-    for j in range(X.shape[1]):
-        column = np.where(missing, np.nan, X[:, j])
-        trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
-        X_rest[:, j] = X[:, j] - trend - seasonal
-    trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
-    coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
-    regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
-    start = np.zeros(y.size)
-    regression.effect_of(X, offsets, np.where(np.isfinite(coef), coef, np.nan), active, start)
-    out = regression.backfit(
-        y, offsets, X, kept, active, split, used, robust, start,
-        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
-    )  # fmt: skip
+    robust = active & (settings[:, COL_OUTER] > 0)
+    plain_ones = active & ~robust
+    out = _backfit_plain(y, offsets, X, kept, plain_ones, settings, used, split, parallel)
+    if robust.any():
+        # the robustness loop outside the backfitting (regression.robust_batch), in
+        # launches of bounded work so that a long batch stays interruptible
+        chosen = settings.copy()
+        chosen[~robust, COL_ACTIVE] = 0
+        columns = kept.sum(axis=1)
+        screened = np.ascontiguousarray(verdict)  # screened again on the points kept
+        passes = chosen[:, COL_INNER] * (chosen[:, COL_OUTER] + 2 + 2 * columns)
+        rows = np.repeat(robust, lengths)
+        for first, stop in _launches(lengths, passes * robust):
+            part = slice(offsets[first], offsets[stop])
+            found = regression.robust_batch(
+                y[part], offsets[first : stop + 1] - offsets[first], X[part],
+                screened[first:stop], chosen[first:stop], used[first:stop],
+                tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS, parallel=parallel,
+            )  # fmt: skip
+            here = rows[part]
+            for name in ("trend", "seasonal", "weight", "effect"):
+                out[name][part][here] = found[name][here]
+            mine = robust[first:stop]
+            for name in ("coef", "cov", "scale", "rounds", "settled", "last_move"):
+                out[name][first:stop][mine] = found[name][mine]
+        verdict = screened
     fitted = _Fitted(
         out["effect"], out["coef"], out["cov"], verdict, out["settled"], out["rounds"],
         out["last_move"],
     )  # fmt: skip
     return out["trend"], out["seasonal"], out["weight"], fitted
+
+
+def _backfit_plain(
+    y: np.ndarray,
+    offsets: np.ndarray,
+    X: np.ndarray,
+    kept: np.ndarray,
+    active: np.ndarray,
+    settings: np.ndarray,
+    used: np.ndarray,
+    split: Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, ...]],
+    parallel: bool,
+) -> dict[str, np.ndarray]:
+    """Backfitting with the plain split for the ``active`` series (the others NaN)."""
+    lengths = np.diff(offsets)
+    # start from where backfitting with the plain (linear) split settles, solved directly:
+    # the fit then settles in a round or two
+    plain = settings.copy()
+    plain[~active, COL_ACTIVE] = 0
+    missing = np.isnan(y)
+    X_rest = np.empty_like(X)
+    coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
+    start = np.zeros(y.size)
+    if active.any():
+        for j in range(X.shape[1]):
+            column = np.where(missing, np.nan, X[:, j])
+            trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
+            X_rest[:, j] = X[:, j] - trend - seasonal
+        trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
+        regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
+        regression.effect_of(X, offsets, np.where(np.isfinite(coef), coef, np.nan), active, start)
+    return regression.backfit(
+        y, offsets, X, kept, active, split, used, None, start,
+        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
+    )  # fmt: skip
 
 
 def _add_effects(
