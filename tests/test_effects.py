@@ -285,21 +285,20 @@ def test_coefficients_equal_statsmodels_least_squares(robust):
         expected = fit.bse * np.sqrt((z.size - k) / (points - k - used))
         covariance = fit.cov_params() * (z.size - k) / (points - k - used)
     else:
-        # Huber's corrected covariance of an M-estimate, written out here from its
-        # definition (Huber 1981, Robust Statistics, section 7.6, from memory; statsmodels
-        # calls it "H1"): K^2 [sum psi^2 / (n - p)] / [mean psi']^2 (X'X)^-1 with
+        # the M-estimate's covariance in Huber's second form, written out here from its
+        # definition (Huber 1981, Robust Statistics, section 7.6, from memory):
+        # K [sum psi^2 / (n - p)] / mean(psi') (X' diag(psi') X)^-1 with
         # K = 1 + (p / n) var(psi') / mean(psi')^2, psi = w r, psi' = (1 - u^2)(1 - 5 u^2)
-        # for the bisquare w = (1 - u^2)^2 (0 where w is 0), over all n points; ours: p
-        # counts the split's degrees of freedom beside the columns
+        # for the bisquare w = (1 - u^2)^2 (0 where w is 0), over all n points; ours (see
+        # regression._huber_covariance): p counts the split's degrees of freedom beside
+        # the columns, and n - p becomes n (1 - p / n)^2 (HC3 at the average leverage)
         r = z - X @ fit.params
         root = np.sqrt(weight)
         slope = np.where(weight > 0, root * (5 * root - 4), 0.0)
         n, p = z.size, k + used
         K = 1 + p / n * slope.var() / slope.mean() ** 2
-        covariance = (
-            K**2 * ((weight * r) ** 2).sum() / (n - p) / slope.mean() ** 2
-            * np.linalg.inv(X.T @ X)
-        )  # fmt: skip
+        level = ((weight * r) ** 2).sum() / (n * (1 - p / n) ** 2)
+        covariance = K * level / slope.mean() * np.linalg.inv(X.T @ (slope[:, None] * X))
         expected = np.sqrt(np.diag(covariance))
     assert np.abs(errors / expected - 1).max() < 1e-9
     # Sunday's coefficient is minus the sum of the six contrasts, its variance the sum's
