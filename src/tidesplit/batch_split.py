@@ -740,22 +740,30 @@ def _run_effects(
         return _run_kernel(values, offsets, chosen, parallel)
 
     robust = active & (settings[:, COL_OUTER] > 0)
-    plain_ones = active & ~robust
-    out = _backfit_plain(y, offsets, X, kept, plain_ones, settings, used, split, parallel)
+    # start from where backfitting with the plain (linear) split settles, solved directly:
+    # a plain fit then settles in a round or two, and a robust one takes it for its first
+    # pass (from no effect at all, the points the effects move most, a leap-year
+    # February, would look like outliers and lose their weight)
+    start = _plain_start(y, offsets, X, kept, active, settings, parallel)
+    effect = np.zeros(y.size)
+    regression.effect_of(X, offsets, start, active & ~robust, effect)
+    out = regression.backfit(
+        y, offsets, X, kept, active & ~robust, split, used, None, effect,
+        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
+    )  # fmt: skip
     if robust.any():
         # the robustness loop outside the backfitting (regression.robust_batch), in
         # launches of bounded work so that a long batch stays interruptible
         chosen = settings.copy()
         chosen[~robust, COL_ACTIVE] = 0
-        columns = kept.sum(axis=1)
+        passes = chosen[:, COL_INNER] * (chosen[:, COL_OUTER] + 2 + kept.sum(axis=1))
         screened = np.ascontiguousarray(verdict)  # screened again on the points kept
-        passes = chosen[:, COL_INNER] * (chosen[:, COL_OUTER] + 2 + 2 * columns)
         rows = np.repeat(robust, lengths)
         for first, stop in _launches(lengths, passes * robust):
             part = slice(offsets[first], offsets[stop])
             found = regression.robust_batch(
                 y[part], offsets[first : stop + 1] - offsets[first], X[part],
-                screened[first:stop], chosen[first:stop], used[first:stop],
+                screened[first:stop], chosen[first:stop], used[first:stop], start[first:stop],
                 tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS, parallel=parallel,
             )  # fmt: skip
             here = rows[part]
@@ -772,39 +780,31 @@ def _run_effects(
     return out["trend"], out["seasonal"], out["weight"], fitted
 
 
-def _backfit_plain(
+def _plain_start(
     y: np.ndarray,
     offsets: np.ndarray,
     X: np.ndarray,
     kept: np.ndarray,
     active: np.ndarray,
     settings: np.ndarray,
-    used: np.ndarray,
-    split: Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, ...]],
     parallel: bool,
-) -> dict[str, np.ndarray]:
-    """Backfitting with the plain split for the ``active`` series (the others NaN)."""
+) -> np.ndarray:
+    """Per series, the coefficients where backfitting with the plain split (without
+    robustness) settles (``regression.start_batch``); NaN where singular or not kept."""
     lengths = np.diff(offsets)
-    # start from where backfitting with the plain (linear) split settles, solved directly:
-    # the fit then settles in a round or two
     plain = settings.copy()
+    plain[:, COL_OUTER] = 0
     plain[~active, COL_ACTIVE] = 0
     missing = np.isnan(y)
     X_rest = np.empty_like(X)
+    for j in range(X.shape[1]):
+        column = np.where(missing, np.nan, X[:, j])
+        trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
+        X_rest[:, j] = X[:, j] - trend - seasonal
+    trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
     coef = np.full(X.shape[1] * lengths.size, np.nan).reshape(lengths.size, X.shape[1])
-    start = np.zeros(y.size)
-    if active.any():
-        for j in range(X.shape[1]):
-            column = np.where(missing, np.nan, X[:, j])
-            trend, seasonal, _ = _run_kernel(column, offsets, plain, parallel)
-            X_rest[:, j] = X[:, j] - trend - seasonal
-        trend, seasonal, _ = _run_kernel(y, offsets, plain, parallel)
-        regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
-        regression.effect_of(X, offsets, np.where(np.isfinite(coef), coef, np.nan), active, start)
-    return regression.backfit(
-        y, offsets, X, kept, active, split, used, None, start,
-        tolerance=EFFECTS_TOLERANCE, most_rounds=EFFECTS_ROUNDS,
-    )  # fmt: skip
+    regression.start_batch(y - trend - seasonal, X, X_rest, offsets, kept, active, coef)
+    return np.where(np.isfinite(coef), coef, np.nan)
 
 
 def _add_effects(

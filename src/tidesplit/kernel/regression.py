@@ -716,15 +716,17 @@ def _solve_given_weights(
         inner_passes_given_weights(column, pw, settings, trend_c, column_seasonal[c], buf)
     system = np.zeros((m, m))
     right = np.zeros(m)
+    rest = np.empty(m)
     for i in range(n):
         if pw[i] <= 0.0:
             continue
+        for d in range(m):
+            rest[d] = X[i, columns[d]] - column_trend[d, i] - column_seasonal[d, i]
         for c in range(m):
             xc = pw[i] * X[i, columns[c]]
             right[c] += xc * (y[i] - trend[i] - seasonal[i])
             for d in range(m):
-                rest = X[i, columns[d]] - column_trend[d, i] - column_seasonal[d, i]
-                system[c, d] += xc * rest
+                system[c, d] += xc * rest[d]
     inverse = _inverse(system)
     solution = np.zeros(m)
     for c in range(m):
@@ -738,6 +740,38 @@ def _solve_given_weights(
             trend[i] -= solution[c] * column_trend[c, i]
             seasonal[i] -= solution[c] * column_seasonal[c, i]
     return True
+
+
+@njit(nogil=True, cache=True)
+def _weighted_least_squares(
+    z: np.ndarray, X: np.ndarray, w: np.ndarray, columns: np.ndarray, b: np.ndarray
+) -> None:
+    """``b[columns]``, the least squares of ``z`` on those columns weighted by ``w``, by
+    the normal equations as ``_fit_one`` (without its covariance, for the rounds between
+    a robust fit's first and last pass); ``b`` is left alone where they are singular."""
+    m = columns.size
+    gram = np.zeros((m, m))
+    right = np.zeros(m)
+    for i in range(z.shape[0]):
+        if w[i] <= 0.0 or np.isnan(z[i]):
+            continue
+        for c in range(m):
+            xc = w[i] * X[i, columns[c]]
+            right[c] += xc * z[i]
+            for d in range(c, m):
+                gram[c, d] += xc * X[i, columns[d]]
+    for c in range(m):
+        for d in range(c):
+            gram[c, d] = gram[d, c]
+    inverse = _inverse(gram)
+    solution = np.zeros(m)
+    for c in range(m):
+        for d in range(m):
+            solution[c] += inverse[c, d] * right[d]
+        if np.isnan(solution[c]):
+            return
+    for c in range(m):
+        b[columns[c]] = solution[c]
 
 
 @njit(nogil=True, cache=True)
@@ -756,6 +790,7 @@ def _robust_one(
     y: np.ndarray,
     X: np.ndarray,
     verdict: np.ndarray,
+    begin: np.ndarray,
     settings: np.ndarray,
     used: float,
     covariance: int,
@@ -771,7 +806,8 @@ def _robust_one(
 ) -> None:
     """One robust series (see ``robust_batch``); ``y``, ``X`` and the outputs are its own
     rows. ``verdict`` comes screened on the observed points and leaves screened on those
-    the last weights keep. ``found`` receives the residual variance, the confirming
+    the last weights keep; ``begin`` holds the coefficients to start from (NaN: solved
+    here). ``found`` receives the residual variance, the confirming
     rounds, 1.0 if they settled and the last round's largest move of the effect as a share
     of the values' standard deviation."""
     n = y.shape[0]
@@ -801,17 +837,37 @@ def _robust_one(
     mean = total / max(seen, 1)
     spread = np.sqrt(max(squares / max(seen, 1) - mean * mean, 0.0))
     spread = spread if spread > 0.0 else 1.0
+    screened = np.zeros(n, dtype=np.bool_)  # the points the columns were screened on
+    columns = np.flatnonzero(verdict == KEPT)
     for r in range(outer + 1):
-        # the columns on the points that keep weight: a weight of 0 on the leap-year
-        # Februaries leaves the period's length nothing to tell
-        verdict[:] = given
-        _screen_one(X, pw > 0.0, 0, n, period, used, verdict)
-        for j in range(k):
-            if verdict[j] != KEPT:
-                b[j] = 0.0
-        columns = np.flatnonzero(verdict == KEPT)
+        # the columns on the points that keep weight (a weight of 0 on the leap-year
+        # Februaries leaves the period's length nothing to tell), screened again whenever
+        # those points change
+        changed = r == 0
+        for i in range(n):
+            if (pw[i] > 0.0) != screened[i]:
+                changed = True
+                screened[i] = pw[i] > 0.0
+        if changed:
+            verdict[:] = given
+            _screen_one(X, screened, 0, n, period, used, verdict)
+            for j in range(k):
+                if verdict[j] != KEPT:
+                    b[j] = 0.0
+            columns = np.flatnonzero(verdict == KEPT)
         trend[:] = start
-        if r == 0 or r == outer:
+        given_start = r == 0 and columns.size > 0
+        for c in columns:
+            given_start = given_start and not np.isnan(begin[c])
+        if given_start:
+            # the first pass from the caller's start, which is where backfitting with
+            # unit weights settles (solved by the caller with the plain split's linear
+            # map, cheaper than here): the split of y - X b alone
+            for c in columns:
+                b[c] = begin[c]
+            _without_effect(y, X, b, rest)
+            inner_passes_given_weights(rest, pw, settings, trend, seasonal, buf)
+        elif r == 0 or r == outer:
             # the first pass (unit weights; from no effect at all, the points an effect
             # moves most would look like outliers) and the last (the answer's weights):
             # b where backfitting with these weights settles, solved directly
@@ -830,10 +886,7 @@ def _robust_one(
             inner_passes_given_weights(rest, pw, settings, trend, seasonal, buf)
             for i in range(n):
                 rest[i] = y[i] - trend[i] - seasonal[i]
-            _fit_one(rest, X, pw, 0, n, verdict == KEPT, used, PLAIN_COVARIANCE, coef, cov)
-            for c in columns:
-                if not np.isnan(coef[c]):
-                    b[c] = coef[c]
+            _weighted_least_squares(rest, X, pw, columns, b)
         if r == outer:
             break
         # the robustness weights from the whole remainder, as STL computes them
@@ -888,6 +941,7 @@ def _robust_range(
     offsets: np.ndarray,
     X: np.ndarray,
     verdict: np.ndarray,
+    begin: np.ndarray,
     settings: np.ndarray,
     used: np.ndarray,
     covariance: int,
@@ -910,7 +964,7 @@ def _robust_range(
         lo = offsets[s]
         hi = offsets[s + 1]
         _robust_one(
-            y[lo:hi], X[lo:hi], verdict[s], settings[s], used[s], covariance, tolerance,
+            y[lo:hi], X[lo:hi], verdict[s], begin[s], settings[s], used[s], covariance, tolerance,
             most_rounds, trend[lo:hi], seasonal[lo:hi], weight[lo:hi], effect[lo:hi],
             coef[s], cov[s], found[s],
         )  # fmt: skip
@@ -922,6 +976,7 @@ def _robust_parallel(
     offsets: np.ndarray,
     X: np.ndarray,
     verdict: np.ndarray,
+    begin: np.ndarray,
     settings: np.ndarray,
     used: np.ndarray,
     covariance: int,
@@ -939,7 +994,7 @@ def _robust_parallel(
     count = offsets.shape[0] - 1
     for c in prange(chunks):
         _robust_range(
-            y, offsets, X, verdict, settings, used, covariance, tolerance, most_rounds,
+            y, offsets, X, verdict, begin, settings, used, covariance, tolerance, most_rounds,
             c * count // chunks, (c + 1) * count // chunks, trend, seasonal, weight, effect,
             coef, cov, found,
         )  # fmt: skip
@@ -952,6 +1007,7 @@ def robust_batch(
     verdict: np.ndarray,
     settings: np.ndarray,
     used: np.ndarray,
+    start: np.ndarray | None = None,
     *,
     tolerance: float = 1e-8,
     most_rounds: int = 50,
@@ -983,6 +1039,9 @@ def robust_batch(
     settings : (series, N_SETTINGS) kernel settings; series with ``COL_ACTIVE`` 0 are left
         NaN.
     used : (series,) degrees of freedom the split takes (``split_degrees``).
+    start : (series, columns) coefficients where backfitting with the plain split
+        (unit weights, ``COL_OUTER`` 0) settles, from ``start_batch``; NaN or left out:
+        solved here with the series' own splits (the same to rounding).
     tolerance, most_rounds : the last pass is confirmed by rounds (split ``y - X b``,
         regress) until the effect moves by at most ``tolerance`` of the values' standard
         deviation, at most ``most_rounds`` of them.
@@ -1022,6 +1081,7 @@ def robust_batch(
         np.ascontiguousarray(offsets, dtype=np.int64),
         np.ascontiguousarray(X, dtype=np.float64),
         verdict,
+        np.full((count, k), np.nan) if start is None else np.ascontiguousarray(start, np.float64),
         np.ascontiguousarray(settings, dtype=np.int64),
         np.ascontiguousarray(used, dtype=np.float64),
         ROBUST_COVARIANCE,
