@@ -323,7 +323,9 @@ def test_fit_batch_equals_statsmodels_with_gaps_and_weights():
     cov = np.full((2, k, k), np.nan)
     scale = np.full(2, np.nan)
     plain = np.full(2, regression.PLAIN_COVARIANCE)
-    regression.fit_batch(z, offsets, X, w, kept, np.zeros(2), plain, np.ones(2, bool), coef, cov, scale)
+    regression.fit_batch(
+        z, offsets, X, w, kept, np.zeros(2), plain, np.ones(2, bool), coef, cov, scale
+    )
     for s, cols in ((0, [0, 1, 2, 3]), (1, [0, 1, 2])):
         rows = slice(s * n, (s + 1) * n)
         good = ~np.isnan(z[rows])
