@@ -3,8 +3,9 @@ and the backfitting loop that alternates the two.
 
 The model is ``value = X b + trend + seasonal + remainder``. It is fitted by backfitting
 (Hastie & Tibshirani 1990, *Generalized Additive Models*, chapter 4 (from memory)): split
-``value - X b`` with STL, regress ``value - trend - seasonal`` on ``X`` (weighted by the
-robustness weights when the split is robust), and repeat until ``b`` settles. Calendar
+``value - X b`` with STL, regress ``value - trend - seasonal`` on ``X``, and repeat until
+``b`` settles (``backfit``). With a robust split the robustness loop runs outside the
+backfitting, each pass with its weights held fixed (``robust_batch``). Calendar
 columns follow the regression approach to trading-day and moving-holiday effects of
 Bell & Hillmer (1983), "Modeling time series with calendar variation", JASA 78, 526-534:
 weekday counts in contrast form (each weekday's count minus Sunday's, so that the seven
@@ -579,8 +580,8 @@ def backfit(
     covariance : (series,) int, how the covariance is estimated (see ``fit_batch``);
         ``PLAIN_COVARIANCE`` for all when left out. (Robust splits are fitted by
         ``robust_batch``.)
-    start : (points,) the effect to start from (a non-robust fit, before a robust one);
-        zero when left out.
+    start : (points,) the effect to start from (where backfitting with the plain split
+        settles, ``start_batch``); zero when left out.
     tolerance : a series has settled when no fitted effect moved by more than this share
         of the spread (standard deviation) of its values in the last round.
     most_rounds : the cap on rounds.
@@ -1024,11 +1025,13 @@ def robust_batch(
     ``y - trend - seasonal`` on ``X`` are backfitted (in the first and the last pass to
     where they settle, solved directly: ``_solve_given_weights``; in between one round, as
     STL does one inner pass), and the weights come from the whole remainder
-    ``y - X b - trend - seasonal``. This is backfitting with the robustness iterations
-    outside the backfitting loop, as robust local scoring does (Hastie & Tibshirani 1990,
-    sections 6.5 and 9.2, from memory); the earlier route, a whole robust split inside
-    every round, recomputed the weights from scratch each time and settled slowly, if at
-    all. With no column kept it is STL's own robust loop, to the bit (tested).
+    ``y - X b - trend - seasonal``: the reweighting loop wraps the backfitting, as in
+    Hastie & Tibshirani's robust fits of additive models (1990, from memory). The earlier
+    route, a whole robust split inside every round, recomputed the weights from scratch
+    each time and often did not settle in 25 rounds; this one settles in the first
+    confirming round. With no column kept it is STL's own robust loop, to the bit
+    (tested). The first pass starts from ``start`` when given (the plain fit's solution,
+    which ``start_batch`` gets cheaply from the linear maps) and solves it otherwise.
 
     Parameters
     ----------
@@ -1057,14 +1060,16 @@ def robust_batch(
     Examples
     --------
     >>> from tidesplit.params import SplitParams
-    >>> row = SplitParams(period=4, robust=True).resolve().settings_row()
-    >>> x = np.tile([1.0, -1.0, 0.5, 0.0, 0.0, -0.5, 0.0, 0.0], 5)[:, None]
-    >>> y = np.tile([1.0, 2.0, 3.0, 4.0], 10) + 3.0 * x[:, 0]
-    >>> y[13] += 50.0  # an outlier
-    >>> out = robust_batch(y, np.array([0, 40]), x, np.zeros((1, 1), np.int64), row[None, :],
+    >>> row = SplitParams(period=12, robust=True).resolve().settings_row()
+    >>> rng = np.random.default_rng(1)
+    >>> x = rng.normal(size=(96, 1))
+    >>> t = np.arange(96)
+    >>> y = np.sin(t * np.pi / 6) + 0.02 * t + 2.0 * x[:, 0] + rng.normal(0, 0.1, 96)
+    >>> y[40] += 30.0  # an outlier
+    >>> out = robust_batch(y, np.array([0, 96]), x, np.zeros((1, 1), np.int64), row[None, :],
     ...                    np.zeros(1))
-    >>> round(float(out["coef"][0, 0]), 3), float(out["weight"][13])
-    (3.0, 0.0)
+    >>> round(float(out["coef"][0, 0]), 2), float(out["weight"][40]), bool(out["settled"][0])
+    (1.99, 0.0, True)
     """
     count = offsets.size - 1
     k = X.shape[1]
