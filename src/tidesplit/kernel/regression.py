@@ -826,17 +826,20 @@ def _robust_one(
     scratch = np.empty(n)
     given = verdict.copy()
     b = np.zeros(k)
+    # the spread the tolerance is measured against: the values' standard deviation
     total = 0.0
-    squares = 0.0
     seen = 0
     for i in range(n):
         pw[i] = 0.0 if np.isnan(y[i]) else 1.0
         if pw[i] > 0.0:
             seen += 1
             total += y[i]
-            squares += y[i] * y[i]
     mean = total / max(seen, 1)
-    spread = np.sqrt(max(squares / max(seen, 1) - mean * mean, 0.0))
+    squares = 0.0
+    for i in range(n):
+        if pw[i] > 0.0:
+            squares += (y[i] - mean) * (y[i] - mean)
+    spread = np.sqrt(squares / max(seen, 1))
     spread = spread if spread > 0.0 else 1.0
     screened = np.zeros(n, dtype=np.bool_)  # the points the columns were screened on
     columns = np.flatnonzero(verdict == KEPT)
