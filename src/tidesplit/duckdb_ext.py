@@ -41,6 +41,8 @@ from .status import OK
 from .tuning import PARALLEL_POINTS
 
 UDF_NAME = "__tide_split_series"
+# The split's columns that only regression effects fill (see _split_handler).
+EFFECT_PARTS = ("calendar_effect", "outside_effect", "adjusted_season_only")
 
 
 def udf_types(udf: str) -> list[tuple[str, str]]:
@@ -331,8 +333,14 @@ def _split_handler(call: _Call) -> pa.Array:
     count = len(call.null_rows)
     out_offsets = result.offsets
     nulls = call.null_rows if call.null_rows.any() else None
+    # without effects, their columns travel as NULL lists and the macro fills them in
+    # (0, or adjusted): each list of a point per row costs as much to build and unnest as
+    # any component, for numbers the macro knows already
+    plain = result.batch.coefficients is None
     fields = {
-        part: arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
+        part: pa.nulls(count, pa.list_(pa.float64()))
+        if plain and part in EFFECT_PARTS
+        else arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
         for part in COMPONENTS
     }
     if result.seasonal_parts is not None:

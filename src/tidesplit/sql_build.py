@@ -332,6 +332,13 @@ def _split_keys() -> str:
 -- and inserted times rebuilt from their codes; without, the input rows as they came.
 -- fill_gaps is a constant, so DuckDB folds the CASE and keeps one branch.
 CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, {signature}) AS TABLE
+-- Without effects the UDF leaves their columns NULL: 0 (NULL where the series was left
+-- unsplit, as trend is), and adjusted as it is.
+SELECT * REPLACE (
+    coalesce(calendar_effect, CASE WHEN trend IS NOT NULL THEN 0.0 END) AS calendar_effect,
+    coalesce(outside_effect, CASE WHEN trend IS NOT NULL THEN 0.0 END) AS outside_effect,
+    coalesce(adjusted_season_only, adjusted) AS adjusted_season_only)
+FROM (
 SELECT unnest(__key),
        unnest(CASE WHEN coalesce(fill_gaps, false)
                    THEN __tide_grid_time_rows(__parts.source, __parts.time_codes, __time_rows)
@@ -361,7 +368,7 @@ FROM (SELECT __key, __time_rows, __value_rows,
            (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, answer)
                                  || __tide_outside_clashes(keys, time, value, outside_columns)
                                  || checks) AS __ok) AS __checked
-      WHERE __checked.__ok);
+      WHERE __checked.__ok));
 """
 
 
