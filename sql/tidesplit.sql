@@ -428,7 +428,7 @@ CREATE OR REPLACE TEMP MACRO tide_profile(tbl, key VARCHAR, time VARCHAR, value 
 
 -- Points too far out to be noise (all rows with all_rows := true); every row
 -- of a series that could not be split, with its status.
-CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, rule := NULL, significance := NULL, threshold := NULL, all_rows := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_outliers_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := NULL, easter_days := NULL, holidays := NULL, outside_columns := NULL, on_error := NULL, rule := NULL, significance := NULL, threshold := NULL, all_rows := NULL) AS TABLE
 SELECT * FROM (
     SELECT unnest(__key),
            unnest(__time_rows, recursive := true),
@@ -462,14 +462,18 @@ SELECT * FROM (
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
+        TRY_CAST(calendar_effects AS VARCHAR),
+        TRY_CAST(easter_days AS DOUBLE),
+        TRY_CAST(holidays AS STRUCT(day DATE, name VARCHAR)[]),
+        TRY_CAST(outside_columns AS VARCHAR[]),
         TRY_CAST(on_error AS VARCHAR),
         TRY_CAST(rule AS VARCHAR),
         TRY_CAST(significance AS DOUBLE),
         TRY_CAST(threshold AS DOUBLE),
         TRY_CAST(all_rows AS BOOLEAN)) AS __o
-          FROM __tide_grouped(tbl, keys, time, value),
+          FROM __tide_grouped(tbl, keys, time, value, outside := outside_columns),
                (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['expected', 'remainder', 'score', 'direction', 'weight', 'is_outlier', 'status'])
-          || __tide_outside_clashes(keys, time, value, NULL)
+          || __tide_outside_clashes(keys, time, value, outside_columns)
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
              __tide_check_number('season_span', season_span),
              __tide_check_numbers('season_spans', season_spans),
@@ -487,22 +491,26 @@ SELECT * FROM (
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
+             __tide_check_text('calendar_effects', calendar_effects),
+             __tide_check_number('easter_days', easter_days),
+             __tide_check_days('holidays', holidays),
+             __tide_check_names('outside_columns', outside_columns),
              __tide_check_text('on_error', on_error), __tide_check_text('rule', rule),
              __tide_check_number('significance', significance),
              __tide_check_number('threshold', threshold), __tide_check_flag('all_rows', all_rows)]) AS __ok) AS __checked
           WHERE __checked.__ok))
 WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok');
 
-CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
+CREATE OR REPLACE TEMP MACRO tide_outliers(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := 'none', easter_days := NULL, holidays := NULL, outside_columns := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
+     FROM __tide_outliers_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, calendar_effects := calendar_effects, easter_days := easter_days, holidays := holidays, outside_columns := outside_columns, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := true, inner_loops := 2, outer_loops := 1, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := 'none', easter_days := NULL, holidays := NULL, outside_columns := NULL, on_error := 'raise', rule := 'stepwise', significance := NULL, threshold := NULL, all_rows := false) AS TABLE
     (SELECT * RENAME (__is_outlier AS is_outlier, __status AS status)
-     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows));
+     FROM __tide_outliers_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, calendar_effects := calendar_effects, easter_days := easter_days, holidays := holidays, outside_columns := outside_columns, on_error := on_error, rule := rule, significance := significance, threshold := threshold, all_rows := all_rows));
 
 -- Future rows per key, steps_ahead of them, with prediction intervals; a series that could not
 -- be split (on_error := 'keep') gives one row with its status and NULL forecasts.
-CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := NULL, steps_ahead := NULL, coverage := NULL, trend_model := NULL) AS TABLE
+CREATE OR REPLACE TEMP MACRO __tide_forecast_keys(tbl, keys, time, value, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := NULL, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := NULL, boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := NULL, easter_days := NULL, holidays := NULL, on_error := NULL, steps_ahead := NULL, coverage := NULL, trend_model := NULL) AS TABLE
 SELECT unnest(__key),
        unnest(__tide_time_rows(__f.time_codes, __time_rows), recursive := true),
        unnest(__f.steps_ahead) AS steps_ahead,
@@ -532,11 +540,14 @@ FROM (SELECT __key, __time_rows,
         TRY_CAST(transform AS VARCHAR),
         TRY_CAST(boxcox_lambda AS DOUBLE),
         TRY_CAST(boxcox_bounds AS DOUBLE[]),
+        TRY_CAST(calendar_effects AS VARCHAR),
+        TRY_CAST(easter_days AS DOUBLE),
+        TRY_CAST(holidays AS STRUCT(day DATE, name VARCHAR)[]),
         TRY_CAST(on_error AS VARCHAR),
         TRY_CAST(steps_ahead AS DOUBLE),
         TRY_CAST(coverage AS DOUBLE),
         TRY_CAST(trend_model AS VARCHAR)) AS __f
-      FROM __tide_grouped(tbl, keys, time, value),
+      FROM __tide_grouped(tbl, keys, time, value, outside := NULL),
            (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, ['steps_ahead', 'forecast', 'low', 'high', 'status'])
           || __tide_outside_clashes(keys, time, value, NULL)
           || [__tide_check_number('period', period), __tide_check_numbers('periods', periods),
@@ -556,16 +567,18 @@ FROM (SELECT __key, __time_rows,
              __tide_check_text('transform', transform),
              __tide_check_number('boxcox_lambda', boxcox_lambda),
              __tide_check_numbers('boxcox_bounds', boxcox_bounds),
-             __tide_check_text('on_error', on_error),
+             __tide_check_text('calendar_effects', calendar_effects),
+             __tide_check_number('easter_days', easter_days),
+             __tide_check_days('holidays', holidays), __tide_check_text('on_error', on_error),
              __tide_check_number('steps_ahead', steps_ahead),
              __tide_check_number('coverage', coverage),
              __tide_check_text('trend_model', trend_model)]) AS __ok) AS __checked
       WHERE __checked.__ok);
 
-CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model)),
-    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
-    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model));
+CREATE OR REPLACE TEMP MACRO tide_forecast(tbl, key VARCHAR, time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := 'none', easter_days := NULL, holidays := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, [key], time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, calendar_effects := calendar_effects, easter_days := easter_days, holidays := holidays, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model)),
+    (tbl, key VARCHAR[], time VARCHAR, value VARCHAR, by_name_only := NULL, period := NULL, periods := NULL, season_span := NULL, season_spans := NULL, trend_span := NULL, lowpass_span := NULL, season_degree := NULL, trend_degree := NULL, lowpass_degree := NULL, season_jump := NULL, trend_jump := NULL, lowpass_jump := NULL, robust := false, inner_loops := NULL, outer_loops := NULL, iterations := NULL, transform := 'none', boxcox_lambda := NULL, boxcox_bounds := NULL, calendar_effects := 'none', easter_days := NULL, holidays := NULL, on_error := 'raise', steps_ahead := 12, coverage := 0.95, trend_model := 'damped') AS TABLE
+    (SELECT * FROM __tide_forecast_keys(tbl, key, time, value, period := __tide_by_name(by_name_only, period), periods := periods, season_span := season_span, season_spans := season_spans, trend_span := trend_span, lowpass_span := lowpass_span, season_degree := season_degree, trend_degree := trend_degree, lowpass_degree := lowpass_degree, season_jump := season_jump, trend_jump := trend_jump, lowpass_jump := lowpass_jump, robust := robust, inner_loops := inner_loops, outer_loops := outer_loops, iterations := iterations, transform := transform, boxcox_lambda := boxcox_lambda, boxcox_bounds := boxcox_bounds, calendar_effects := calendar_effects, easter_days := easter_days, holidays := holidays, on_error := on_error, steps_ahead := steps_ahead, coverage := coverage, trend_model := trend_model));
 
 -- A sample of keys split again by statsmodels under the same settings: the largest
 -- difference of each component, or why statsmodels cannot follow.

@@ -149,8 +149,10 @@ def test_arguments_checked():
             arguments.accept("split", {"holidays": bad})
     with pytest.raises(ParamError, match="two effects are named 'Easter'"):
         effects.request({"calendar_effects": "easter", "outside_columns": ("Easter",)})
-    with pytest.raises(ParamError, match="unknown argument outside_columns of tide_outliers"):
-        arguments.accept("outliers", {"outside_columns": ["price"]})
+    with pytest.raises(ParamError, match="unknown argument outside_columns of tide_forecast"):
+        arguments.accept("forecast", {"outside_columns": ["price"]})
+    with pytest.raises(ParamError, match="unknown argument holidays of tide_audit"):
+        arguments.accept("audit", {"holidays": []})
 
 
 # ------------------------------------------------------------------- the fit
@@ -460,3 +462,87 @@ def test_effects_refused_with_several_periods():
     frame = simulated_days(1)
     with pytest.raises(ParamError, match="unknown argument outside_columns of tide_split_multi"):
         api.split_table(frame, "shop", "day", "sales", periods=[7], outside_columns=["price"])
+
+
+# ------------------------------------------------------------------- the answers
+
+
+def test_outliers_expect_the_holidays_and_promotions():
+    # the demo's holidays and promotions are days unlike the others, but not unusual ones
+    # once they are fitted: the stepwise rule reads the remainder without them
+    from tidesplit.examples import retail_chain
+
+    table = retail_chain.daily_takings(shops=4)
+    holidays = retail_chain.chain_holidays()
+    holiday_days = set(holidays.column("day").to_pylist())
+    plain = api.outliers(table, "shop", "day", "takings", transform="log", all_rows=True)
+    fitted = api.outliers(table, "shop", "day", "takings", transform="log", holidays=holidays,
+                          outside_columns=["promotion"], all_rows=True)  # fmt: skip
+    on_holidays = plain["is_outlier"] & plain["day"].isin(holiday_days)
+    assert on_holidays.sum() >= 12  # of 24 holiday points, without the effects
+    assert not (fitted["is_outlier"] & fitted["day"].isin(holiday_days)).any()
+    assert fitted["is_outlier"].sum() < 0.2 * plain["is_outlier"].sum()
+    # the expected value holds the effects: on a holiday it is far from the plain one's
+    day = fitted["day"].isin(holiday_days) & (fitted["shop"] == fitted["shop"].iloc[0])
+    ratio = fitted.loc[day, "expected"].to_numpy() / plain.loc[day, "expected"].to_numpy()
+    assert (np.abs(np.log(ratio)) > 0.2).all()
+    con = tidesplit.connect()
+    con.register("takings", table)
+    con.register("chain_days", holidays)
+    sql = con.sql(
+        "SELECT * FROM tide_outliers('takings', 'shop', 'day', 'takings', transform := 'log', "
+        "holidays := (SELECT list(struct_pack(day := day, name := name)) FROM chain_days), "
+        "outside_columns := ['promotion'], all_rows := true) ORDER BY shop, day"
+    ).df()
+    assert np.array_equal(sql["expected"].to_numpy(), fitted["expected"].to_numpy())
+    assert np.array_equal(sql["is_outlier"].to_numpy(), fitted["is_outlier"].to_numpy())
+
+
+def test_forecast_adds_the_calendar_ahead():
+    # monthly takings with weekday and Easter effects: the forecast is that of the series
+    # without its effects, plus the coefficients times the calendar columns of the future
+    # months, written out here from effects.calendar_columns
+    from tidesplit.examples import retail_chain
+
+    table = retail_chain.monthly_takings(shops=3)
+    given = {"calendar_effects": "weekdays, easter", "steps_ahead": 14}
+    ahead = api.forecast(table, "shop", "month", "takings", **given)
+    found = api.profile(table, "shop", "month", "takings", calendar_effects="weekdays, easter")
+    split = api.split_table(table, "shop", "month", "takings", calendar_effects="weekdays, easter")
+    request = effects.Request(calendar=("weekdays", "easter"))
+    for shop in found["shop"]:
+        rows = found.loc[found["shop"] == shop, "effects"].iloc[0]
+        coef = np.array([r["coefficient"] for r in rows if r["name"] != "weekday_sunday"])
+        mine = ahead[ahead["shop"] == shop]
+        months = mine["month"].to_numpy().astype("datetime64[M]").astype(np.int64)
+        calendar_ahead = effects.calendar_columns(request, months, 1, False) @ coef
+        # the same forecast of the series without its effects, through split_table's
+        # components: value - effect, forecast by the same rule
+        own = split[split["shop"] == shop]
+        frame = pd.DataFrame({"shop": shop, "month": own["month"],
+                              "v": own["takings"] - own["calendar_effect"]})  # fmt: skip
+        without = api.forecast(frame, "shop", "month", "v", steps_ahead=14)
+        assert np.allclose(mine["forecast"], without["forecast"].to_numpy() + calendar_ahead,
+                           rtol=1e-9)  # fmt: skip
+        # April 2025 holds Easter's window (Easter Sunday on 20 April, a published date):
+        # the demo's Easter rush lifts it above its average April, and March 2025 below
+        april = mine["month"].astype(str).str.startswith("2025-04").to_numpy()
+        march = mine["month"].astype(str).str.startswith("2025-03").to_numpy()
+        easter = coef[-1] * effects.calendar_columns(request, months, 1, False)[:, -1]
+        assert easter[april][0] > 0.2 * coef[-1] and easter[march][0] < 0
+
+
+def test_forecast_has_holidays_ahead_and_no_outside_columns():
+    from tidesplit.examples import retail_chain
+
+    table = retail_chain.daily_takings(shops=2)
+    holidays = retail_chain.chain_holidays(2021, 4)  # 2024 too: known ahead
+    ahead = api.forecast(table, "shop", "day", "takings", transform="log", steps_ahead=80,
+                         holidays=holidays)  # fmt: skip
+    plain = api.forecast(table, "shop", "day", "takings", transform="log", steps_ahead=80)
+    founders = ahead["day"] == pd.Timestamp("2024-03-14").date()
+    ratio = ahead.loc[founders, "forecast"].to_numpy() / plain.loc[founders, "forecast"].to_numpy()
+    # the demo took 45% off Founders' Day (log 0.55 = -0.60); within 0.15 of it
+    assert np.all(np.abs(np.log(ratio) - np.log(0.55)) < 0.15)
+    with pytest.raises(ParamError, match="unknown argument outside_columns of tide_forecast"):
+        api.forecast(table, "shop", "day", "takings", outside_columns=["promotion"])

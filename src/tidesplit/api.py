@@ -571,7 +571,7 @@ def outliers(
     ('high', 10.0)
     """
     settings = _settings(OUTLIERS, period, given)
-    table = _Table(data, key, time, value, answers.OUTLIERS)
+    table = _Table(data, key, time, value, answers.OUTLIERS, settings.get("outside_columns"))
     result = table.split(settings, fill_gaps=True)
     found = unusual.unusual_points(
         result,
@@ -624,7 +624,7 @@ def forecast(
         settings["steps_ahead"], settings["coverage"], settings["trend_model"]
     )
     on_error = settings["on_error"]
-    table = _Table(data, key, time, value, answers.FORECAST)
+    table = _Table(data, key, time, value, answers.FORECAST, settings.get("outside_columns"))
     result = table.split(settings, fill_gaps=True)
     ahead = forecast_ahead.forecast(
         result,
@@ -634,6 +634,7 @@ def forecast(
         level,
         method,
         params=SplitParams.from_settings(settings),
+        effects=effects_front.request(settings),
     )
     ok = forecast_ahead.settle_forecast(result, ahead, on_error, table.label)
     # steps_ahead rows per series; one row beside the status of a series left unsplit

@@ -32,8 +32,10 @@ _ANSWERS = (PROFILE, OUTLIERS, FORECAST, AUDIT)
 _ONE_PERIOD = (SPLIT, SPLIT_LIST, *_ANSWERS)
 _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
-# the functions that fit regression effects beside the split
-_EFFECTS = (SPLIT, PROFILE)
+# the functions that fit regression effects beside the split; the forecast takes those
+# known ahead (the calendar's), not outside columns, whose future values it has not
+_EFFECTS = (SPLIT, PROFILE, OUTLIERS, FORECAST)
+_OUTSIDE = (SPLIT, PROFILE, OUTLIERS)
 
 # What an argument holds: how SQL declares and checks it, how Python checks it.
 WHOLE = "whole number"
@@ -269,7 +271,7 @@ REGISTRY: tuple[Argument, ...] = (
         NAME_LIST,
         "numeric (or true/false) columns of the input fitted beside the split, one "
         "coefficient each (price, promotion, temperature); their effect is `outside_effect`",
-        _EFFECTS,
+        _OUTSIDE,
         default_text="none",
         decomposition=False,
         most=50,

@@ -59,6 +59,7 @@ class BatchResult:
     outside_effect: np.ndarray | None = None  # the outside columns' effect per point
     adjusted_season_only: np.ndarray | None = None
     coefficients: list[list[tuple[str, float, float, float]] | None] | None = None
+    effect_coef: np.ndarray | None = None  # series x design columns (NaN: not fitted)
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -795,6 +796,7 @@ def _add_effects(
     result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
     result.calendar_effect = calendar_part
     result.outside_effect = outside_part
+    result.effect_coef = np.where(ok[:, None], fitted.coef, np.nan)
     result.adjusted_season_only = result.adjusted.copy()
     adjusted = y - result.seasonal - calendar_part
     if back is not None:

@@ -505,8 +505,9 @@ def _forecast_handler(call: _Call) -> pa.Array:
     )
     result = call.split(fill_gaps=True)
     ahead = forecast_ahead.forecast(
-        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
-    )
+        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params,
+        effects=effects_front.request(call.settings),
+    )  # fmt: skip
     ok = forecast_ahead.settle_forecast(result, ahead, call.on_error, call.label)
     # steps_ahead rows per series; one row of NULLs beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)

@@ -442,7 +442,7 @@ CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, {inner[
 SELECT unnest(__key), unnest(__p)
 FROM (SELECT __key,
              {_udf_call(_LEAD_CALL, PROFILE)} AS __p
-      FROM __tide_grouped(tbl, keys, time, value, outside := outside_columns),
+      FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(PROFILE)}),
            {_refusals(PROFILE, answers.PROFILE)}
       WHERE __checked.__ok);
 
@@ -466,7 +466,7 @@ SELECT * FROM (
            __o.status AS __status
     FROM (SELECT __key, __time_rows, __value_rows,
                  {_udf_call(_LEAD_CALL, OUTLIERS)} AS __o
-          FROM __tide_grouped(tbl, keys, time, value),
+          FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(OUTLIERS)}),
                {_refusals(OUTLIERS, answers.OUTLIERS)}
           WHERE __checked.__ok))
 WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok');
@@ -489,7 +489,7 @@ SELECT unnest(__key),
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              {_udf_call(_LEAD_CALL, FORECAST)} AS __f
-      FROM __tide_grouped(tbl, keys, time, value),
+      FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(FORECAST)}),
            {_refusals(FORECAST, answers.FORECAST)}
       WHERE __checked.__ok);
 
