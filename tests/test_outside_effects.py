@@ -546,3 +546,37 @@ def test_forecast_has_holidays_ahead_and_no_outside_columns():
     assert np.all(np.abs(np.log(ratio) - np.log(0.55)) < 0.15)
     with pytest.raises(ParamError, match="unknown argument outside_columns of tide_forecast"):
         api.forecast(table, "shop", "day", "takings", outside_columns=["promotion"])
+
+
+def test_publish_carries_the_effects(tmp_path):
+    # a publish with holidays and an outside column: the published components equal
+    # tide_split's, calendar effect and all, read back with plain DuckDB
+    import duckdb
+    from tidesplit.examples import retail_chain
+
+    from tidesplit.cli import main
+
+    database = str(tmp_path / "shops.duckdb")
+    con = duckdb.connect(database)
+    con.register("rows", retail_chain.daily_takings(shops=3, years=2))
+    con.execute("CREATE TABLE raw AS SELECT * FROM rows")
+    con.close()
+    holidays = tmp_path / "holidays.csv"
+    retail_chain.chain_holidays(2021, 2).to_pandas().to_csv(holidays, index=False)
+    code = main(["publish", "--from", f"{database}:raw", "--to", database, "--key", "shop",
+                 "--time", "day", "--value", "takings", "--transform", "log", "--holidays",
+                 str(holidays), "--outside-columns", "promotion", "--quiet"])  # fmt: skip
+    assert code in (0, None)
+    con = duckdb.connect(database, read_only=True)
+    published = con.sql("SELECT * FROM components ORDER BY shop, day").df()
+    adjusted = con.sql("SELECT adjusted FROM adjusted_series ORDER BY shop, day").df()
+    con.close()
+    direct = api.split_table(
+        retail_chain.daily_takings(shops=3, years=2), "shop", "day", "takings",
+        transform="log", holidays=retail_chain.chain_holidays(2021, 2),
+        outside_columns=["promotion"],
+    )  # fmt: skip
+    for name in ("calendar_effect", "outside_effect", "adjusted", "trend"):
+        assert np.array_equal(published[name].to_numpy(), direct[name].to_numpy())
+    assert np.array_equal(adjusted["adjusted"].to_numpy(), direct["adjusted"].to_numpy())
+    assert (published["calendar_effect"].abs() > 0.1).sum() == 3 * 4  # 4 holidays a shop
