@@ -56,8 +56,10 @@ class BatchResult:
     # value without its seasonal part only, and per series its coefficients as
     # (name, coefficient, standard error, t-value); None where no effects were asked.
     calendar_effect: np.ndarray | None = None
+    outside_effect: np.ndarray | None = None  # the outside columns' effect per point
     adjusted_season_only: np.ndarray | None = None
     coefficients: list[list[tuple[str, float, float, float]] | None] | None = None
+    effect_coef: np.ndarray | None = None  # series x design columns (NaN: not fitted)
 
     def series(self, i: int) -> slice:
         return slice(int(self.offsets[i]), int(self.offsets[i + 1]))
@@ -433,6 +435,7 @@ def split_batch(
         _add_effects(result, y, fitted, design, plan, ok, back, status, describe_point)
     else:
         result.calendar_effect = np.where(np.isnan(trend), np.nan, 0.0)
+        result.outside_effect = result.calendar_effect
         result.adjusted_season_only = result.adjusted
     return result
 
@@ -818,18 +821,21 @@ def _add_effects(
     status: list[str],
     describe_point: Callable[[int, int], str] | None,
 ) -> None:
-    """The effects' columns, the remainder without them, adjusted without the calendar
-    effect, the coefficients, and a note for each column dropped."""
+    """The effects' columns (calendar, outside), the remainder without them, adjusted
+    without the calendar effect, the coefficients, and a note for each column dropped."""
     lengths = np.diff(result.offsets)
     rows_ok = np.repeat(ok, lengths)
     width = design.calendar_width
-    calendar_part = np.full(y.size, np.nan)
-    regression.effect_of(
-        np.ascontiguousarray(design.X[:, :width]), result.offsets,
-        np.ascontiguousarray(fitted.coef[:, :width]), ok, calendar_part,
-    )  # fmt: skip
+    calendar_part, outside_part = np.full(y.size, np.nan), np.full(y.size, np.nan)
+    for part, columns in ((calendar_part, slice(0, width)), (outside_part, slice(width, None))):
+        regression.effect_of(
+            np.ascontiguousarray(design.X[:, columns]), result.offsets,
+            np.ascontiguousarray(fitted.coef[:, columns]), ok, part,
+        )  # fmt: skip
     result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
     result.calendar_effect = calendar_part
+    result.outside_effect = outside_part
+    result.effect_coef = np.where(ok[:, None], fitted.coef, np.nan)
     result.adjusted_season_only = result.adjusted.copy()
     adjusted = y - result.seasonal - calendar_part
     if back is not None:
