@@ -442,8 +442,6 @@ def test_arguments_checked():
     with pytest.raises(ParamError, match="easter_days must be at most 30"):
         api.split_table(frame, "key", "month", "value", calendar_effects="easter",
                         easter_days=40)  # fmt: skip
-    with pytest.raises(ParamError, match="unknown argument calendar_effects of tide_forecast"):
-        api.forecast(frame, "key", "month", "value", calendar_effects="weekdays")
     with pytest.raises(ParamError, match="unknown argument calendar_effects of tide_split_multi"):
         api.split_table(frame, "key", "month", "value", periods=[12],
                         calendar_effects="weekdays")  # fmt: skip
@@ -822,3 +820,21 @@ def test_robust_many_keys_in_one_call_equal_each_alone():
         mine = together[together["key"] == key]
         for name in ("trend", "seasonal", "calendar_effect", "remainder", "weight"):
             assert np.array_equal(mine[name], alone[name], equal_nan=True), (key, name)
+
+
+def test_robust_fit_with_holidays_and_outside_columns():
+    # any number of columns: two holidays and two outside columns on daily series (the
+    # other module's simulation, effects known), some days far out
+    from test_outside_effects import HOLIDAYS, TRUE, simulated_days
+
+    frame = simulated_days(3, seed=2)
+    far = np.random.default_rng(2).choice(len(frame), 40, replace=False)
+    frame.loc[far, "sales"] += 40.0
+    asked = dict(holidays=HOLIDAYS, outside_columns=["price", "promo"], robust=True)
+    found = api.profile(frame, "shop", "day", "sales", **asked)
+    out = api.split_table(frame, "shop", "day", "sales", **asked)
+    assert (found["status"] == "ok").all()
+    assert (out["weight"].iloc[far] < 0.5).mean() > 0.9
+    for rows in found["effects"]:
+        for r in rows:
+            assert abs(r["coefficient"] - TRUE[r["name"]]) <= 4 * r["std_error"], r
