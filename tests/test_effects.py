@@ -838,3 +838,16 @@ def test_robust_fit_with_holidays_and_outside_columns():
     for rows in found["effects"]:
         for r in rows:
             assert abs(r["coefficient"] - TRUE[r["name"]]) <= 4 * r["std_error"], r
+
+
+def test_robust_series_without_columns_split_as_without_effects():
+    # daily dates take no calendar columns: the robust fit is the robust split, to the bit
+    days = pd.date_range("2021-01-01", periods=70, freq="D")
+    t = np.arange(70)
+    value = 10 + np.sin(2 * np.pi * t / 7) + 0.01 * t + np.where(t == 30, 5.0, 0.0)
+    frame = pd.DataFrame({"k": "a", "d": days, "v": value})
+    out = api.split_table(frame, "k", "d", "v", calendar_effects="weekdays", robust=True)
+    plain = api.split_table(frame, "k", "d", "v", robust=True)
+    assert out["status"].iloc[0].startswith("ok; no calendar effects")
+    for name in ("trend", "seasonal", "remainder", "adjusted", "weight"):
+        assert np.array_equal(out[name], plain[name]), name
