@@ -580,3 +580,27 @@ def test_publish_carries_the_effects(tmp_path):
         assert np.array_equal(published[name].to_numpy(), direct[name].to_numpy())
     assert np.array_equal(adjusted["adjusted"].to_numpy(), direct["adjusted"].to_numpy())
     assert (published["calendar_effect"].abs() > 0.1).sum() == 3 * 4  # 4 holidays a shop
+
+
+def test_a_constant_or_collinear_outside_column_is_dropped_for_its_series_only():
+    # one shop never ran a promotion (a constant column), another priced in step with a
+    # second column (collinear): each loses that column with a note, the query goes on and
+    # the other shops keep every coefficient
+    frame = simulated_days(4, seed=9)
+    noise = np.random.default_rng(1).normal(0, 0.3, len(frame))
+    frame["cost"] = frame["price"] * 0.5 + noise
+    frame.loc[frame["shop"] == "s001", "promo"] = False
+    two = frame["shop"] == "s002"
+    frame.loc[two, "cost"] = 2.0 * frame.loc[two, "price"] + 1.0
+    found = api.profile(frame, "shop", "day", "sales", outside_columns=["price", "promo", "cost"])
+    status = dict(zip(found["shop"], found["status"], strict=True))
+    names = {
+        shop: [row["name"] for row in rows]
+        for shop, rows in zip(found["shop"], found["effects"], strict=True)
+    }
+    assert status["s001"] == "ok; promo dropped: it does not vary beyond the seasonal pattern"
+    assert names["s001"] == ["price", "cost"]
+    assert status["s002"] == "ok; cost dropped: it is a combination of the effects before it"
+    assert names["s002"] == ["price", "promo"]
+    assert status["s000"] == status["s003"] == "ok"
+    assert names["s000"] == names["s003"] == ["price", "promo", "cost"]
