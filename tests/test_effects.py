@@ -442,9 +442,8 @@ def test_arguments_checked():
     with pytest.raises(ParamError, match="easter_days must be at most 30"):
         api.split_table(frame, "key", "month", "value", calendar_effects="easter",
                         easter_days=40)  # fmt: skip
-    with pytest.raises(ParamError, match="unknown argument calendar_effects of tide_split_multi"):
-        api.split_table(frame, "key", "month", "value", periods=[12],
-                        calendar_effects="weekdays")  # fmt: skip
+    with pytest.raises(ParamError, match="unknown argument calendar_effects of tide_audit"):
+        api.audit(frame, "key", "month", "value", calendar_effects="weekdays")
 
 
 def test_sql_equals_python():

@@ -458,12 +458,6 @@ def test_regression_fit_with_outside_columns_matches_weighted_least_squares():
         assert np.abs(np.sqrt(np.diag(cov[s])) / fit.bse - 1).max() < 1e-9
 
 
-def test_effects_refused_with_several_periods():
-    frame = simulated_days(1)
-    with pytest.raises(ParamError, match="unknown argument outside_columns of tide_split_multi"):
-        api.split_table(frame, "shop", "day", "sales", periods=[7], outside_columns=["price"])
-
-
 # ------------------------------------------------------------------- the answers
 
 
@@ -604,3 +598,75 @@ def test_a_constant_or_collinear_outside_column_is_dropped_for_its_series_only()
     assert names["s002"] == ["price", "promo"]
     assert status["s000"] == status["s003"] == "ok"
     assert names["s000"] == names["s003"] == ["price", "promo", "cost"]
+
+
+# ------------------------------------------------------------------- several periods
+
+
+def simulated_hours(series: int, seed: int = 3) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Hourly series with a daily and a weekly cycle, two holidays (whole days) and a
+    temperature of known effects, Gaussian noise of sd 1; and the holiday table."""
+    rng = np.random.default_rng(seed)
+    hours = pd.date_range("2023-01-01", periods=24 * 7 * 20, freq="h")
+    n = hours.size
+    holidays = pd.DataFrame({"day": pd.to_datetime(["2023-02-14", "2023-03-20", "2023-04-07"]).date,
+                             "name": ["carnival", "spring", "spring"]})  # fmt: skip
+    carnival = np.isin(hours.date, holidays["day"][:1])
+    spring = np.isin(hours.date, holidays["day"][1:])
+    frames = []
+    for s in range(series):
+        temperature = rng.normal(0, 1, n)
+        value = (
+            100 + 10 * np.sin(2 * np.pi * np.arange(n) / 24)
+            + 5 * np.sin(2 * np.pi * np.arange(n) / 168)
+            - 8 * carnival + 6 * spring + 2 * temperature + rng.normal(0, 1, n)
+        )  # fmt: skip
+        frames.append(pd.DataFrame({"meter": f"m{s:02d}", "t": hours, "load": value,
+                                    "temperature": temperature}))  # fmt: skip
+    return pd.concat(frames, ignore_index=True), holidays
+
+
+def test_several_periods_recover_the_effects():
+    # 40 hourly series with periods 24 and 168 (MSTL); the degrees of freedom of the split
+    # estimated from random probes (Hutchinson 1989). Measured: 65% of the 120 coefficients
+    # within one standard error and 92.5% within two (normal: 68% and 95%)
+    frame, holidays = simulated_hours(40)
+    given = {"periods": [24, 168], "holidays": holidays, "outside_columns": ["temperature"]}
+    out = api.split_table(frame, "meter", "t", "load", **given)
+    found = api.profile(frame, "meter", "t", "load", **given)
+    truth = {"carnival": -8.0, "spring": 6.0, "temperature": 2.0}
+    z = np.abs([(r["coefficient"] - truth[r["name"]]) / r["std_error"]
+                for rows in found["effects"] for r in rows])  # fmt: skip
+    assert z.size == 120
+    assert 0.55 <= (z < 1).mean() <= 0.8 and (z < 2).mean() >= 0.88
+    parts = out["seasonal_period_24"] + out["seasonal_period_168"]
+    assert np.allclose(parts, out["seasonal"])
+    total = out["trend"] + out["seasonal"] + out["calendar_effect"] + out["outside_effect"]
+    assert np.abs(total + out["remainder"] - out["load"]).max() < 1e-9
+    # the weekly part is free of the holidays: on a holiday its value is that of the same
+    # hour of the week before and after, within the noise
+    spring_day = out["t"].dt.date == pd.Timestamp("2023-03-20").date()
+    week = out.loc[spring_day, "seasonal_period_168"].to_numpy()
+    before = out.loc[out["t"].isin(out.loc[spring_day, "t"] - pd.Timedelta(days=7)),
+                     "seasonal_period_168"].to_numpy()  # fmt: skip
+    assert np.abs(week - before).max() < 1.0
+
+
+def test_several_periods_sql_equals_python_and_robust_is_refused():
+    frame, holidays = simulated_hours(3, seed=4)
+    con = tidesplit.connect()
+    con.register("loads", pa.Table.from_pandas(frame, preserve_index=False))
+    con.register("holiday_rows", pa.Table.from_pandas(holidays))
+    sql = con.sql(
+        "SELECT * FROM tide_split_multi('loads', 'meter', 't', 'load', periods := [24, 168], "
+        "holidays := (SELECT list(struct_pack(day := day, name := name)) FROM holiday_rows), "
+        "outside_columns := ['temperature']) ORDER BY meter, t"
+    ).df()
+    python = api.split_table(frame, "meter", "t", "load", periods=[24, 168], holidays=holidays,
+                             outside_columns=["temperature"])  # fmt: skip
+    for name in ("trend", "seasonal", "calendar_effect", "outside_effect", "remainder"):
+        assert np.array_equal(sql[name].to_numpy(), python[name].to_numpy())
+    with pytest.raises(ParamError, match="regression effects with several periods are fitted "
+                       "without robustness"):  # fmt: skip
+        api.split_table(frame, "meter", "t", "load", periods=[24, 168], robust=True,
+                        outside_columns=["temperature"])  # fmt: skip

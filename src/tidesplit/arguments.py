@@ -34,8 +34,8 @@ _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
 # the functions that fit regression effects beside the split; the forecast takes those
 # known ahead (the calendar's), not outside columns, whose future values it has not
-_EFFECTS = (SPLIT, PROFILE, OUTLIERS, FORECAST)
-_OUTSIDE = (SPLIT, PROFILE, OUTLIERS)
+_EFFECTS = (SPLIT, SPLIT_MULTI, PROFILE, OUTLIERS, FORECAST)
+_OUTSIDE = (SPLIT, SPLIT_MULTI, PROFILE, OUTLIERS)
 
 # What an argument holds: how SQL declares and checks it, how Python checks it.
 WHOLE = "whole number"
