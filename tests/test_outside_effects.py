@@ -629,7 +629,7 @@ def simulated_hours(series: int, seed: int = 3) -> tuple[pd.DataFrame, pd.DataFr
 def test_several_periods_recover_the_effects():
     # 40 hourly series with periods 24 and 168 (MSTL); the degrees of freedom of the split
     # estimated from random probes (Hutchinson 1989). Measured: 65% of the 120 coefficients
-    # within one standard error and 92.5% within two (normal: 68% and 95%)
+    # within one standard error and 94.2% within two (normal: 68% and 95%)
     frame, holidays = simulated_hours(40)
     given = {"periods": [24, 168], "holidays": holidays, "outside_columns": ["temperature"]}
     out = api.split_table(frame, "meter", "t", "load", **given)
