@@ -195,3 +195,75 @@ def monthly_takings(shops: int = 12, years: int = 8, seed: int = 11) -> pa.Table
             "takings": pa.array(np.concatenate(take_col)),
         }
     )
+
+
+# The chain's own days: on Founders' Day (14 March) the shops open only in the morning,
+# and Lantern Night (the last Friday of October) brings the late crowds. A promotion day
+# (a shop's own, about one day in twelve) sells this much more.
+HOLIDAY_LIFT = {"founders_day": -0.45, "lantern_night": 0.5}
+PROMOTION_LIFT = 0.3
+PROMOTION_SHARE = 1 / 12
+
+
+def chain_holidays(first_year: int = 2021, years: int = 3) -> pa.Table:
+    """The chain's holidays as a table of ``day`` (DATE) and ``name``: what
+    ``holidays := (SELECT list(struct_pack(day := day, name := name)) FROM ...)`` takes.
+
+    >>> chain_holidays(2021, 1).to_pylist()[1]
+    {'day': datetime.date(2021, 10, 29), 'name': 'lantern_night'}
+    """
+    days, names = [], []
+    for year in range(first_year, first_year + years):
+        days.append(np.datetime64(f"{year}-03-14"))
+        names.append("founders_day")
+        october_end = np.datetime64(f"{year}-10-31")
+        weekday = (october_end.astype(np.int64) + 3) % 7  # 0 is Monday
+        days.append(october_end - (weekday - 4) % 7)  # the last Friday
+        names.append("lantern_night")
+    return pa.table({"day": pa.array(np.array(days, dtype="datetime64[D]")), "name": names})
+
+
+def daily_takings(shops: int = 8, years: int = 3, seed: int = 23) -> pa.Table:
+    """Daily takings per shop: columns shop, day (DATE), takings and promotion (true on a
+    shop's promotion days).
+
+    Each day has the shops' week (``WEEKDAY_LIFT``), a yearly swing, the chain's holidays
+    (``HOLIDAY_LIFT``, days from ``chain_holidays``) and the shop's promotions
+    (``PROMOTION_LIFT``): what ``holidays`` and ``outside_columns := ['promotion']`` take
+    out, on the log scale.
+
+    >>> table = daily_takings(shops=2, years=1)
+    >>> table.column_names, table.num_rows
+    (['shop', 'day', 'takings', 'promotion'], 730)
+    """
+    rng = np.random.default_rng(seed)
+    first_year = 2021
+    days = np.arange(
+        np.datetime64(f"{first_year}-01-01", "D"), np.datetime64(f"{first_year + years}-01-01", "D")
+    )
+    day_numbers = days.astype(np.int64)
+    lift = np.array(list(WEEKDAY_LIFT.values()))[(day_numbers + 3) % 7]
+    holidays = chain_holidays(first_year, years)
+    holiday_days = holidays.column("day").to_numpy().astype("datetime64[D]")
+    for day, name in zip(holiday_days, holidays.column("name").to_pylist(), strict=True):
+        lift = lift * np.where(days == day, 1.0 + HOLIDAY_LIFT[name], 1.0)
+    day_of_year = (days - days.astype("datetime64[Y]")).astype(np.int64)
+    shop_col, day_col, take_col, promo_col = [], [], [], []
+    for s in range(shops):
+        level = rng.uniform(300, 900)
+        season = np.exp(0.2 * np.cos(2 * np.pi * (day_of_year - rng.integers(150, 350)) / 365.25))
+        promotion = rng.random(days.size) < PROMOTION_SHARE
+        daily = level * season * lift * (1.0 + PROMOTION_LIFT * promotion)
+        daily *= np.exp(rng.normal(0.0, 0.06, days.size))
+        shop_col += [_name(SHOP_NAMES, s)] * days.size
+        day_col.append(days)
+        take_col.append(np.round(daily, 2))
+        promo_col.append(promotion)
+    return pa.table(
+        {
+            "shop": pa.array(shop_col),
+            "day": pa.array(np.concatenate(day_col)),
+            "takings": pa.array(np.concatenate(take_col)),
+            "promotion": pa.array(np.concatenate(promo_col)),
+        }
+    )

@@ -422,3 +422,31 @@ def test_calendar_effects_equal_duckdb(con, demo_tables):
             left.column(name).to_numpy(), right.column(name).to_numpy(), rtol=1e-9, atol=1e-9
         )
     assert left.column("status").to_pylist() == right.column("status").to_pylist()
+
+
+def test_holidays_and_outside_columns_equal_duckdb(spark, con):
+    # the demo's daily takings with the chain's holidays and each shop's promotions: the
+    # split and the profile's coefficients as DuckDB gives them (daily series of three
+    # years take the loops in both, so the numbers are the same to the bit)
+    table = retail_chain.daily_takings(shops=5, years=2)
+    holidays = retail_chain.chain_holidays(2021, 2)
+    con.register("daily", table)
+    con.register("chain_days", holidays)
+    days = "(SELECT list(struct_pack(day := day, name := name)) FROM chain_days)"
+    frame = spark.createDataFrame(table.to_pandas())
+    given = {"holidays": holidays.to_pylist(), "outside_columns": ["promotion"]}
+    for function, macro, order in (
+        ("split_table", "tide_split", ["shop", "day"]),
+        ("profile", "tide_profile", ["shop"]),
+    ):
+        from_duckdb = con.sql(
+            f"SELECT * FROM {macro}(daily, 'shop', 'day', 'takings', transform := 'log', "
+            f"holidays := {days}, outside_columns := ['promotion'])"
+        )
+        from_spark = getattr(tide_spark, function)(
+            frame, "shop", "day", "takings", transform="log", **given
+        )
+        assert assert_same_table(from_spark, from_duckdb, order) > 0
+    noted = frame.withColumn("note", sf.lit("x"))
+    with pytest.raises(ParamError, match="the outside column 'note' holds string"):
+        tide_spark.split_table(noted, "shop", "day", "takings", outside_columns=["note"])

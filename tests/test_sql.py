@@ -13,7 +13,7 @@ import tidesplit
 
 COMPONENTS = ["trend", "seasonal", "remainder", "adjusted", "weight"]
 # the calendar effects' columns, 0 and adjusted itself without calendar_effects
-EFFECT_COLUMNS = ["calendar_effect", "adjusted_season_only"]
+EFFECT_COLUMNS = ["calendar_effect", "outside_effect", "adjusted_season_only"]
 TAIL = ["inserted", "period", "season_span", "trend_span", "boxcox_lambda", "status"]
 
 

@@ -59,13 +59,16 @@ SPLIT_COLUMNS = (
     Column("trend", "DOUBLE", _on_scale("the trend")),
     Column("seasonal", "DOUBLE", _on_scale("the seasonal part (with several periods, their sum)")),
     Column(
-        "remainder", "DOUBLE", "transformed value - trend - seasonal; NULL where the value is NULL"
+        "remainder",
+        "DOUBLE",
+        "transformed value - trend - seasonal (- calendar_effect - outside_effect); NULL where "
+        "the value is NULL",
     ),
     Column(
         "adjusted",
         "DOUBLE",
         "the seasonally adjusted series (value without its seasonal part and, with "
-        "`calendar_effects`, without its calendar effect), on the original scale",
+        "`calendar_effects` or `holidays`, without its calendar effect), on the original scale",
     ),
     Column(
         "weight",
@@ -75,7 +78,18 @@ SPLIT_COLUMNS = (
     Column(
         "calendar_effect",
         "DOUBLE",
-        _on_scale("the calendar effects fitted at the point (`calendar_effects`; 0 without)"),
+        _on_scale(
+            "the calendar effects fitted at the point (`calendar_effects`, `holidays`; 0 "
+            "without)"
+        ),
+    ),
+    Column(
+        "outside_effect",
+        "DOUBLE",
+        _on_scale(
+            "the effect of the outside columns at the point (`outside_columns`; 0 without); "
+            "it stays in `adjusted`"
+        ),
     ),
     Column(
         "adjusted_season_only",
@@ -161,8 +175,9 @@ PROFILE_COLUMNS = (
     Column(
         "effects",
         EFFECTS_TYPE,
-        "with `calendar_effects`: each fitted effect's `{name, coefficient, std_error, "
-        "t_value}` (transformed scale; see Calendar effects); NULL without",
+        "with `calendar_effects`, `holidays` or `outside_columns`: each fitted effect's "
+        "`{name, coefficient, std_error, t_value}` (transformed scale; see Calendar effects); "
+        "NULL without",
     ),
     _PERIOD,
     Column("periods", "BIGINT[]", "the periods used"),
@@ -246,6 +261,27 @@ def struct_type(columns: tuple[Column, ...]) -> str:
     'STRUCT(reference VARCHAR, points_compare'
     """
     return "STRUCT(" + ", ".join(f"{c.name} {c.sql_type}" for c in columns) + ")"
+
+
+# Columns the SQL macros make on the way; an outside column of one of these names is refused.
+INTERNAL_COLUMNS = ("__key", "__time_row", "__time_code", "__value_row", "__value",
+                    "__outside_struct")  # fmt: skip
+
+
+def outside_clashes(keys: list[str], time: str, value: str, outside: list[str]) -> list[str]:
+    """Reasons to refuse the outside columns (empty when fine): one that is also the key,
+    time or value column, or named like a column the SQL macros make.
+
+    >>> outside_clashes(["shop"], "day", "sales", ["price", "Sales"])[0][:34]
+    'the outside column "Sales" is also'
+    """
+    taken = {c.lower() for c in [*keys, time, value, *INTERNAL_COLUMNS]}
+    return [
+        f'the outside column "{c}" is also the key, time or value column, or has a name these '
+        f"queries use; give another column (SELECT {c} AS {c}_x, ...)"
+        for c in outside
+        if c.lower() in taken
+    ]
 
 
 def name_clashes(keys: list[str], time: str, value: str, answer: tuple[str, ...]) -> list[str]:

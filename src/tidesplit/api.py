@@ -43,6 +43,7 @@ class Split:
     trend_span: int | None = None
     # no calendar effects without times: zero, and adjusted as it is
     calendar_effect: np.ndarray | None = None
+    outside_effect: np.ndarray | None = None
     adjusted_season_only: np.ndarray | None = None
 
     def to_frame(self) -> pd.DataFrame:
@@ -50,7 +51,7 @@ class Split:
 
         >>> split([1.0, 5, 3, 7] * 4, period=4).to_frame().columns.tolist()
         ['value', 'trend', 'seasonal', 'remainder', 'adjusted', 'weight', 'calendar_effect', \
-'adjusted_season_only']
+'outside_effect', 'adjusted_season_only']
         """
         data = {"value": self.observed} | {name: getattr(self, name) for name in COMPONENTS}
         return pd.DataFrame(data, index=self.index)
@@ -124,6 +125,7 @@ def split(values: Any, period: int | None = None, **given: Any) -> Split:
         season_span=int(result.season_spans[0]) if parts is None else None,
         trend_span=int(result.trend_spans[0]) if parts is None else None,
         calendar_effect=result.calendar_effect,
+        outside_effect=result.outside_effect,
         adjusted_season_only=result.adjusted_season_only,
     )
 
@@ -235,20 +237,32 @@ class _Table:
         time: str,
         value: str,
         answer: tuple[str, ...],
+        outside: Sequence[str] | None = None,
     ) -> None:
         keys = [key] if isinstance(key, str) else list(key)
+        outside = list(outside or ())
         exact = {} if isinstance(data, pd.DataFrame) else _exact_keys(data, keys)
         frame = data if isinstance(data, pd.DataFrame) else data.to_pandas()
-        missing = [c for c in [*keys, time, value] if c not in frame.columns]
+        missing = [c for c in [*keys, time, value, *outside] if c not in frame.columns]
         if missing:
             raise KeyError(
                 f"no column(s) named {', '.join(missing)}; the table has "
                 f"{', '.join(map(str, frame.columns))}"
             )
         clashes = answers.name_clashes(keys, time, value, answer)
+        clashes += answers.outside_clashes(keys, time, value, outside)
         if clashes:
             raise ParamError("; ".join(clashes))
+        for name in outside:
+            column = frame[name]
+            if not (pd.api.types.is_numeric_dtype(column) or pd.api.types.is_bool_dtype(column)):
+                raise ParamError(
+                    f"the outside column {name!r} holds {column.dtype}; give numbers or true/false"
+                )
+        outside_frame = frame[outside].copy()
         frame = frame[[*keys, time, value]].copy()
+        for i, name in enumerate(outside):
+            frame[f"__outside{i}"] = outside_frame[name].to_numpy()
         for name, values in exact.items():
             frame[name] = pd.Series(values, index=frame.index, dtype=object)
         codes, time_nulls, self.kind, self.zone = _time_codes(frame[time])
@@ -266,6 +280,12 @@ class _Table:
         self.starts = np.flatnonzero(changed)
         self.offsets = np.append(self.starts, len(frame)).astype(np.int64)
         self.values = pd.to_numeric(self.frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
+        self.outside = np.column_stack(
+            [
+                self.frame[f"__outside{i}"].astype("Float64").to_numpy(np.float64, na_value=np.nan)
+                for i in range(len(outside))
+            ]
+        ) if outside else None
         self.first_rows = self.frame.iloc[self.starts][keys]
         self.keys, self.time, self.value = keys, time, value
         self.status = [OK] * self.starts.size
@@ -293,6 +313,7 @@ class _Table:
             on_error=on_error,
             fill_gaps=fill_gaps,
             effects=effects_front.request(settings),
+            outside=self.outside,
         )
 
     def key_frame(self, series_of_rows: np.ndarray) -> pd.DataFrame:
@@ -407,11 +428,12 @@ def split_table(
     >>> frame = pd.DataFrame({"shop": ["a"] * 8 + ["b"] * 8, "t": list(range(8)) * 2,
     ...                       "units": [3.0, 5, 4, 6, 3, 5, 4, 6] * 2})
     >>> split_table(frame, "shop", "t", "units", period=2).shape
-    (16, 16)
+    (16, 17)
     """
     multi = given.get("periods") is not None
     settings = _settings(SPLIT_MULTI if multi else SPLIT, period, given)
-    table = _Table(data, key, time, value, answers.SPLIT_MULTI if multi else answers.SPLIT)
+    answer = answers.SPLIT_MULTI if multi else answers.SPLIT
+    table = _Table(data, key, time, value, answer, settings.get("outside_columns"))
     frame, keys, starts, first_rows, kind, zone = (
         table.frame,
         table.keys,
@@ -479,7 +501,7 @@ def profile(
     1.0
     """
     settings = _settings(PROFILE, period, given)
-    table = _Table(data, key, time, value, answers.PROFILE)
+    table = _Table(data, key, time, value, answers.PROFILE, settings.get("outside_columns"))
     result = table.split(settings, fill_gaps=True)
     found = series_profile.profile(result, table.kind)
     out = table.key_frame(np.arange(table.starts.size))
@@ -549,7 +571,7 @@ def outliers(
     ('high', 10.0)
     """
     settings = _settings(OUTLIERS, period, given)
-    table = _Table(data, key, time, value, answers.OUTLIERS)
+    table = _Table(data, key, time, value, answers.OUTLIERS, settings.get("outside_columns"))
     result = table.split(settings, fill_gaps=True)
     found = unusual.unusual_points(
         result,
@@ -602,7 +624,7 @@ def forecast(
         settings["steps_ahead"], settings["coverage"], settings["trend_model"]
     )
     on_error = settings["on_error"]
-    table = _Table(data, key, time, value, answers.FORECAST)
+    table = _Table(data, key, time, value, answers.FORECAST, settings.get("outside_columns"))
     result = table.split(settings, fill_gaps=True)
     ahead = forecast_ahead.forecast(
         result,
@@ -612,6 +634,7 @@ def forecast(
         level,
         method,
         params=SplitParams.from_settings(settings),
+        effects=effects_front.request(settings),
     )
     ok = forecast_ahead.settle_forecast(result, ahead, on_error, table.label)
     # steps_ahead rows per series; one row beside the status of a series left unsplit

@@ -32,8 +32,10 @@ _ANSWERS = (PROFILE, OUTLIERS, FORECAST, AUDIT)
 _ONE_PERIOD = (SPLIT, SPLIT_LIST, *_ANSWERS)
 _EVERY_SPLIT = (SPLIT, SPLIT_MULTI, SPLIT_LIST, *_ANSWERS)
 _SEVERAL_PERIODS = (SPLIT_MULTI, *_ANSWERS)
-# the functions that fit regression effects beside the split
-_EFFECTS = (SPLIT, PROFILE)
+# the functions that fit regression effects beside the split; the forecast takes those
+# known ahead (the calendar's), not outside columns, whose future values it has not
+_EFFECTS = (SPLIT, SPLIT_MULTI, PROFILE, OUTLIERS, FORECAST)
+_OUTSIDE = (SPLIT, SPLIT_MULTI, PROFILE, OUTLIERS)
 
 # What an argument holds: how SQL declares and checks it, how Python checks it.
 WHOLE = "whole number"
@@ -42,8 +44,11 @@ FLAG = "true or false"
 TEXT = "text"
 WHOLE_LIST = "list of whole numbers"
 NUMBER_LIST = "list of numbers"
+NAME_LIST = "list of column names"
+DAY_LIST = "list of named days"
 SQL_TYPES = {WHOLE: "DOUBLE", NUMBER: "DOUBLE", FLAG: "BOOLEAN", TEXT: "VARCHAR",
-             WHOLE_LIST: "DOUBLE[]", NUMBER_LIST: "DOUBLE[]"}  # fmt: skip
+             WHOLE_LIST: "DOUBLE[]", NUMBER_LIST: "DOUBLE[]", NAME_LIST: "VARCHAR[]",
+             DAY_LIST: "STRUCT(day DATE, name VARCHAR)[]"}  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -251,6 +256,27 @@ REGISTRY: tuple[Argument, ...] = (
         most=30,
     ),
     Argument(
+        "holidays",
+        DAY_LIST,
+        "days with an effect of their own (see Holidays and outside variables), a list of "
+        "`{day, name}`: each name becomes one coefficient, the days of that name a period "
+        "holds its column; part of the calendar effect",
+        _EFFECTS,
+        default_text="none",
+        decomposition=False,
+        most=100_000,
+    ),
+    Argument(
+        "outside_columns",
+        NAME_LIST,
+        "numeric (or true/false) columns of the input fitted beside the split, one "
+        "coefficient each (price, promotion, temperature); their effect is `outside_effect`",
+        _OUTSIDE,
+        default_text="none",
+        decomposition=False,
+        most=50,
+    ),
+    Argument(
         "fill_gaps",
         FLAG,
         "also return a row for every time missing inside a series, marked `inserted`",
@@ -383,6 +409,10 @@ def _check_kind(argument: Argument, value: Any) -> Any:
         if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
             raise ParamError(f"{name} must be a list of numbers, got {value!r}")
         return tuple(_check_kind(Argument(name, NUMBER, "", ()), v) for v in value)
+    if kind == NAME_LIST:
+        return _column_names(argument, value)
+    if kind == DAY_LIST:
+        return named_days(argument, value)
     if kind == WHOLE:
         return _at_most(argument, whole_number(name, value))
     if isinstance(value, bool) or (
@@ -393,6 +423,73 @@ def _check_kind(argument: Argument, value: Any) -> Any:
     if not math.isfinite(number):
         raise ParamError(f"{name} must be finite, got {value!r}")
     return _at_most(argument, number)
+
+
+def _count_at_most(argument: Argument, count: int) -> None:
+    if argument.most is not None and count > argument.most:
+        raise ParamError(
+            f"{argument.name} takes at most {argument.most:,.0f} entries, got {count:,}"
+        )
+
+
+def _column_names(argument: Argument, value: Any) -> tuple[str, ...] | None:
+    """Distinct column names (compared without case, as SQL does); an empty list is none."""
+    name = argument.name
+    if isinstance(value, (str, bytes)) or not hasattr(value, "__iter__"):
+        raise ParamError(f"{name} must be a list of column names, got {value!r}")
+    names = tuple(value)
+    for item in names:
+        if not isinstance(item, str) or not item:
+            raise ParamError(f"{name} must hold column names (non-empty text), got {item!r}")
+    folded = [n.lower() for n in names]
+    twice = sorted({n for n in names if folded.count(n.lower()) > 1})
+    if twice:
+        raise ParamError(f"{name} names {twice[0]!r} more than once")
+    _count_at_most(argument, len(names))
+    return names or None
+
+
+def named_days(argument: Argument, value: Any) -> tuple[tuple[int, str], ...] | None:
+    """Named days as ``(day, name)`` pairs, days since 1970-01-01, sorted; from a list of
+    ``{day, name}`` mappings or pairs, or a table (pandas or Arrow) with those columns.
+    Days are dates (``datetime.date``, ``numpy.datetime64``, pandas timestamps or ISO text);
+    a day named twice under one name counts once. An empty list is none.
+
+    >>> named_days(next(a for a in REGISTRY if a.name == "holidays"),
+    ...            [{"day": "2024-12-25", "name": "midwinter"}])
+    ((20082, 'midwinter'),)
+    """
+    import numpy as np
+
+    name = argument.name
+    if hasattr(value, "to_pylist") and hasattr(value, "column_names"):
+        value = value.to_pylist()  # an Arrow table
+    elif hasattr(value, "to_dict") and hasattr(value, "columns"):
+        value = value.to_dict("records")  # a pandas DataFrame
+    if isinstance(value, (str, bytes, dict)) or not hasattr(value, "__iter__"):
+        raise ParamError(f"{name} must be a list of {{day, name}} entries, got {value!r}")
+    found: set[tuple[int, str]] = set()
+    for i, entry in enumerate(value):
+        if isinstance(entry, Mapping):
+            unknown = sorted(set(entry) - {"day", "name"})
+            if unknown:
+                raise ParamError(f"{name} entries hold day and name; entry {i} has {unknown[0]!r}")
+            day, label = entry.get("day"), entry.get("name")
+        elif isinstance(entry, (tuple, list)) and len(entry) == 2:
+            day, label = entry
+        else:
+            raise ParamError(f"{name} entry {i} must be {{day, name}}, got {entry!r}")
+        if not isinstance(label, str) or not label.strip():
+            raise ParamError(f"{name} entry {i} has no name (a non-empty text), got {label!r}")
+        try:
+            as_day = np.datetime64(day, "D") if day is not None else np.datetime64("NaT")
+        except (TypeError, ValueError):
+            raise ParamError(f"{name} entry {i} ({label}) has no date, got {day!r}") from None
+        if np.isnat(as_day):
+            raise ParamError(f"{name} entry {i} ({label}) has no date, got {day!r}")
+        found.add((int(as_day.astype(np.int64)), label.strip()))
+    _count_at_most(argument, len(found))
+    return tuple(sorted(found)) or None
 
 
 def _at_most(argument: Argument, value: Any) -> Any:

@@ -433,6 +433,28 @@ def _codes_at(
     return out
 
 
+def grid_codes_of(
+    grid: Grid, series: np.ndarray, position: np.ndarray, kind: str, time_zone: str | None
+) -> np.ndarray:
+    """The time codes of grid points given by series and position (one per entry).
+
+    >>> status = ["ok"]
+    >>> grid = regularise(np.array([10, 12, 16]), np.array([0, 3]), "integer", status)
+    >>> grid_codes_of(grid, np.array([0, 0]), np.array([0, 3]), "integer", None).tolist()
+    [10, 16]
+    """
+    return _codes_at(grid, np.asarray(series), np.asarray(position), kind, time_zone)
+
+
+def local_codes(codes: np.ndarray, time_zone: str | None) -> np.ndarray:
+    """UTC microseconds to wall-clock microseconds in ``time_zone`` (unchanged for UTC).
+
+    >>> local_codes(np.array([0]), "Europe/Paris").tolist()  # 1970-01-01 01:00 in Paris
+    [3600000000]
+    """
+    return _local_codes(np.asarray(codes, dtype=np.int64), time_zone)
+
+
 def estimate_period(values: np.ndarray, max_lag: int | None = None) -> int:
     """The first clear peak of the autocorrelation of the linearly detrended series, or 0.
 

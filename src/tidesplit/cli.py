@@ -467,6 +467,14 @@ def _option_type(argument: object) -> object:
     from . import arguments
 
     whole = argument.kind in (arguments.WHOLE, arguments.WHOLE_LIST)
+    if argument.kind == arguments.DAY_LIST:
+        return str  # a file of day, name rows, read when the job is checked
+    if argument.kind == arguments.NAME_LIST:
+
+        def names(text: str) -> list[str]:
+            return [part.strip() for part in text.split(",") if part.strip()]
+
+        return names
     if _is_list(argument):
         one = _whole if whole else float
 
@@ -566,6 +574,8 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
     for argument in options_of(command):
         function = next(f for f in COMMANDS[command] if f in argument.functions)
         words = f"{argument.meaning} (default: {_default_help(argument, function)})"
+        if argument.kind == arguments.DAY_LIST:
+            words = "a CSV or Parquet file with columns day and name: " + words
         words = words.replace("%", "%%")
         option = "--" + argument.name.replace("_", "-")
         if argument.kind == arguments.FLAG:
@@ -582,7 +592,9 @@ def _add_job_command(commands: argparse._SubParsersAction, command: str) -> None
             dest=argument.name,
             type=_option_type(argument),
             choices=argument.choices or None,
-            metavar="N,N" if _is_list(argument) else None,
+            metavar={arguments.NAME_LIST: "NAME,NAME", arguments.DAY_LIST: "FILE"}.get(
+                argument.kind, "N,N" if _is_list(argument) else None
+            ),
             help=words,
         )
     parser.set_defaults(job_command=command)

@@ -9,6 +9,7 @@ back into rows.
 from __future__ import annotations
 
 import inspect
+import re
 from dataclasses import dataclass
 from importlib import resources
 from typing import Any
@@ -40,6 +41,8 @@ from .status import OK
 from .tuning import PARALLEL_POINTS
 
 UDF_NAME = "__tide_split_series"
+# The split's columns that only regression effects fill (see _split_handler).
+EFFECT_PARTS = ("calendar_effect", "outside_effect", "adjusted_season_only")
 
 
 def udf_types(udf: str) -> list[tuple[str, str]]:
@@ -73,8 +76,9 @@ def _column_values(col: pa.Array) -> tuple[bool, Any]:
     if col.null_count == len(col):
         return True, None
     if pa.types.is_list(col.type):
-        rows = {None if v is None else tuple(v) for v in col.to_pylist()}
-        return len(rows) == 1, next(iter(rows))
+        # repr: a list of structs (holidays) holds dicts, which a set cannot
+        rows = {None if v is None else repr(v) for v in col.to_pylist()}
+        return len(rows) == 1, col[0].as_py()
     return len(pc.unique(col)) == 1, col[0].as_py()
 
 
@@ -140,6 +144,7 @@ class _Call:
     label: Any
     settings: dict[str, Any]  # every argument of the function, defaults filled in
     order: np.ndarray | None = None  # input row of each time-sorted row, when not sorted
+    outside: np.ndarray | None = None  # rows x outside columns, time-sorted as values
 
     def split(self, fill_gaps: bool | None = None) -> RowsResult:
         """Split the time-sorted rows; rows come back in input order, or, on the grid
@@ -158,6 +163,7 @@ class _Call:
             parallel=self.values.size >= PARALLEL_POINTS,
             fill_gaps=fill,
             effects=effects_front.request(self.settings),
+            outside=self.outside,
         )
         if self.order is None:
             return result
@@ -181,6 +187,68 @@ class _Call:
         out = np.empty(self.values.size, dtype=grid_values.dtype)
         out[result.source[seen]] = grid_values[seen]
         return out
+
+
+# The SQL types an outside column may hold: numbers, and true/false (as 1 and 0).
+_OUTSIDE_TYPE = re.compile(sql_build.NUMBER_TYPES + "|BOOLEAN")
+
+
+def _field_types(struct_type: str) -> list[str]:
+    """The field types of a ``STRUCT(name TYPE, ...)`` type as DuckDB writes it, in order.
+
+    >>> _field_types('STRUCT(v DOUBLE, "a, b" DECIMAL(9,2), p BOOLEAN)')
+    ['DOUBLE', 'DECIMAL(9,2)', 'BOOLEAN']
+    """
+    inner = struct_type[struct_type.index("(") + 1 : struct_type.rindex(")")]
+    fields, depth, quoted, start = [], 0, False, 0
+    for i, char in enumerate(inner + ","):
+        if char == '"':
+            quoted = not quoted  # a doubled quote inside a name flips twice
+        elif not quoted and char in "()":
+            depth += 1 if char == "(" else -1
+        elif not quoted and depth == 0 and char == ",":
+            fields.append(inner[start:i].strip())
+            start = i + 1
+    types = []
+    for item in fields:
+        if item.startswith('"'):
+            end = 1
+            while True:  # the closing quote is one not doubled
+                end = item.index('"', end)
+                if item[end + 1 : end + 2] != '"':
+                    break
+                end += 2
+            types.append(item[end + 1 :].strip())
+        else:
+            types.append(item.split(" ", 1)[1].strip())
+    return types
+
+
+def _outside_values(
+    columns: dict[str, pa.Array], names: tuple[str, ...], rows: int, offsets: np.ndarray
+) -> np.ndarray:
+    """The outside columns per row (rows x columns, NaN for NULL) from the lists the macro
+    built (each row: the value, then the outside values); a column of another type than
+    numbers or true/false is refused by name."""
+    kinds = columns["outside_types"]
+    found = kinds[0].as_py() if len(kinds) else None
+    if found is not None:
+        for name, kind in zip(names, _field_types(found)[1:], strict=True):
+            if not _OUTSIDE_TYPE.fullmatch(kind):
+                raise ParamError(
+                    f"the outside column {name!r} holds {kind}; give numbers or true/false"
+                )
+    lists = columns["outside_rows"]
+    width = len(names) + 1
+    if lists.null_count == len(lists) or rows == 0:
+        return np.full((rows, len(names)), np.nan)
+    row_offsets, row_lists, _ = arrow_lists.list_layout(lists)
+    if not np.array_equal(row_offsets, offsets):
+        raise ValueError(f"{UDF_NAME}: outside rows and values differ in length")
+    item_offsets, items, _ = arrow_lists.list_layout(row_lists)
+    if not np.all(np.diff(item_offsets) == width):
+        raise ValueError(f"{UDF_NAME}: each outside row must hold {width} values")
+    return arrow_lists.float_values(items).reshape(rows, width)[:, 1:]
 
 
 def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
@@ -227,6 +295,12 @@ def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
         function, {k: v for k, v in given.items() if v is not None and k in taken}
     )
 
+    outside = None
+    if settings.get("outside_columns"):
+        outside = _outside_values(columns, settings["outside_columns"], flat.size, offsets)
+        if order is not None:
+            outside = outside[order]
+
     def label(i: int) -> str:
         text = labels[i].as_py() if len(labels) else None
         return text if text is not None else _describe_values(flat, offsets, i)
@@ -245,6 +319,7 @@ def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
         label,
         settings,
         order,
+        outside,
     )
 
 
@@ -258,8 +333,14 @@ def _split_handler(call: _Call) -> pa.Array:
     count = len(call.null_rows)
     out_offsets = result.offsets
     nulls = call.null_rows if call.null_rows.any() else None
+    # without effects, their columns travel as NULL lists and the macro fills them in
+    # (0, or adjusted): each list of a point per row costs as much to build and unnest as
+    # any component, for numbers the macro knows already
+    plain = result.batch.coefficients is None
     fields = {
-        part: arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
+        part: pa.nulls(count, pa.list_(pa.float64()))
+        if plain and part in EFFECT_PARTS
+        else arrow_lists.float_lists(getattr(result, part), out_offsets, nulls)
         for part in COMPONENTS
     }
     if result.seasonal_parts is not None:
@@ -424,8 +505,9 @@ def _forecast_handler(call: _Call) -> pa.Array:
     )
     result = call.split(fill_gaps=True)
     ahead = forecast_ahead.forecast(
-        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params
-    )
+        result, call.kind, call.zone, horizon, level, method, parallel=False, params=call.params,
+        effects=effects_front.request(call.settings),
+    )  # fmt: skip
     ok = forecast_ahead.settle_forecast(result, ahead, call.on_error, call.label)
     # steps_ahead rows per series; one row of NULLs beside the status of a series left unsplit
     counts = np.where(ok, horizon, 1)

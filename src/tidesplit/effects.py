@@ -58,26 +58,34 @@ def parse_calendar(text: str | None) -> tuple[str, ...]:
 
 @dataclass(frozen=True)
 class Request:
-    """The effects one call asks for."""
+    """The effects one call asks for: calendar columns built from the times, holiday
+    columns from named days, and outside columns taken from the input."""
 
     calendar: tuple[str, ...] = ()
     easter_days: int = EASTER_WINDOW_DAYS
+    holidays: tuple[tuple[int, str], ...] = ()  # (day since 1970-01-01, name), sorted
+    outside: tuple[str, ...] = ()  # input columns, in the order given
 
     @property
     def any(self) -> bool:
-        return bool(self.calendar)
+        return bool(self.calendar or self.holidays or self.outside)
+
+    def holiday_names(self) -> tuple[str, ...]:
+        """Each holiday name once, in the order of its first day."""
+        return tuple(dict.fromkeys(name for _, name in self.holidays))
 
     def names(self) -> tuple[str, ...]:
-        """The design's columns, in order."""
+        """The design's columns, in order: calendar, holidays, outside."""
         out: list[str] = []
         if WEEKDAYS in self.calendar:
             out += [*_CONTRASTS, LENGTH]
         if EASTER in self.calendar:
             out.append(EASTER)
-        return tuple(out)
+        return (*out, *self.holiday_names(), *self.outside)
 
     def calendar_width(self) -> int:
-        return len(self.names())
+        """How many of the first columns make up the calendar effect (holidays included)."""
+        return len(self.names()) - len(self.outside)
 
 
 def request(settings: dict[str, Any]) -> Request | None:
@@ -89,6 +97,8 @@ def request(settings: dict[str, Any]) -> Request | None:
     8
     >>> request({"calendar_effects": "none"}) is None
     True
+    >>> request({"outside_columns": ("price",), "holidays": ((0, "opening"),)}).names()
+    ('opening', 'price')
     """
     chosen = parse_calendar(settings.get("calendar_effects"))
     given = settings.get("easter_days")
@@ -98,7 +108,23 @@ def request(settings: dict[str, Any]) -> Request | None:
     if EASTER not in chosen and given is not None:
         # given without an Easter effect it would change nothing: refused, not ignored
         raise ParamError("easter_days goes with calendar_effects including 'easter'")
-    found = Request(calendar=chosen, easter_days=days)
+    found = Request(
+        calendar=chosen,
+        easter_days=days,
+        holidays=tuple(settings.get("holidays") or ()),
+        outside=tuple(settings.get("outside_columns") or ()),
+    )
+    # one coefficient per name: a holiday or an outside column named like another effect
+    # would make two rows of one name in the profile
+    seen: dict[str, str] = {}
+    derived = ("weekday_sunday",) if WEEKDAYS in chosen else ()
+    for name in (*found.names(), *derived):
+        if name.lower() in seen:
+            raise ParamError(
+                f"two effects are named {name!r}; rename the holiday or the outside column "
+                "(calendar effects' names: " + ", ".join((*_CONTRASTS, LENGTH, EASTER)) + ")"
+            )
+        seen[name.lower()] = name
     return found if found.any else None
 
 
@@ -181,22 +207,157 @@ class Design:
 
     X: np.ndarray  # points x columns
     names: tuple[str, ...]
-    calendar_width: int  # the first columns are calendar ones (today, all of them)
+    calendar_width: int  # the first columns make the calendar effect, the rest the outside one
     absent: np.ndarray  # series x columns: the column does not apply
     notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
 
 
-def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kind: str) -> Design:
-    """The design of every series on its grid (``offsets`` are the grid's)."""
+def holiday_counts(
+    first_day: np.ndarray, last_day: np.ndarray, holidays: tuple[tuple[int, str], ...]
+) -> np.ndarray:
+    """How many days of each holiday name every period ``[first_day, last_day]`` holds.
+
+    >>> days = ((5, "fair"), (9, "fair"), (6, "rest"))
+    >>> holiday_counts(np.array([0, 5]), np.array([4, 11]), days).tolist()
+    [[0.0, 0.0], [2.0, 1.0]]
+    """
+    names = tuple(dict.fromkeys(name for _, name in holidays))
+    out = np.zeros((np.size(first_day), len(names)))
+    for j, name in enumerate(names):
+        days = np.array(sorted(d for d, n in holidays if n == name), dtype=np.int64)
+        out[:, j] = np.searchsorted(days, last_day, side="right") - np.searchsorted(
+            days, first_day, side="left"
+        )
+    return out
+
+
+def _point_days(
+    grid: calendar.Grid, series: np.ndarray, kind: str, time_zone: str | None
+) -> tuple[np.ndarray, np.ndarray]:
+    """The first and last local day each grid point of ``series`` covers (a point shorter
+    than a day covers its own day), every point of those series in order."""
+    lengths = np.diff(grid.offsets)[series]
+    rows = np.repeat(series, lengths)
+    position = np.arange(rows.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
+    first = np.empty(rows.size, dtype=np.int64)
+    last = np.empty(rows.size, dtype=np.int64)
+    monthly = grid.unit[rows] == calendar.UNIT_MONTH
+    if monthly.any():
+        months = grid.first[rows[monthly]] + grid.step[rows[monthly]] * position[monthly]
+        steps = grid.step[rows[monthly]]
+        ends = grid.anchor[rows[monthly]] == -1
+        for step in np.unique(steps):
+            for end in (False, True):
+                chosen = (steps == step) & (ends == end)
+                if chosen.any():
+                    f, l_ = period_days(months[chosen], int(step), end)
+                    first[np.flatnonzero(monthly)[chosen]] = f
+                    last[np.flatnonzero(monthly)[chosen]] = l_
+    timed = ~monthly
+    if timed.any():
+        codes = calendar.grid_codes_of(grid, rows[timed], position[timed], kind, time_zone)
+        if kind == "timestamptz":
+            codes = calendar.local_codes(codes, time_zone)
+        step = grid.step[rows[timed]]
+        first[timed] = np.floor_divide(codes, calendar.US_PER_DAY)
+        last[timed] = np.where(
+            step >= calendar.US_PER_DAY,
+            np.floor_divide(codes + step - 1, calendar.US_PER_DAY),
+            first[timed],
+        )
+    return first, last
+
+
+def _centre(
+    X: np.ndarray, columns: slice, offsets: np.ndarray, seen: np.ndarray, periods: np.ndarray
+) -> None:
+    """Each of ``columns`` less its mean at each cycle position of its series, over the
+    observed points (``periods`` 1: the series' mean)."""
+    lengths = np.diff(offsets)
+    series = np.repeat(np.arange(lengths.size), lengths)
+    position = np.arange(int(offsets[-1])) - np.repeat(offsets[:-1], lengths)
+    period = np.maximum(periods, 1)
+    slot_start = np.concatenate(([0], np.cumsum(period)))
+    slot = slot_start[series] + position % period[series]
+    counts = np.bincount(slot, weights=seen, minlength=int(slot_start[-1]))
+    for j in range(*columns.indices(X.shape[1])):
+        sums = np.bincount(slot, weights=np.where(seen, X[:, j], 0.0), minlength=counts.size)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            means = np.where(counts > 0, sums / counts, 0.0)
+        X[:, j] -= means[slot]
+
+
+def build(
+    request: Request,
+    grid: calendar.Grid | None,
+    offsets: np.ndarray,
+    kind: str,
+    *,
+    time_zone: str | None = None,
+    seen: np.ndarray | None = None,
+    periods: np.ndarray | None = None,
+    outside: np.ndarray | None = None,
+) -> Design:
+    """The design of every series on its grid (``offsets`` are the grid's).
+
+    Calendar columns are centred on their long-run means (see the module's notes); holiday
+    columns on their mean at each cycle position (``periods``) over the series' observed
+    points (``seen``), so that the seasonal part keeps the holidays' average place in the
+    cycle, as it keeps the average calendar; outside columns (``outside``, points x
+    columns, on the grid) on the series' mean over its observed points, so that the trend
+    keeps the level the series has at its average outside values.
+    """
     names = request.names()
     width = request.calendar_width()
     count = offsets.size - 1
     lengths = np.diff(offsets)
-    X = np.zeros((int(offsets[-1]), len(names)))
+    total = int(offsets[-1])
+    X = np.zeros((total, len(names)))
     absent = np.zeros((count, len(names)), dtype=bool)
     notes = [""] * count
-    if width == 0:
-        return Design(X, names, width, absent, notes)
+    seen = np.ones(total, dtype=bool) if seen is None else seen
+    periods = np.ones(count, dtype=np.int64) if periods is None else periods
+    timed = np.full(count, grid is not None and kind != "integer")
+    calendar_names = width - len(request.holiday_names())
+    if calendar_names:
+        _calendar_part(request, grid, offsets, kind, timed, X, absent, notes, calendar_names)
+    if request.holidays:
+        columns = slice(calendar_names, width)
+        for s in np.flatnonzero(~timed):
+            absent[s, columns] = True
+            notes[s] = _joined(notes[s], "no holiday effects: they need dates, the series has "
+                               "integer times")  # fmt: skip
+        chosen = np.flatnonzero(timed)
+        if chosen.size:
+            first, last = _point_days(grid, chosen, kind, time_zone)
+            rows = np.repeat(timed, lengths)
+            X[rows, columns] = holiday_counts(first, last, request.holidays)
+            _centre(X, columns, offsets, seen, periods)
+    if request.outside:
+        X[:, width:] = outside
+        _centre(X, slice(width, len(names)), offsets, seen, np.ones(count, dtype=np.int64))
+        X[:, width:] = np.where(np.isfinite(X[:, width:]), X[:, width:], 0.0)
+    return Design(X, names, width, absent, notes)
+
+
+def _joined(note: str, more: str) -> str:
+    return more if not note else f"{note}; {more}"
+
+
+def _calendar_part(
+    request: Request,
+    grid: calendar.Grid | None,
+    offsets: np.ndarray,
+    kind: str,
+    timed: np.ndarray,
+    X: np.ndarray,
+    absent: np.ndarray,
+    notes: list[str],
+    width: int,
+) -> None:
+    """The weekday and Easter columns (the first ``width``), monthly and quarterly only."""
+    count = offsets.size - 1
+    lengths = np.diff(offsets)
     if grid is not None and kind != "integer":
         monthly = (grid.unit == calendar.UNIT_MONTH) & np.isin(grid.step, (1, 3))
     else:
@@ -205,12 +366,16 @@ def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kin
         absent[s, :width] = True
         step = (
             "integer times"
-            if grid is None or kind == "integer"
+            if not timed[s]
             else f"a step of {calendar.describe_step(int(grid.unit[s]), int(grid.step[s]))}"
         )
         notes[s] = (
             f"no calendar effects: they need monthly or quarterly dates, the series has {step}"
         )
+    if not monthly.any():
+        return
+    # the calendar's own request: its long-run means are cached by it
+    own = Request(calendar=request.calendar, easter_days=request.easter_days)
     # one pass per kind of calendar (step, stamped at month ends or not), every point of
     # its series at once
     series_of = np.repeat(np.arange(count), lengths)
@@ -222,8 +387,7 @@ def build(request: Request, grid: calendar.Grid | None, offsets: np.ndarray, kin
                 continue
             rows = chosen[series_of]
             months = grid.first[series_of[rows]] + step_months * position[rows]
-            X[rows, :width] = calendar_columns(request, months, step_months, ends)
-    return Design(X, names, width, absent, notes)
+            X[rows, :width] = calendar_columns(own, months, step_months, ends)
 
 
 def coefficient_rows(

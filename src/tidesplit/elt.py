@@ -120,6 +120,12 @@ class Job:
     raw_table: str | None = None  # publish: where new raw rows land, for provisional views
 
     @property
+    def source_columns(self) -> list[str]:
+        """The columns read from the source: key, time, value and any outside columns."""
+        outside = list(self.given.get("outside_columns") or ())
+        return list(dict.fromkeys([*self.key, self.time, self.value, *outside]))
+
+    @property
     def function(self) -> str:
         """The SQL function the job runs (``split`` with several-period arguments runs
         ``split_multi``)."""
@@ -132,12 +138,16 @@ class Job:
         """The given arguments, checked for kind and choices by the registry."""
         if self.command not in COMMANDS:
             raise ParamError(f"unknown command {self.command}; one of {', '.join(COMMANDS)}")
+        if isinstance(self.given.get("holidays"), str):
+            self.given = {**self.given, "holidays": read_named_days(self.given["holidays"])}
         settled = arguments.accept(self.function, self.given)
         if not self.key:
             raise ParamError("give at least one key column")
-        from .answers import name_clashes
+        from .answers import name_clashes, outside_clashes
 
         reasons = name_clashes(self.key, self.time, self.value, answer_columns(self.function))
+        outside = list(settled.get("outside_columns") or ())
+        reasons += outside_clashes(self.key, self.time, self.value, outside)
         if any(c.lower() == BATCH_COLUMN for c in (*self.key, self.time, self.value)):
             reasons.append(f"the column name {BATCH_COLUMN} is used by the batching")
         if reasons:
@@ -147,6 +157,33 @@ class Job:
         if arguments.whole_number("batch_rows", self.batch_rows) < 1:
             raise ParamError(f"batch_rows must be at least 1, got {self.batch_rows}")
         return {name: settled[name] for name in self.given}
+
+
+def read_named_days(path: str) -> list[tuple[Any, str]]:
+    """The ``(day, name)`` rows of a CSV or Parquet file with columns ``day`` and ``name``
+    (the command line's ``--holidays FILE``), read with DuckDB.
+
+    >>> import tempfile
+    >>> with tempfile.NamedTemporaryFile("w", suffix=".csv", delete=False) as f:
+    ...     _ = f.write("day,name\\n2024-12-25,midwinter\\n")
+    >>> read_named_days(f.name)
+    [(datetime.date(2024, 12, 25), 'midwinter')]
+    """
+    import duckdb
+
+    from .endpoints import literal
+
+    if not os.path.isfile(path):
+        raise ParamError(f"no holidays file {path}")
+    try:
+        return duckdb.connect().sql(
+            f"SELECT CAST(day AS DATE), CAST(name AS VARCHAR) FROM {literal(path)} ORDER BY ALL"
+        ).fetchall()
+    except duckdb.Error as error:
+        raise ParamError(
+            f"the holidays file {path} must hold columns day (dates) and name (text): "
+            f"{str(error).splitlines()[0]}"
+        ) from None
 
 
 @dataclass
@@ -210,14 +247,29 @@ out; 0.0 s; exit 0 (success)'
 
 
 def _sql_value(value: Any) -> str:
-    """An argument's value as a SQL literal (values are checked by the registry first)."""
+    """An argument's value as a SQL literal (values are checked by the registry first):
+    lists of numbers, of names, and of named days (``(day, name)`` pairs) included.
+
+    >>> _sql_value(["price", "promo"]), _sql_value(((19723, "opening"),))
+    ("['price', 'promo']::VARCHAR[]", "[{'day': DATE '2024-01-01', 'name': 'opening'}]")
+    """
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, (int, float)):
         return repr(value)
     if isinstance(value, str):
         return "'" + value.replace("'", "''") + "'"
-    return "[" + ", ".join(_sql_value(v) for v in value) + "]::DOUBLE[]"
+    items = list(value)
+    if items and all(isinstance(v, str) for v in items):
+        return "[" + ", ".join(_sql_value(v) for v in items) + "]::VARCHAR[]"
+    if items and all(isinstance(v, tuple) and len(v) == 2 for v in items):
+        import numpy as np
+
+        return "[" + ", ".join(
+            f"{{'day': DATE '{np.datetime64(int(day), 'D')}', 'name': {_sql_value(name)}}}"
+            for day, name in items
+        ) + "]"
+    return "[" + ", ".join(_sql_value(v) for v in items) + "]::DOUBLE[]"
 
 
 def answer_query(job: Job, settings: Mapping[str, Any], table: str) -> str:
@@ -366,7 +418,7 @@ def _check_columns(con: Any, relation: str, job: Job) -> None:
     from .endpoints import quoted
 
     columns = [c for c, *_ in con.sql(f"DESCRIBE SELECT * FROM {relation}").fetchall()]
-    missing = [c for c in dict.fromkeys([*job.key, job.time, job.value]) if c not in columns]
+    missing = [c for c in job.source_columns if c not in columns]
     if missing:
         raise ParamError(
             f"no column {', '.join(map(quoted, missing))} in {_shown(job.source)} "
@@ -399,7 +451,7 @@ def _source_rows(con: Any, job: Job, work: str, source: Any) -> str:
 
     if not source.is_postgres:
         return source.relation
-    columns = list(dict.fromkeys([*job.key, job.time, job.value]))
+    columns = job.source_columns
     local = os.path.join(work, "source.parquet")
     with stream_postgres(source, columns) as reader:
         con.register("tide_postgres_rows", reader)
@@ -435,7 +487,7 @@ def _share_out(con: Any, job: Job, relation: str, work: str) -> Batches:
     rows_of = np.bincount(by_batch, weights=counts, minlength=batches).astype(np.int64)
     staged = None
     if batches > 1:  # one streaming pass writes each batch's rows to its own files
-        wanted = ", ".join(quoted(c) for c in dict.fromkeys([*job.key, job.time, job.value]))
+        wanted = ", ".join(quoted(c) for c in job.source_columns)
         keys_sql = ", ".join(quoted(k) for k in job.key)
         staged = os.path.join(work, f"batches-{len(os.listdir(work))}")
         con.execute(
@@ -450,7 +502,7 @@ def _each_batch(con: Any, job: Job, relation: str, batches: Batches) -> Any:
     """Point the view ``tide_batch_rows`` at each batch in turn; yields (batch, keys, rows)."""
     from .endpoints import literal, quoted
 
-    wanted = ", ".join(quoted(c) for c in dict.fromkeys([*job.key, job.time, job.value]))
+    wanted = ", ".join(quoted(c) for c in job.source_columns)
     for batch in range(batches.count):
         if batches.staged is not None:
             if batches.keys_of[batch] == 0:

@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from . import arguments, calendar, transform
+from . import effects as effects_front
 from .arguments import whole_number
 from .batch_split import split_batch
 from .errors import ParamError, SplitError
@@ -246,6 +247,36 @@ def _per_series(values: np.ndarray, series: np.ndarray, count: int, reduce: str)
     return out
 
 
+def _effects_ahead(
+    result: RowsResult,
+    effects: effects_front.Request,
+    horizon: int,
+    kind: str,
+    time_zone: str | None,
+) -> np.ndarray:
+    """The fitted calendar effects at the ``horizon`` grid points after each series' end
+    (series x horizon; 0 for a series without them). The design is built on the grid
+    extended by the horizon, with the fit's observed points, so that holiday columns are
+    centred exactly as in the fit."""
+    grid = result.grid
+    count = result.offsets.size - 1
+    if grid is None:
+        return np.zeros((count, horizon))
+    lengths = np.diff(result.offsets)
+    extended = np.concatenate(([0], np.cumsum(lengths + horizon))).astype(np.int64)
+    shift = np.repeat(extended[:-1] - result.offsets[:-1], lengths)
+    fitted_rows = np.arange(int(result.offsets[-1])) + shift
+    seen = np.zeros(int(extended[-1]), dtype=bool)
+    seen[fitted_rows] = ~np.isnan(result.trend + result.seasonal + result.remainder)
+    design = effects_front.build(
+        effects, replace(grid, offsets=extended), extended, kind,
+        time_zone=time_zone, seen=seen, periods=np.maximum(result.batch.periods, 1),
+    )  # fmt: skip
+    future = (extended[1:] - horizon)[:, None] + np.arange(horizon)[None, :]
+    coef = np.where(np.isnan(result.batch.effect_coef), 0.0, result.batch.effect_coef)
+    return np.einsum("shk,sk->sh", design.X[future], coef)
+
+
 def forecast(
     result: RowsResult,
     kind: str,
@@ -255,6 +286,7 @@ def forecast(
     method: str,
     parallel: bool = True,
     params: SplitParams | None = None,
+    effects: effects_front.Request | None = None,
 ) -> Forecast:
     """Decomposition forecast: seasonal part carried forward from the last cycle, the
     seasonally adjusted series (trend + remainder) forecast by a damped trend, a random walk
@@ -268,6 +300,11 @@ def forecast(
     errors in those standard deviations, over the normal quantile, never below 1. Where the
     past is too short for rolling origins (fewer than three cycles before the end), the
     method's own intervals stand.
+
+    With calendar effects (``effects``: weekdays, Easter, holidays) the series is forecast
+    without them (what ``remainder`` + ``trend`` + ``seasonal`` add up to) and their
+    coefficients times their columns at the future times are added back: the calendar is
+    known ahead. The intervals treat the effects as known.
     """
     if method not in TREND_MODELS:
         raise ValueError(f"method must be one of {', '.join(TREND_MODELS)}, got {method!r}")
@@ -326,6 +363,8 @@ def forecast(
         horizon,
     )
     centre = point + seasonal_future
+    if effects is not None and result.batch.effect_coef is not None:
+        centre += _effects_ahead(result, effects, horizon, kind, time_zone)
     lower = centre - widen[:, None] * z * spread
     upper = centre + widen[:, None] * z * spread
     lambdas = result.batch.lambdas

@@ -32,6 +32,7 @@ class RowsResult:
     adjusted: np.ndarray
     weight: np.ndarray
     calendar_effect: np.ndarray
+    outside_effect: np.ndarray
     adjusted_season_only: np.ndarray
     seasonal_parts: np.ndarray | None  # periods x output rows, with several periods
     inserted: np.ndarray  # per output row: a time inserted into a gap
@@ -90,6 +91,42 @@ def _choose_periods(
     return sets, groups
 
 
+def _outside_on_grid(
+    values: np.ndarray,
+    offsets: np.ndarray,
+    outside: np.ndarray | None,
+    names: tuple[str, ...],
+    positions: np.ndarray | None,
+    size: int,
+    status: list[str],
+    describe: Callable[[int, int], str],
+    grid_offsets: np.ndarray,
+) -> np.ndarray:
+    """The outside columns on the grid (NaN in gaps); a series with an observed value whose
+    outside value is missing or infinite gets a status that names the column and the time."""
+    if outside is None or outside.shape != (values.size, len(names)):
+        raise ValueError("outside must hold one value per row for each outside column")
+    bad = ~np.isfinite(outside) & ~np.isnan(values)[:, None]
+    if bad.any():
+        rows, columns = np.nonzero(bad)
+        series = np.searchsorted(offsets, rows, side="right") - 1
+        first = np.unique(series, return_index=True)[1]
+        for row, column, s in zip(rows[first], columns[first], series[first], strict=True):
+            if status[s] != OK:
+                continue
+            where = row - offsets[s] if positions is None else positions[row] - grid_offsets[s]
+            word = "missing" if np.isnan(outside[row, column]) else "not finite"
+            status[s] = (
+                f"the outside column {names[column]!r} is {word} at {describe(s, int(where))}, "
+                "where the value is observed"
+            )
+    if positions is None:
+        return np.array(outside, dtype=np.float64)
+    placed = np.full((size, len(names)), np.nan)
+    placed[positions] = outside
+    return placed
+
+
 def split_rows(
     values: np.ndarray,
     offsets: np.ndarray,
@@ -104,12 +141,16 @@ def split_rows(
     parallel: bool = True,
     fill_gaps: bool = False,
     effects: effects_front.Request | None = None,
+    outside: np.ndarray | None = None,
 ) -> RowsResult:
     """Split series given as rows sorted by time (``codes``), gaps and calendars included.
 
     Without ``codes`` the rows are taken as consecutive points. A period left out is implied
     by the step (see ``calendar.period_for_step``), or estimated from the data for integer
     times; ``params.periods == ()`` asks for several periods implied by the step.
+    ``outside`` holds the values of ``effects.outside``'s columns per row (rows x columns,
+    NaN for NULL): a series with an observed value whose outside value is missing or not
+    finite is not split (its status says which column and when).
 
     >>> out = split_rows(np.array([1.0, 3, 1, 3, 1, 3, 1, 3]), np.array([0, 8]),
     ...                  SplitParams(period=2), codes=np.array([0, 1, 2, 3, 4, 6, 7, 8]),
@@ -138,7 +179,20 @@ def split_rows(
     sets, groups = _choose_periods(params, grid_values, grid, kind, status)
     design = None
     if effects is not None and effects.any:
-        design = effects_front.build(effects, grid, grid_offsets, kind)
+        grid_outside = None
+        if effects.outside:
+            grid_outside = _outside_on_grid(
+                values, offsets, outside, effects.outside, positions, grid_values.size,
+                status, lambda s, i: calendar.point_text(grid, s, i, kind, time_zone),
+                grid_offsets,
+            )  # fmt: skip
+        design = effects_front.build(
+            effects, grid, grid_offsets, kind,
+            time_zone=time_zone,
+            seen=~np.isnan(grid_values),
+            periods=np.array([sets[g].period or 1 for g in groups], dtype=np.int64),
+            outside=grid_outside,
+        )  # fmt: skip
     batch = split_batch(
         grid_values,
         grid_offsets,

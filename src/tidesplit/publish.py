@@ -109,7 +109,10 @@ def parts_of(job: Any, settings: dict[str, Any], outcome: Any, source: Any) -> l
             # seasonal part carried forward from the latest cycle (Hyndman & Athanasopoulos,
             # Forecasting: Principles and Practice, 3rd ed., section 5.7: the seasonal
             # component forecast by the seasonal naive method)
-            ahead = _named(settings, ("fill_gaps", "on_error"), on_error="keep",
+            # only the future times are read: the effects' arguments are left out (the
+            # forecast takes no outside columns, whose future values are unknown)
+            effects = ("calendar_effects", "easter_days", "holidays", "outside_columns")
+            ahead = _named(settings, ("fill_gaps", "on_error", *effects), on_error="keep",
                            steps_ahead=steps)  # fmt: skip
             return con.sql(
                 f"""

@@ -108,15 +108,18 @@ def arguments_text(job: Any, settings: dict[str, Any]) -> str:
     )
 
 
-def fingerprint_sql(relation: str, key: Sequence[str], time: str, value: str) -> str:
+def fingerprint_sql(
+    relation: str, key: Sequence[str], time: str, value: str, outside: Sequence[str] = ()
+) -> str:
     """One row per key: its rows, first and last time and a hash of its (time, value)
-    pairs (a sum of row hashes, so the order of the rows does not matter and a repeated
-    row counts twice)."""
+    pairs, with the outside columns' values when there are any (a sum of row hashes, so
+    the order of the rows does not matter and a repeated row counts twice)."""
     keys = ", ".join(_q(k) for k in key)
     t, v = _q(time), _q(value)
+    hashed = ", ".join([t, v, *(_q(c) for c in outside)])
     return (
         f"SELECT {keys}, count(*) AS rows_in, min({t}) AS first_time, max({t}) AS last_time, "
-        f"CAST(sum(hash({t}, {v})::HUGEINT) % 18446744073709551616 AS VARCHAR) AS values_hash "
+        f"CAST(sum(hash({hashed})::HUGEINT) % 18446744073709551616 AS VARCHAR) AS values_hash "
         f"FROM {relation} GROUP BY {keys}"
     )
 
@@ -617,7 +620,9 @@ def run_refresh(job: Any, settings: dict[str, Any], outcome: Any, show_progress:
         digest = hashlib.sha256(hashed.encode()).hexdigest()
         now = datetime.datetime.now(datetime.UTC).replace(tzinfo=None, microsecond=0)
         refresh_id = f"{now:%Y%m%dT%H%M%S}-{uuid.uuid4().hex[:8]}"
-        fingerprints = fingerprint_sql(relation, job.key, job.time, job.value)
+        fingerprints = fingerprint_sql(
+            relation, job.key, job.time, job.value, job.given.get("outside_columns") or ()
+        )
         con.execute(f"CREATE TEMP TABLE tide_now AS {fingerprints}")
         previous = store.ledger()
         outcome.refresh_note = store.note
@@ -642,7 +647,7 @@ def run_refresh(job: Any, settings: dict[str, Any], outcome: Any, show_progress:
         ).fetchall()[0]
         con.execute(f"CREATE TEMP TABLE tide_answered ({_answered_columns(con, job.key)})")
         if outcome.keys_recomputed:
-            wanted = ", ".join(quoted(c) for c in dict.fromkeys([*job.key, job.time, job.value]))
+            wanted = ", ".join(quoted(c) for c in job.source_columns)
             todo = os.path.join(work, "todo.parquet")
             match = _match("p", "r", job.key, nulls)
             con.execute(

@@ -153,6 +153,7 @@ class _Plan:
     schema: pa.Schema  # of the result
     time_zone: str  # the session's, for TIMESTAMP (with time zone) columns
     points_per_key_limit: int
+    outside: tuple[str, ...] = ()  # the outside columns, as the call sees them
     # the real names of the key, time and value columns, by the names the call sees them under
     # (none: the call sees the real names)
     real_names: dict[str, str] = dataclasses.field(default_factory=dict)
@@ -329,7 +330,26 @@ def _run(
         # the fronts take binary numbers; decimals become doubles, as in the SQL functions
         frame = frame.withColumn(value_field.name, _column(value_field.name).cast("double"))
         value_field = st.StructField(value_field.name, st.DoubleType())
-    frame = frame.select(*[_column(c) for c in [*keys, time_field.name, value_field.name]])
+    outside = [
+        _resolve(frame, name, "outside") for name in settings.get("outside_columns") or ()
+    ]
+    clashes = answers.outside_clashes(keys, time_field.name, value_field.name,
+                                      [f.name for f in outside])  # fmt: skip
+    if clashes:
+        raise ParamError("; ".join(clashes))
+    for field in outside:
+        if not isinstance(field.dataType, (st.NumericType, st.BooleanType)):
+            raise ParamError(
+                f"the outside column {field.name!r} holds {field.dataType.simpleString()}; "
+                "give numbers or true/false"
+            )
+        # as the value column: the fronts take binary numbers
+        frame = frame.withColumn(field.name, _column(field.name).cast("double"))
+    if outside:
+        # the columns as the table names them (Spark matched them without regard to case)
+        given = {**given, "outside_columns": [f.name for f in outside]}
+    wanted = [*keys, time_field.name, value_field.name, *(f.name for f in outside)]
+    frame = frame.select(*[_column(c) for c in wanted])
 
     sizes = measure(frame, keys)
     if sizes.longest_points > points_per_key_limit:
@@ -338,8 +358,9 @@ def _run(
 
     # Spark's grouped call reads a dot in a column name as a path into a struct, so the call
     # sees the columns under names of our own and the answer takes the real ones back
-    real = [*keys, time_field.name, value_field.name]
+    real = [*keys, time_field.name, value_field.name, *(f.name for f in outside)]
     inner = [f"__tide_key{i}" for i in range(len(keys))] + ["__tide_time", "__tide_value"]
+    inner += [f"__tide_outside{i}" for i in range(len(outside))]
     frame = frame.toDF(*inner)
     outer_schema = _result_schema(function, key_fields, time_field, value_field)
     to_inner = dict(zip(real, inner, strict=True))
@@ -351,13 +372,15 @@ def _run(
         ]
     )
     keys = inner[: len(keys)]
+    value_inner = inner[len(keys) + 1]
     session = frame.sparkSession
     time_zone = session.conf.get("spark.sql.session.timeZone") or "UTC"
     plan = _Plan(
         function=function,
         keys=tuple(keys),
-        time=inner[-2],
-        value=inner[-1],
+        time=inner[len(keys)],
+        value=value_inner,
+        outside=tuple(inner[len(keys) + 2 :]),
         given=given,
         schema=to_arrow_schema(schema, timezone="UTC"),  # Spark's Arrow timestamps are UTC
         time_zone=time_zone,
@@ -393,7 +416,7 @@ def _to_pandas(table: pa.Table, plan: _Plan) -> pd.DataFrame:
     """The bucket as the Python fronts take it: integers with NULLs stay integers, and
     timestamps are read in the session's time zone (as DuckDB reads TIMESTAMPTZ in its own)."""
     columns = {}
-    for name in [*plan.keys, plan.time, plan.value]:
+    for name in [*plan.keys, plan.time, plan.value, *plan.outside]:
         column = table.column(name)
         if pa.types.is_timestamp(column.type) and column.type.tz is not None:
             column = column.cast(pa.timestamp("us", tz=plan.time_zone))

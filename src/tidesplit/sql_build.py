@@ -13,8 +13,10 @@ from __future__ import annotations
 from . import answers
 from .arguments import (
     AUDIT,
+    DAY_LIST,
     FLAG,
     FORECAST,
+    NAME_LIST,
     NUMBER,
     NUMBER_LIST,
     OUTLIERS,
@@ -40,6 +42,10 @@ LEAD = (
     ("time_kind", "VARCHAR"),
     ("time_zone", "VARCHAR"),
     ("values", "DOUBLE[]"),
+    # with outside_columns: per row the value and then each outside column, as DOUBLE
+    # (NULL without), and the type of the columns as they were, for the UDF to check
+    ("outside_rows", "DOUBLE[][]"),
+    ("outside_types", "VARCHAR"),
 )
 # Each UDF and the functions it serves.
 UDFS = {
@@ -60,17 +66,22 @@ _CHECK_MACRO = {
     TEXT: "__tide_check_text",
     WHOLE_LIST: "__tide_check_numbers",
     NUMBER_LIST: "__tide_check_numbers",
+    NAME_LIST: "__tide_check_names",
+    DAY_LIST: "__tide_check_days",
 }
-_NUMBER = r"U?(TINYINT|SMALLINT|INTEGER|BIGINT|HUGEINT)|FLOAT|DOUBLE|DECIMAL\(\d+,\d+\)"
+NUMBER_TYPES = r"U?(TINYINT|SMALLINT|INTEGER|BIGINT|HUGEINT)|FLOAT|DOUBLE|DECIMAL\(\d+,\d+\)"
 _KIND_CHECKS = "\n".join(
     f"CREATE OR REPLACE TEMP MACRO {macro}(name, x) AS\n"
     f"    CASE WHEN NOT regexp_full_match(typeof(x), '{pattern}')\n"
     f"         THEN name || ' must be {wanted}, got ' || typeof(x) || ' ' || CAST(x AS VARCHAR) END;"
     for macro, pattern, wanted in (
-        ("__tide_check_number", f'^({_NUMBER}|"NULL")$', "a number"),
+        ("__tide_check_number", f'^({NUMBER_TYPES}|"NULL")$', "a number"),
         ("__tide_check_flag", '^(BOOLEAN|"NULL")$', "true or false"),
         ("__tide_check_text", '^(VARCHAR|"NULL")$', "text"),
-        ("__tide_check_numbers", f'^((({_NUMBER})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
+        ("__tide_check_numbers", f'^((({NUMBER_TYPES})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
+        ("__tide_check_names", '^((VARCHAR|"NULL")\\[\\]|"NULL")$', "a list of column names"),
+        ("__tide_check_days", '^(STRUCT\\("day" DATE, "name" VARCHAR\\)\\[\\]|"NULL"\\[\\]|"NULL")$',
+         "a list of {day DATE, name VARCHAR}"),
     )
 )
 
@@ -162,16 +173,23 @@ def _columns(names: tuple[str, ...]) -> str:
     return "[" + ", ".join(f"'{n}'" for n in names) + "]"
 
 
+def _outside(function: str) -> str:
+    """The outside columns a function's grouping carries (NULL where it takes none)."""
+    return "outside_columns" if "outside_columns" in {a.name for a in of(function)} else "NULL"
+
+
 def _refusals(function: str, answer: tuple[str, ...]) -> str:
+    outside = _outside(function)
     return (
         f"(SELECT __tide_refuse(__tide_name_clashes(keys, time, value, {_columns(answer)})\n"
+        f"          || __tide_outside_clashes(keys, time, value, {outside})\n"
         f"          || {_checks(function)}) AS __ok) AS __checked"
     )
 
 
 _LEAD_CALL = (
     "CAST(__key AS VARCHAR), __time_codes, typeof(struct_extract_at(__time_rows[1], 1)),\n"
-    "        current_setting('TimeZone'), __values"
+    "        current_setting('TimeZone'), __values, __outside_rows, __outside_types"
 )
 
 HELPERS = """\
@@ -218,15 +236,38 @@ CREATE OR REPLACE TEMP MACRO __tide_by_name(by_name_only, argument) AS
          ELSE error('give every argument after the value column by name, as in period := 12; got '
                     || CAST(by_name_only AS VARCHAR) || ' by position') END;
 
--- Every series of a table as lists, one row per key.
-CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value) AS TABLE
+-- Reasons to refuse the outside columns: one that is also the key, time or value column, or
+-- named like a column these queries make on the way (__key, ...). TRY_CAST here and in the
+-- grouping: an argument of another type must bind, so that its check can name it.
+CREATE OR REPLACE TEMP MACRO __tide_outside_clashes(keys, time, value, outside) AS
+    list_transform(
+        list_filter(coalesce(TRY_CAST(outside AS VARCHAR[]), []), lambda c:
+            list_contains(list_transform(list_concat(keys, [time, value]), lambda k: lower(k)), lower(c))
+            OR list_contains(['__key', '__time_row', '__time_code', '__value_row', '__value',
+                              '__outside_struct'], lower(c))),
+        lambda c: 'the outside column "' || c || '" is also the key, time or value column, or has '
+                  || 'a name these queries use; give another column (SELECT ' || c || ' AS '
+                  || c || '_x, ...)');
+
+-- Every series of a table as lists, one row per key. With outside columns, each row's value
+-- and outside values as one list (the value first: COLUMNS needs at least one column), and
+-- the columns' types as they were; without, neither is built (the CASE folds away).
+CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value, outside := NULL) AS TABLE
 WITH __src AS (
     SELECT struct_pack(*COLUMNS(keys)) AS __key,
            struct_pack(COLUMNS([time])) AS __time_row,
            __tide_time_code(COLUMNS([time]), time) AS __time_code,
            struct_pack(COLUMNS([value])) AS __value_row,
-           CAST(COLUMNS([value]) AS DOUBLE) AS __value
+           CAST(COLUMNS([value]) AS DOUBLE) AS __value,
+           TRY_CAST(COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))) AS DOUBLE),
+           struct_pack(*COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))))
+               AS __outside_struct
     FROM query_table(tbl)
+), __rows AS (
+    SELECT __key, __time_row, __time_code, __value_row, __value, __outside_struct,
+           list_value(*COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))))
+               AS __outside_row
+    FROM __src
 )
 -- No ORDER BY: the lists of one group share one order, and the UDF sorts by time itself,
 -- which is several times cheaper than four sorted aggregates.
@@ -234,8 +275,11 @@ SELECT __key,
        list(__time_row) AS __time_rows,
        list(__value_row) AS __value_rows,
        list(__time_code) AS __time_codes,
-       list(__value) AS __values
-FROM __src
+       list(__value) AS __values,
+       CASE WHEN outside IS NULL THEN NULL ELSE list(__outside_row) END AS __outside_rows,
+       CASE WHEN outside IS NULL THEN NULL ELSE typeof(any_value(__outside_struct)) END
+           AS __outside_types
+FROM __rows
 GROUP BY __key;
 
 -- Future time codes back to time rows shaped like the input's (name and type).
@@ -273,7 +317,7 @@ CREATE OR REPLACE TEMP MACRO __tide_list_parts(parts) AS struct_pack({picked});
 -- The components of one series held as a list, for those who write their own GROUP BY.
 CREATE OR REPLACE TEMP MACRO tide_split_list(values, {_signature(SPLIT_LIST)}) AS
     CASE WHEN __tide_refuse({_checks(SPLIT_LIST)})
-    THEN __tide_list_parts({_udf_call("NULL, NULL, NULL, NULL, values", SPLIT_LIST)})
+    THEN __tide_list_parts({_udf_call("NULL, NULL, NULL, NULL, values, NULL, NULL", SPLIT_LIST)})
     END;
 """
 
@@ -288,6 +332,13 @@ def _split_keys() -> str:
 -- and inserted times rebuilt from their codes; without, the input rows as they came.
 -- fill_gaps is a constant, so DuckDB folds the CASE and keeps one branch.
 CREATE OR REPLACE TEMP MACRO __tide_split_keys(tbl, keys, time, value, answer, checks, {signature}) AS TABLE
+-- Without effects the UDF leaves their columns NULL: 0 (NULL where the series was left
+-- unsplit, as trend is), and adjusted as it is.
+SELECT * REPLACE (
+    coalesce(calendar_effect, CASE WHEN trend IS NOT NULL THEN 0.0 END) AS calendar_effect,
+    coalesce(outside_effect, CASE WHEN trend IS NOT NULL THEN 0.0 END) AS outside_effect,
+    coalesce(adjusted_season_only, adjusted) AS adjusted_season_only)
+FROM (
 SELECT unnest(__key),
        unnest(CASE WHEN coalesce(fill_gaps, false)
                    THEN __tide_grid_time_rows(__parts.source, __parts.time_codes, __time_rows)
@@ -301,6 +352,7 @@ SELECT unnest(__key),
        unnest(__parts.adjusted) AS adjusted,
        unnest(__parts.weight) AS weight,
        unnest(__parts.calendar_effect) AS calendar_effect,
+       unnest(__parts.outside_effect) AS outside_effect,
        unnest(__parts.adjusted_season_only) AS adjusted_season_only,
        coalesce(unnest(__parts.inserted), false) AS inserted,
        __parts.period AS __period,
@@ -312,9 +364,11 @@ SELECT unnest(__key),
        __parts.status AS status
 FROM (SELECT __key, __time_rows, __value_rows,
              {_udf_call(_LEAD_CALL, SPLIT, SPLIT_MULTI)} AS __parts
-      FROM __tide_grouped(tbl, keys, time, value),
-           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, answer) || checks) AS __ok) AS __checked
-      WHERE __checked.__ok);
+      FROM __tide_grouped(tbl, keys, time, value, outside := outside_columns),
+           (SELECT __tide_refuse(__tide_name_clashes(keys, time, value, answer)
+                                 || __tide_outside_clashes(keys, time, value, outside_columns)
+                                 || checks) AS __ok) AS __checked
+      WHERE __checked.__ok));
 """
 
 
@@ -388,7 +442,7 @@ CREATE OR REPLACE TEMP MACRO __tide_profile_keys(tbl, keys, time, value, {inner[
 SELECT unnest(__key), unnest(__p)
 FROM (SELECT __key,
              {_udf_call(_LEAD_CALL, PROFILE)} AS __p
-      FROM __tide_grouped(tbl, keys, time, value),
+      FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(PROFILE)}),
            {_refusals(PROFILE, answers.PROFILE)}
       WHERE __checked.__ok);
 
@@ -412,7 +466,7 @@ SELECT * FROM (
            __o.status AS __status
     FROM (SELECT __key, __time_rows, __value_rows,
                  {_udf_call(_LEAD_CALL, OUTLIERS)} AS __o
-          FROM __tide_grouped(tbl, keys, time, value),
+          FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(OUTLIERS)}),
                {_refusals(OUTLIERS, answers.OUTLIERS)}
           WHERE __checked.__ok))
 WHERE __is_outlier OR coalesce(all_rows, false) OR NOT starts_with(__status, 'ok');
@@ -435,7 +489,7 @@ SELECT unnest(__key),
        __f.status AS status
 FROM (SELECT __key, __time_rows,
              {_udf_call(_LEAD_CALL, FORECAST)} AS __f
-      FROM __tide_grouped(tbl, keys, time, value),
+      FROM __tide_grouped(tbl, keys, time, value, outside := {_outside(FORECAST)}),
            {_refusals(FORECAST, answers.FORECAST)}
       WHERE __checked.__ok);
 

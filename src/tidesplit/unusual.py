@@ -223,7 +223,9 @@ def unusual_points(
     remainder, (remainder - median) / (1.4826 MAD), the MAD scaled for normal consistency;
     the score is that z-score.
 
-    The expected value is trend + seasonal, back on the original scale.
+    With regression effects (``calendar_effects``, ``holidays``, ``outside_columns``) the
+    rule reads the remainder without them: a holiday's dip is expected, not unusual. The
+    expected value is trend + seasonal (+ the effects), back on the original scale.
     """
     if method not in OUTLIER_RULES:
         raise ParamError(f"rule must be one of {', '.join(OUTLIER_RULES)}, got {method!r}")
@@ -295,7 +297,9 @@ def unusual_points(
         low = r < lower
         flagged = high | low
     direction = np.where(high, "high", np.where(low, "low", None)).tolist()
-    expected = fit.copy()
+    # the effects fitted beside the split (holidays, outside columns) are expected: the
+    # rule reads the remainder without them, and the expected value holds them
+    expected = fit + result.calendar_effect + result.outside_effect
     lambdas = np.repeat(result.batch.lambdas, lengths)
     moved = ~np.isnan(lambdas)
     if moved.any():

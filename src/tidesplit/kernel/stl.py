@@ -508,3 +508,59 @@ def stl_batch_parallel(
     count = offsets.shape[0] - 1
     chunks = max(1, min(count, 4 * get_num_threads()))
     launch(_stl_batch_parallel, values, offsets, settings, trend, seasonal, weight, chunks)
+
+
+@njit(nogil=True, cache=True)
+def inner_passes_given_weights(
+    y: np.ndarray,
+    pw: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    buf: np.ndarray,
+) -> None:
+    """The inner loop of STL alone, ``settings[COL_INNER]`` passes, with the point weights
+    ``pw`` held fixed (robustness times presence: 0 where ``y`` is missing), starting from
+    the trend passed in ``trend``; writes ``trend`` and ``seasonal``.
+
+    For fits that compute the robustness weights themselves (regression effects beside a
+    robust split, ``kernel.regression``): with the weights fixed, the passes are linear in
+    ``y`` and the starting trend. The same steps as one round of ``_stl_one``'s loop
+    (kept in step with it; a test holds the two bitwise equal without robustness).
+    ``buf`` as for ``_stl_one``.
+    """
+    n = y.shape[0]
+    period = settings[COL_PERIOD]
+    width = n + 2 * period + 2
+    detrended = buf[0:width]
+    cycle = buf[width : 2 * width]
+    smoothed = buf[2 * width : 3 * width]
+    lowpass = buf[3 * width : 4 * width]
+    ones = buf[5 * width : 6 * width]
+    kmax = n // period + 3
+    sub_y = buf[7 * width : 7 * width + kmax]
+    sub_w = buf[7 * width + kmax : 7 * width + 2 * kmax]
+    sub_fit = buf[7 * width + 2 * kmax : 7 * width + 3 * kmax]
+    for i in range(width):
+        ones[i] = 1.0
+    for _ in range(settings[COL_INNER]):
+        for i in range(n):
+            detrended[i] = y[i] - trend[i]
+        _subseries_smooth(
+            detrended, pw, n, period, settings[COL_SEASON_SPAN], settings[COL_SEASON_DEGREE],
+            settings[COL_SEASON_JUMP], cycle, sub_y, sub_w, sub_fit,
+        )  # fmt: skip
+        _moving_average(cycle, n + 2 * period, period, smoothed)
+        _moving_average(smoothed, n + period + 1, period, lowpass)
+        _moving_average(lowpass, n + 2, 3, smoothed)
+        smooth(
+            smoothed, ones, n, settings[COL_LOWPASS_SPAN], settings[COL_LOWPASS_DEGREE],
+            settings[COL_LOWPASS_JUMP], lowpass,
+        )  # fmt: skip
+        for i in range(n):
+            seasonal[i] = cycle[period + i] - lowpass[i]
+            detrended[i] = y[i] - seasonal[i]
+        smooth(
+            detrended, pw, n, settings[COL_TREND_SPAN], settings[COL_TREND_DEGREE],
+            settings[COL_TREND_JUMP], trend,
+        )  # fmt: skip
