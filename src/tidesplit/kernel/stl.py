@@ -541,6 +541,7 @@ def inner_passes_given_weights(
     sub_y = buf[7 * width : 7 * width + kmax]
     sub_w = buf[7 * width + kmax : 7 * width + 2 * kmax]
     sub_fit = buf[7 * width + 2 * kmax : 7 * width + 3 * kmax]
+    lfit = buf[7 * width + 3 * kmax : 7 * width + 7 * kmax].reshape((LANES, kmax))
     for i in range(width):
         ones[i] = 1.0
     for _ in range(settings[COL_INNER]):
@@ -548,7 +549,7 @@ def inner_passes_given_weights(
             detrended[i] = y[i] - trend[i]
         _subseries_smooth(
             detrended, pw, n, period, settings[COL_SEASON_SPAN], settings[COL_SEASON_DEGREE],
-            settings[COL_SEASON_JUMP], cycle, sub_y, sub_w, sub_fit,
+            settings[COL_SEASON_JUMP], cycle, sub_y, sub_w, sub_fit, lfit,
         )  # fmt: skip
         _moving_average(cycle, n + 2 * period, period, smoothed)
         _moving_average(smoothed, n + period + 1, period, lowpass)
