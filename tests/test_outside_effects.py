@@ -670,3 +670,31 @@ def test_several_periods_sql_equals_python_and_robust_is_refused():
                        "without robustness"):  # fmt: skip
         api.split_table(frame, "meter", "t", "load", periods=[24, 168], robust=True,
                         outside_columns=["temperature"])  # fmt: skip
+
+
+@pytest.mark.parametrize(
+    "name", ['we"ird', "semi;colon); DROP TABLE sales; --", "dot.ted", "ünïcode", "select", "a b"]
+)
+def test_outside_columns_with_hostile_names(name):
+    # an outside column's name is data in the macros (COLUMNS of a list), never SQL text:
+    # the same numbers as under a plain name, and the table unharmed
+    frame = simulated_days(2, seed=11)[["shop", "day", "sales", "price"]]
+    con = tidesplit.connect()
+    con.register("plain_rows", pa.Table.from_pandas(frame, preserve_index=False))
+    con.execute("CREATE TABLE sales AS SELECT * FROM plain_rows")
+    renamed = frame.rename(columns={"price": name})
+    con.register("odd_rows", pa.Table.from_pandas(renamed, preserve_index=False))
+    con.execute("CREATE TABLE odd AS SELECT * FROM odd_rows")
+    quoted = "'" + name.replace("'", "''") + "'"
+    plain = con.sql("SELECT * FROM tide_split(sales, 'shop', 'day', 'sales', "
+                    "outside_columns := ['price']) ORDER BY shop, day").df()  # fmt: skip
+    odd = con.sql(f"SELECT * FROM tide_split(odd, 'shop', 'day', 'sales', "
+                  f"outside_columns := [{quoted}]) ORDER BY shop, day").df()  # fmt: skip
+    for column in ("trend", "outside_effect", "remainder"):
+        assert np.array_equal(plain[column].to_numpy(), odd[column].to_numpy())
+    effects_found = con.sql(f"SELECT effects FROM tide_profile(odd, 'shop', 'day', 'sales', "
+                            f"outside_columns := [{quoted}])").fetchall()  # fmt: skip
+    assert all(row[0][0]["name"] == name for row in effects_found)
+    assert con.sql("SELECT count(*) FROM sales").fetchall()[0][0] == len(frame)
+    python = api.split_table(renamed, "shop", "day", "sales", outside_columns=[name])
+    assert np.array_equal(python["outside_effect"].to_numpy(), odd["outside_effect"].to_numpy())
