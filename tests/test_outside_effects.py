@@ -698,3 +698,19 @@ def test_outside_columns_with_hostile_names(name):
     assert con.sql("SELECT count(*) FROM sales").fetchall()[0][0] == len(frame)
     python = api.split_table(renamed, "shop", "day", "sales", outside_columns=[name])
     assert np.array_equal(python["outside_effect"].to_numpy(), odd["outside_effect"].to_numpy())
+
+
+def test_filled_gaps_have_no_outside_effect():
+    # a time missing inside a series has no outside value: its outside effect is NULL, while
+    # the calendar (holiday) effect, known from the date, is there
+    frame = simulated_days(2, seed=12)
+    frame = frame[~frame["day"].isin(pd.to_datetime(["2021-03-14", "2022-06-01"]))]
+    out = api.split_table(frame, "shop", "day", "sales", holidays=HOLIDAYS,
+                          outside_columns=["price"], fill_gaps=True)  # fmt: skip
+    inserted = out[out["inserted"]]
+    assert len(inserted) == 4
+    assert inserted["outside_effect"].isna().all()
+    assert inserted["calendar_effect"].notna().all()
+    assert out.loc[~out["inserted"], "outside_effect"].notna().all()
+    founding = inserted["day"] == pd.Timestamp("2021-03-14")
+    assert (inserted.loc[founding, "calendar_effect"] < -20).all()  # the holiday, fitted

@@ -87,8 +87,9 @@ SPLIT_COLUMNS = (
         "outside_effect",
         "DOUBLE",
         _on_scale(
-            "the effect of the outside columns at the point (`outside_columns`; 0 without); "
-            "it stays in `adjusted`"
+            "the effect of the outside columns at the point (`outside_columns`; 0 without, "
+            "NULL where an outside value is, as in a gap filled by `fill_gaps`); it stays in "
+            "`adjusted`"
         ),
     ),
     Column(

@@ -951,6 +951,8 @@ def _add_effects(
             np.ascontiguousarray(fitted.coef[:, columns]), ok, part,
         )  # fmt: skip
     result.remainder -= np.where(rows_ok, fitted.effect, 0.0)
+    if design.unknown is not None:
+        outside_part[design.unknown] = np.nan  # no outside value there, so no effect
     result.calendar_effect = calendar_part
     result.outside_effect = outside_part
     result.effect_coef = np.where(ok[:, None], fitted.coef, np.nan)

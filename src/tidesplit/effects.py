@@ -210,6 +210,9 @@ class Design:
     calendar_width: int  # the first columns make the calendar effect, the rest the outside one
     absent: np.ndarray  # series x columns: the column does not apply
     notes: list[str] = field(default_factory=list)  # per series, why columns do not apply
+    # per point: an outside value is unknown there (a gap, or NULL beside a NULL value), so
+    # the outside effect is too
+    unknown: np.ndarray | None = None
 
 
 def holiday_counts(
@@ -333,11 +336,13 @@ def build(
             rows = np.repeat(timed, lengths)
             X[rows, columns] = holiday_counts(first, last, request.holidays)
             _centre(X, columns, offsets, seen, periods)
+    unknown = None
     if request.outside:
         X[:, width:] = outside
         _centre(X, slice(width, len(names)), offsets, seen, np.ones(count, dtype=np.int64))
-        X[:, width:] = np.where(np.isfinite(X[:, width:]), X[:, width:], 0.0)
-    return Design(X, names, width, absent, notes)
+        unknown = ~np.isfinite(X[:, width:]).all(axis=1)
+        X[unknown, width:] = np.where(np.isfinite(X[unknown, width:]), X[unknown, width:], 0.0)
+    return Design(X, names, width, absent, notes, unknown)
 
 
 def _joined(note: str, more: str) -> str:
