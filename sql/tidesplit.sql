@@ -85,8 +85,10 @@ CREATE OR REPLACE TEMP MACRO __tide_outside_clashes(keys, time, value, outside) 
                   || c || '_x, ...)');
 
 -- Every series of a table as lists, one row per key. With outside columns, each row's value
--- and outside values as one list (the value first: COLUMNS needs at least one column), and
--- the columns' types as they were; without, neither is built (the CASE folds away).
+-- and outside values as one list of DOUBLE (the value first: COLUMNS needs at least one
+-- column), and the columns' types as they were; without, neither is built (the CASE folds
+-- away). The list goes through JSON, which keeps every double's bits: the columns' own
+-- names never appear beside the names made here, whatever they are.
 CREATE OR REPLACE TEMP MACRO __tide_grouped(tbl, keys, time, value, outside := NULL) AS TABLE
 WITH __src AS (
     SELECT struct_pack(*COLUMNS(keys)) AS __key,
@@ -94,14 +96,12 @@ WITH __src AS (
            __tide_time_code(COLUMNS([time]), time) AS __time_code,
            struct_pack(COLUMNS([value])) AS __value_row,
            CAST(COLUMNS([value]) AS DOUBLE) AS __value,
-           TRY_CAST(COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))) AS DOUBLE),
            struct_pack(*COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))))
                AS __outside_struct
     FROM query_table(tbl)
 ), __rows AS (
     SELECT __key, __time_row, __time_code, __value_row, __value, __outside_struct,
-           list_value(*COLUMNS(list_concat([value], coalesce(TRY_CAST(outside AS VARCHAR[]), []))))
-               AS __outside_row
+           TRY_CAST(to_json(struct_values(__outside_struct)) AS DOUBLE[]) AS __outside_row
     FROM __src
 )
 -- No ORDER BY: the lists of one group share one order, and the UDF sorts by time itself,

@@ -714,3 +714,22 @@ def test_filled_gaps_have_no_outside_effect():
     assert out.loc[~out["inserted"], "outside_effect"].notna().all()
     founding = inserted["day"] == pd.Timestamp("2021-03-14")
     assert (inserted.loc[founding, "calendar_effect"] < -20).all()  # the holiday, fitted
+
+
+@pytest.mark.parametrize(
+    "name", ["__key", "__time_row", "__value_row", "__value", "__outside_struct", "__outside_row"]
+)
+def test_a_value_column_named_like_the_macros_own_columns(name):
+    # the macros' own column names never stand beside the input's columns: a value column
+    # named like one of them splits as under a plain name, with and without outside columns
+    frame = simulated_days(2, seed=13)[["shop", "day", "sales", "price"]]
+    con = tidesplit.connect()
+    con.register("plain_rows", pa.Table.from_pandas(frame, preserve_index=False))
+    renamed = frame.rename(columns={"sales": name})
+    con.register("odd_rows", pa.Table.from_pandas(renamed, preserve_index=False))
+    for extra in ("", ", outside_columns := ['price']"):
+        plain = con.sql(f"SELECT trend, outside_effect FROM tide_split(plain_rows, 'shop', "
+                        f"'day', 'sales'{extra}) ORDER BY shop, day").df()  # fmt: skip
+        odd = con.sql(f"SELECT trend, outside_effect FROM tide_split(odd_rows, 'shop', 'day', "
+                      f"'{name}'{extra}) ORDER BY shop, day").df()  # fmt: skip
+        assert np.array_equal(plain.to_numpy(), odd.to_numpy())
