@@ -7,6 +7,11 @@ over the 400-year Gregorian cycle (years 2000 to 2399): what is left varies from
 year only, so the seasonal part keeps the average calendar and the effect holds the
 departures from it (the long-run mean is taken away for the same reason by Bell & Hillmer
 1983). The numbers are computed in ``kernel.regression``.
+
+Holiday columns count each named day's occurrences in the days a grid point covers, and
+outside columns are the input's own numbers on the grid; both are centred per series (see
+``build``). Calendar and holiday columns make the calendar effect, outside columns the
+outside effect.
 """
 
 from __future__ import annotations
