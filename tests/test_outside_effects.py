@@ -733,3 +733,37 @@ def test_a_value_column_named_like_the_macros_own_columns(name):
         odd = con.sql(f"SELECT trend, outside_effect FROM tide_split(odd_rows, 'shop', 'day', "
                       f"'{name}'{extra}) ORDER BY shop, day").df()  # fmt: skip
         assert np.array_equal(plain.to_numpy(), odd.to_numpy())
+
+
+def test_forecast_with_several_periods_adds_the_holidays_ahead():
+    # hourly series (periods 24 and 168) with a holiday listed ahead: the forecast is that
+    # of the series without its calendar effect plus the coefficient times the holiday's
+    # column at the future hours, centred on the fit's mean as in the fit
+    frame, holidays = simulated_hours(2)
+    frame = frame[frame["t"] < "2023-04-01"]
+    ahead_day = pd.Timestamp("2023-04-04").date()
+    listed = pd.concat([holidays, pd.DataFrame({"day": [ahead_day], "name": ["spring"]})])
+    given = {"periods": [24, 168], "holidays": listed}
+    ahead = api.forecast(frame, "meter", "t", "load", steps_ahead=24 * 7, **given)
+    split = api.split_table(frame, "meter", "t", "load", **given)
+    found = api.profile(frame, "meter", "t", "load", **given)
+    for meter in found["meter"]:
+        rows = {r["name"]: r["coefficient"] for r in found.loc[found["meter"] == meter,
+                                                              "effects"].iloc[0]}  # fmt: skip
+        own = split[split["meter"] == meter]
+        adjusted = own["load"] - own["calendar_effect"]
+        without = api.forecast(
+            pd.DataFrame({"meter": meter, "t": own["t"], "v": adjusted}),
+            "meter", "t", "v", periods=[24, 168], steps_ahead=24 * 7,
+        )  # fmt: skip
+        mine = ahead[ahead["meter"] == meter]
+        hours = own["t"].dt.date
+        means = {name: np.isin(hours, listed.loc[listed["name"] == name, "day"]).mean()
+                 for name in rows}  # fmt: skip
+        future = mine["t"].dt.date.to_numpy()
+        effect = sum(
+            rows[name] * (np.isin(future, listed.loc[listed["name"] == name, "day"]) - means[name])
+            for name in rows
+        )
+        assert np.allclose(mine["forecast"], without["forecast"].to_numpy() + effect, rtol=1e-9)
+        assert rows["spring"] > 4  # the holiday was made +6

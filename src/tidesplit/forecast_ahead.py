@@ -268,9 +268,15 @@ def _effects_ahead(
     fitted_rows = np.arange(int(result.offsets[-1])) + shift
     seen = np.zeros(int(extended[-1]), dtype=bool)
     seen[fitted_rows] = ~np.isnan(result.trend + result.seasonal + result.remainder)
+    # centred as in the fit (keyed_split.split_rows): per position of the period, or on
+    # the series' mean with several periods
+    if result.batch.series_periods is not None:
+        periods = np.ones(count, dtype=np.int64)
+    else:
+        periods = np.maximum(result.batch.periods, 1)
     design = effects_front.build(
         effects, replace(grid, offsets=extended), extended, kind,
-        time_zone=time_zone, seen=seen, periods=np.maximum(result.batch.periods, 1),
+        time_zone=time_zone, seen=seen, periods=periods,
     )  # fmt: skip
     future = (extended[1:] - horizon)[:, None] + np.arange(horizon)[None, :]
     coef = np.where(np.isnan(result.batch.effect_coef), 0.0, result.batch.effect_coef)
