@@ -334,6 +334,52 @@ def buffer_size(n: int, period: int) -> int:
 
 
 @njit(nogil=True, cache=True)
+def _inner_pass(
+    y: np.ndarray,
+    pw: np.ndarray,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    detrended: np.ndarray,
+    cycle: np.ndarray,
+    smoothed: np.ndarray,
+    lowpass: np.ndarray,
+    ones: np.ndarray,
+    sub_y: np.ndarray,
+    sub_w: np.ndarray,
+    sub_fit: np.ndarray,
+    lfit: np.ndarray,
+) -> None:
+    """One pass of STL's inner loop (the paper, section 2, steps 1 to 6) with the point
+    weights ``pw`` held fixed: the seasonal part from ``y - trend``, then the trend from
+    ``y - seasonal``. The other arrays are ``_stl_one``'s scratch."""
+    n = y.shape[0]
+    period = settings[COL_PERIOD]
+    for i in range(n):
+        detrended[i] = y[i] - trend[i]
+    _subseries_smooth(
+        detrended, pw, n, period, settings[COL_SEASON_SPAN], settings[COL_SEASON_DEGREE],
+        settings[COL_SEASON_JUMP], cycle, sub_y, sub_w, sub_fit, lfit,
+    )  # fmt: skip
+    # Low-pass filter of the cycle-subseries (paper, step 3): moving averages of length
+    # period, period and 3, then a loess fit.
+    _moving_average(cycle, n + 2 * period, period, smoothed)
+    _moving_average(smoothed, n + period + 1, period, lowpass)
+    _moving_average(lowpass, n + 2, 3, smoothed)
+    smooth(
+        smoothed, ones, n, settings[COL_LOWPASS_SPAN], settings[COL_LOWPASS_DEGREE],
+        settings[COL_LOWPASS_JUMP], lowpass,
+    )  # fmt: skip
+    for i in range(n):
+        seasonal[i] = cycle[period + i] - lowpass[i]
+        detrended[i] = y[i] - seasonal[i]
+    smooth(
+        detrended, pw, n, settings[COL_TREND_SPAN], settings[COL_TREND_DEGREE],
+        settings[COL_TREND_JUMP], trend,
+    )  # fmt: skip
+
+
+@njit(nogil=True, cache=True)
 def _stl_one(
     y: np.ndarray,
     settings: np.ndarray,
@@ -348,9 +394,6 @@ def _stl_one(
     """
     n = y.shape[0]
     period = settings[COL_PERIOD]
-    season_span = settings[COL_SEASON_SPAN]
-    trend_span = settings[COL_TREND_SPAN]
-    lowpass_span = settings[COL_LOWPASS_SPAN]
     inner = settings[COL_INNER]
     outer = settings[COL_OUTER]
     width = n + 2 * period + 2
@@ -377,48 +420,10 @@ def _stl_one(
     passes = 0
     while True:
         for _ in range(inner):
-            for i in range(n):
-                detrended[i] = y[i] - trend[i]
-            _subseries_smooth(
-                detrended,
-                pw,
-                n,
-                period,
-                season_span,
-                settings[COL_SEASON_DEGREE],
-                settings[COL_SEASON_JUMP],
-                cycle,
-                sub_y,
-                sub_w,
-                sub_fit,
-                lfit,
-            )
-            # Low-pass filter of the cycle-subseries (paper, step 3): moving averages of
-            # length period, period and 3, then a loess fit.
-            _moving_average(cycle, n + 2 * period, period, smoothed)
-            _moving_average(smoothed, n + period + 1, period, lowpass)
-            _moving_average(lowpass, n + 2, 3, smoothed)
-            smooth(
-                smoothed,
-                ones,
-                n,
-                lowpass_span,
-                settings[COL_LOWPASS_DEGREE],
-                settings[COL_LOWPASS_JUMP],
-                lowpass,
-            )
-            for i in range(n):
-                seasonal[i] = cycle[period + i] - lowpass[i]
-                detrended[i] = y[i] - seasonal[i]
-            smooth(
-                detrended,
-                pw,
-                n,
-                trend_span,
-                settings[COL_TREND_DEGREE],
-                settings[COL_TREND_JUMP],
-                trend,
-            )
+            _inner_pass(
+                y, pw, settings, trend, seasonal, detrended, cycle, smoothed, lowpass, ones,
+                sub_y, sub_w, sub_fit, lfit,
+            )  # fmt: skip
         passes += 1
         if passes > outer:
             break
@@ -525,8 +530,7 @@ def inner_passes_given_weights(
 
     For fits that compute the robustness weights themselves (regression effects beside a
     robust split, ``kernel.regression``): with the weights fixed, the passes are linear in
-    ``y`` and the starting trend. The same steps as one round of ``_stl_one``'s loop
-    (kept in step with it; a test holds the two bitwise equal without robustness).
+    ``y`` and the starting trend: ``_stl_one``'s own inner pass, ``_inner_pass``.
     ``buf`` as for ``_stl_one``.
     """
     n = y.shape[0]
@@ -545,23 +549,7 @@ def inner_passes_given_weights(
     for i in range(width):
         ones[i] = 1.0
     for _ in range(settings[COL_INNER]):
-        for i in range(n):
-            detrended[i] = y[i] - trend[i]
-        _subseries_smooth(
-            detrended, pw, n, period, settings[COL_SEASON_SPAN], settings[COL_SEASON_DEGREE],
-            settings[COL_SEASON_JUMP], cycle, sub_y, sub_w, sub_fit, lfit,
-        )  # fmt: skip
-        _moving_average(cycle, n + 2 * period, period, smoothed)
-        _moving_average(smoothed, n + period + 1, period, lowpass)
-        _moving_average(lowpass, n + 2, 3, smoothed)
-        smooth(
-            smoothed, ones, n, settings[COL_LOWPASS_SPAN], settings[COL_LOWPASS_DEGREE],
-            settings[COL_LOWPASS_JUMP], lowpass,
-        )  # fmt: skip
-        for i in range(n):
-            seasonal[i] = cycle[period + i] - lowpass[i]
-            detrended[i] = y[i] - seasonal[i]
-        smooth(
-            detrended, pw, n, settings[COL_TREND_SPAN], settings[COL_TREND_DEGREE],
-            settings[COL_TREND_JUMP], trend,
+        _inner_pass(
+            y, pw, settings, trend, seasonal, detrended, cycle, smoothed, lowpass, ones,
+            sub_y, sub_w, sub_fit, lfit,
         )  # fmt: skip
