@@ -36,7 +36,7 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 from datasets import open_collections
-from open_checks import flags, holdout_forecasts, old_rule_flags, spike_recall
+from open_checks import flags, holdout_forecasts, hourly_noise, old_rule_flags, spike_recall
 
 import tidesplit
 
@@ -78,20 +78,7 @@ def several_periods_flag_rate(weeks: tuple[int, ...] = (6, 12), count: int = 40)
     rng = np.random.default_rng(3)
     found = []
     for w in weeks:
-        hours = np.arange(24 * 7 * w)
-        frame = pd.concat(
-            pd.DataFrame(
-                {
-                    "k": i,
-                    "t": hours,
-                    "v": 20
-                    + 4 * np.sin(2 * np.pi * hours / 24)
-                    + 2 * np.sin(2 * np.pi * hours / 168)
-                    + rng.normal(0, 0.3, hours.size),
-                }
-            )
-            for i in range(count)
-        )
+        frame = hourly_noise(w, count, rng)
         flagged = len(tidesplit.outliers(frame, "k", "t", "v", periods=[24, 168]))
         found.append(f"{w} weeks: {flagged} of {len(frame):,} ({flagged / len(frame):.4%})")
     return "; ".join(found)

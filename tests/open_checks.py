@@ -13,6 +13,25 @@ import tidesplit
 from tidesplit.kernel import strengths
 
 
+def hourly_noise(weeks: int, count: int, rng: np.random.Generator) -> pd.DataFrame:
+    """``count`` series (key ``k``) of ``weeks`` weeks of hourly Gaussian noise (sd 0.3)
+    around a daily and a weekly cycle: the several-period case of the flag rate."""
+    hours = np.arange(24 * 7 * weeks)
+    return pd.concat(
+        pd.DataFrame(
+            {
+                "k": i,
+                "t": hours,
+                "v": 20
+                + 4 * np.sin(2 * np.pi * hours / 24)
+                + 2 * np.sin(2 * np.pi * hours / 168)
+                + rng.normal(0, 0.3, hours.size),
+            }
+        )
+        for i in range(count)
+    )
+
+
 def as_frame(series: Sequence[OpenSeries]) -> pd.DataFrame:
     """Many series in one long table: key, integer time, value."""
     return pd.concat(

@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from datasets import open_collections
-from open_checks import flags, old_rule_flags, spike_recall
+from open_checks import flags, hourly_noise, old_rule_flags, spike_recall
 
 import tidesplit
 from tidesplit import unusual
@@ -154,20 +154,7 @@ def test_several_periods_on_few_cycles_keep_the_error_rate(rng):
     # behind each weekly seasonal value, so the fit leans hard on every point it sees,
     # and the points it set aside would look unusual unless brought to a kept point's
     # spread. The stated rate: at most 1 point in 1,000 (measured 0.9 in 1,000)
-    hours = np.arange(24 * 7 * 6)
-    frame = pd.concat(
-        pd.DataFrame(
-            {
-                "k": i,
-                "t": hours,
-                "v": 20
-                + 4 * np.sin(2 * np.pi * hours / 24)
-                + 2 * np.sin(2 * np.pi * hours / 168)
-                + rng.normal(0, 0.3, hours.size),
-            }
-        )
-        for i in range(40)
-    )
+    frame = hourly_noise(6, 40, rng)
     found = tidesplit.outliers(frame, "k", "t", "v", periods=[24, 168])
     assert len(found) <= 0.001 * len(frame), len(found)
 
