@@ -86,13 +86,13 @@ def main() -> None:
 
 DAILY_QUERIES = {
     "plain split": "tide_split(takings, 'shop', 'day', 'takings', transform := 'log')",
-    "holidays": (
+    "special_days": (
         "tide_split(takings, 'shop', 'day', 'takings', transform := 'log', "
-        f"holidays := {HOLIDAYS})"
+        f"special_days := {HOLIDAYS})"
     ),
     "holidays, outside": (
         "tide_split(takings, 'shop', 'day', 'takings', transform := 'log', "
-        f"holidays := {HOLIDAYS}, outside_columns := ['promotion'])"
+        f"special_days := {HOLIDAYS}, outside_columns := ['promotion'])"
     ),
 }
 

@@ -207,7 +207,7 @@ PROMOTION_SHARE = 1 / 12
 
 def chain_holidays(first_year: int = 2021, years: int = 3) -> pa.Table:
     """The chain's holidays as a table of ``day`` (DATE) and ``name``: what
-    ``holidays := (SELECT list(struct_pack(day := day, name := name)) FROM ...)`` takes.
+    ``special_days := (SELECT list(struct_pack(day := day, name := name)) FROM ...)`` takes.
 
     >>> chain_holidays(2021, 1).to_pylist()[1]
     {'day': datetime.date(2021, 10, 29), 'name': 'lantern_night'}
@@ -229,7 +229,7 @@ def daily_takings(shops: int = 8, years: int = 3, seed: int = 23) -> pa.Table:
 
     Each day has the shops' week (``WEEKDAY_LIFT``), a yearly swing, the chain's holidays
     (``HOLIDAY_LIFT``, days from ``chain_holidays``) and the shop's promotions
-    (``PROMOTION_LIFT``): what ``holidays`` and ``outside_columns := ['promotion']`` take
+    (``PROMOTION_LIFT``): what ``special_days`` and ``outside_columns := ['promotion']`` take
     out, on the log scale.
 
     >>> table = daily_takings(shops=2, years=1)

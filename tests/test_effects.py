@@ -829,7 +829,7 @@ def test_robust_fit_with_holidays_and_outside_columns():
     frame = simulated_days(3, seed=2)
     far = np.random.default_rng(2).choice(len(frame), 40, replace=False)
     frame.loc[far, "sales"] += 40.0
-    asked = dict(holidays=HOLIDAYS, outside_columns=["price", "promo"], robust=True)
+    asked = dict(special_days=HOLIDAYS, outside_columns=["price", "promo"], robust=True)
     found = api.profile(frame, "shop", "day", "sales", **asked)
     out = api.split_table(frame, "shop", "day", "sales", **asked)
     assert (found["status"] == "ok").all()

@@ -52,7 +52,7 @@ def simulated_days(series: int, seed: int = 0) -> pd.DataFrame:
 
 
 def _fit(frame: pd.DataFrame, **given) -> tuple[pd.DataFrame, pd.DataFrame]:
-    given = {"holidays": HOLIDAYS, "outside_columns": ["price", "promo"], **given}
+    given = {"special_days": HOLIDAYS, "outside_columns": ["price", "promo"], **given}
     out = api.split_table(frame, "shop", "day", "sales", **given)
     found = api.profile(frame, "shop", "day", "sales", **given)
     return out, found
@@ -128,7 +128,7 @@ def test_holiday_days_follow_the_session_time_zone():
 
 
 def test_arguments_checked():
-    holidays = next(a for a in arguments.REGISTRY if a.name == "holidays")
+    holidays = next(a for a in arguments.REGISTRY if a.name == "special_days")
     assert arguments.named_days(holidays, [("2024-12-25", "x"), ("2024-12-25", "x")]) == (
         (np.datetime64("2024-12-25").astype(int), "x"),
     )
@@ -146,13 +146,13 @@ def test_arguments_checked():
         ("2024-01-01", r"must be a list of \{day, name\} entries"),
     ):
         with pytest.raises(ParamError, match=words):
-            arguments.accept("split", {"holidays": bad})
+            arguments.accept("split", {"special_days": bad})
     with pytest.raises(ParamError, match="two effects are named 'Easter'"):
         effects.request({"calendar_effects": "easter", "outside_columns": ("Easter",)})
     with pytest.raises(ParamError, match="unknown argument outside_columns of tide_forecast"):
         arguments.accept("forecast", {"outside_columns": ["price"]})
-    with pytest.raises(ParamError, match="unknown argument holidays of tide_audit"):
-        arguments.accept("audit", {"holidays": []})
+    with pytest.raises(ParamError, match="unknown argument special_days of tide_audit"):
+        arguments.accept("audit", {"special_days": []})
 
 
 # ------------------------------------------------------------------- the fit
@@ -237,7 +237,7 @@ def test_many_keys_in_one_call_equal_each_alone(recovered):
     for shop in ("s003", "s041"):
         alone = api.split_table(
             frame[frame["shop"] == shop], "shop", "day", "sales",
-            holidays=HOLIDAYS, outside_columns=["price", "promo"],
+            special_days=HOLIDAYS, outside_columns=["price", "promo"],
         )  # fmt: skip
         together = out[out["shop"] == shop]
         for name in ("trend", "seasonal", "calendar_effect", "outside_effect"):
@@ -283,7 +283,8 @@ def test_integer_times_have_no_holidays_but_take_outside_columns():
     x = rng.normal(size=84)
     frame = pd.DataFrame({"k": "a", "t": t, "v": 5 + np.sin(2 * np.pi * t / 7) + 3 * x
                           + rng.normal(0, 0.1, 84), "x": x})  # fmt: skip
-    out = api.split_table(frame, "k", "t", "v", period=7, holidays=HOLIDAYS, outside_columns=["x"])
+    out = api.split_table(frame, "k", "t", "v", period=7, special_days=HOLIDAYS,
+                          outside_columns=["x"])  # fmt: skip
     assert out["status"].iloc[0] == (
         "ok; no holiday effects: they need dates, the series has integer times"
     )
@@ -295,7 +296,7 @@ def test_integer_times_have_no_holidays_but_take_outside_columns():
 def test_no_effects_asked_is_bitwise_the_plain_split():
     frame = simulated_days(3)
     plain = api.split_table(frame[["shop", "day", "sales"]], "shop", "day", "sales")
-    asked_none = api.split_table(frame, "shop", "day", "sales", outside_columns=[], holidays=[])
+    asked_none = api.split_table(frame, "shop", "day", "sales", outside_columns=[], special_days=[])
     for name in ("trend", "seasonal", "remainder", "adjusted", "outside_effect"):
         assert np.array_equal(plain[name], asked_none[name], equal_nan=True)
     assert (plain["outside_effect"] == 0).all()
@@ -317,18 +318,18 @@ def test_sql_equals_python_to_the_bit():
     con.register("sales", pa.Table.from_pandas(shuffled, preserve_index=False))
     holidays = _sql_holidays(con)
     sql = con.sql(
-        f"SELECT * FROM tide_split('sales', 'shop', 'day', 'sales', holidays := {holidays}, "
+        f"SELECT * FROM tide_split('sales', 'shop', 'day', 'sales', special_days := {holidays}, "
         "outside_columns := ['price', 'promo']) ORDER BY shop, day"
     ).df()
-    python = api.split_table(frame, "shop", "day", "sales", holidays=HOLIDAYS,
+    python = api.split_table(frame, "shop", "day", "sales", special_days=HOLIDAYS,
                              outside_columns=["price", "promo"])  # fmt: skip
     for name in ("trend", "seasonal", "remainder", "calendar_effect", "outside_effect"):
         assert np.array_equal(sql[name].to_numpy(), python[name].to_numpy(), equal_nan=True)
     profile = con.sql(
         f"SELECT shop, effects FROM tide_profile('sales', 'shop', 'day', 'sales', "
-        f"holidays := {holidays}, outside_columns := ['price', 'promo']) ORDER BY shop"
+        f"special_days := {holidays}, outside_columns := ['price', 'promo']) ORDER BY shop"
     ).df()
-    direct = api.profile(frame, "shop", "day", "sales", holidays=HOLIDAYS,
+    direct = api.profile(frame, "shop", "day", "sales", special_days=HOLIDAYS,
                          outside_columns=["price", "promo"])  # fmt: skip
     for a, b in zip(profile["effects"], direct["effects"], strict=True):
         assert [r["coefficient"] for r in a] == [r["coefficient"] for r in b]
@@ -349,9 +350,10 @@ def test_sql_refusals_name_the_column():
         with pytest.raises(Exception, match=words):
             con.sql(f"SELECT * FROM tide_split('sales', 'shop', 'day', 'sales', "
                     f"outside_columns := {outside})").fetchall()  # fmt: skip
-    with pytest.raises(Exception, match=r"holidays must be a list of \{day DATE, name VARCHAR\}"):
+    refused = r"special_days must be a list of \{day DATE, name VARCHAR\}"
+    with pytest.raises(Exception, match=refused):
         con.sql("SELECT * FROM tide_split('sales', 'shop', 'day', 'sales', "
-                "holidays := ['2024-01-01'])").fetchall()  # fmt: skip
+                "special_days := ['2024-01-01'])").fetchall()  # fmt: skip
     # a NULL outside value where the value is observed: the key and time are named
     con.execute(
         "CREATE TABLE gappy AS SELECT * REPLACE (CASE WHEN shop = 's001' AND "
@@ -372,7 +374,7 @@ def test_demo_daily_takings_show_the_days_they_were_made_with():
     table = retail_chain.daily_takings(shops=12)
     found = api.profile(
         table, "shop", "day", "takings", transform="log",
-        holidays=retail_chain.chain_holidays(), outside_columns=["promotion"],
+        special_days=retail_chain.chain_holidays(), outside_columns=["promotion"],
     )  # fmt: skip
     z = {}
     truth = {name: np.log1p(lift) for name, lift in retail_chain.HOLIDAY_LIFT.items()}
@@ -399,15 +401,15 @@ def test_command_line_takes_outside_columns_and_a_holidays_file(tmp_path):
     HOLIDAYS.to_csv(holidays, index=False)
     code = main(["split", "--from", str(source), "--to", str(target), "--key", "shop",
                  "--time", "day", "--value", "sales", "--outside-columns", "price,promo",
-                 "--holidays", str(holidays), "--quiet"])  # fmt: skip
+                 "--special-days", str(holidays), "--quiet"])  # fmt: skip
     assert code in (0, None)
     table = pq.read_table(target).to_pandas().sort_values(["shop", "day"])
-    direct = api.split_table(frame, "shop", "day", "sales", holidays=HOLIDAYS,
+    direct = api.split_table(frame, "shop", "day", "sales", special_days=HOLIDAYS,
                              outside_columns=["price", "promo"])  # fmt: skip
     for name in ("trend", "calendar_effect", "outside_effect"):
         assert np.array_equal(table[name].to_numpy(), direct[name].to_numpy())
     assert main(["split", "--from", str(source), "--to", str(target), "--key", "shop",
-                 "--time", "day", "--value", "sales", "--holidays",
+                 "--time", "day", "--value", "sales", "--special-days",
                  str(tmp_path / "none.csv"), "--quiet"]) == 2  # fmt: skip
 
 
@@ -470,7 +472,7 @@ def test_outliers_expect_the_holidays_and_promotions():
     holidays = retail_chain.chain_holidays()
     holiday_days = set(holidays.column("day").to_pylist())
     plain = api.outliers(table, "shop", "day", "takings", transform="log", all_rows=True)
-    fitted = api.outliers(table, "shop", "day", "takings", transform="log", holidays=holidays,
+    fitted = api.outliers(table, "shop", "day", "takings", transform="log", special_days=holidays,
                           outside_columns=["promotion"], all_rows=True)  # fmt: skip
     on_holidays = plain["is_outlier"] & plain["day"].isin(holiday_days)
     assert on_holidays.sum() >= 12  # of 24 holiday points, without the effects
@@ -485,7 +487,7 @@ def test_outliers_expect_the_holidays_and_promotions():
     con.register("chain_days", holidays)
     sql = con.sql(
         "SELECT * FROM tide_outliers('takings', 'shop', 'day', 'takings', transform := 'log', "
-        "holidays := (SELECT list(struct_pack(day := day, name := name)) FROM chain_days), "
+        "special_days := (SELECT list(struct_pack(day := day, name := name)) FROM chain_days), "
         "outside_columns := ['promotion'], all_rows := true) ORDER BY shop, day"
     ).df()
     assert np.array_equal(sql["expected"].to_numpy(), fitted["expected"].to_numpy())
@@ -532,7 +534,7 @@ def test_forecast_has_holidays_ahead_and_no_outside_columns():
     table = retail_chain.daily_takings(shops=2)
     holidays = retail_chain.chain_holidays(2021, 4)  # 2024 too: known ahead
     ahead = api.forecast(table, "shop", "day", "takings", transform="log", steps_ahead=80,
-                         holidays=holidays)  # fmt: skip
+                         special_days=holidays)  # fmt: skip
     plain = api.forecast(table, "shop", "day", "takings", transform="log", steps_ahead=80)
     founders = ahead["day"] == pd.Timestamp("2024-03-14").date()
     ratio = ahead.loc[founders, "forecast"].to_numpy() / plain.loc[founders, "forecast"].to_numpy()
@@ -558,7 +560,7 @@ def test_publish_carries_the_effects(tmp_path):
     holidays = tmp_path / "holidays.csv"
     retail_chain.chain_holidays(2021, 2).to_pandas().to_csv(holidays, index=False)
     code = main(["publish", "--from", f"{database}:raw", "--to", database, "--key", "shop",
-                 "--time", "day", "--value", "takings", "--transform", "log", "--holidays",
+                 "--time", "day", "--value", "takings", "--transform", "log", "--special-days",
                  str(holidays), "--outside-columns", "promotion", "--quiet"])  # fmt: skip
     assert code in (0, None)
     con = duckdb.connect(database, read_only=True)
@@ -567,7 +569,7 @@ def test_publish_carries_the_effects(tmp_path):
     con.close()
     direct = api.split_table(
         retail_chain.daily_takings(shops=3, years=2), "shop", "day", "takings",
-        transform="log", holidays=retail_chain.chain_holidays(2021, 2),
+        transform="log", special_days=retail_chain.chain_holidays(2021, 2),
         outside_columns=["promotion"],
     )  # fmt: skip
     for name in ("calendar_effect", "outside_effect", "adjusted", "trend"):
@@ -631,7 +633,7 @@ def test_several_periods_recover_the_effects():
     # estimated from random probes (Hutchinson 1989). Measured: 65% of the 120 coefficients
     # within one standard error and 94.2% within two (normal: 68% and 95%)
     frame, holidays = simulated_hours(40)
-    given = {"periods": [24, 168], "holidays": holidays, "outside_columns": ["temperature"]}
+    given = {"periods": [24, 168], "special_days": holidays, "outside_columns": ["temperature"]}
     out = api.split_table(frame, "meter", "t", "load", **given)
     found = api.profile(frame, "meter", "t", "load", **given)
     truth = {"carnival": -8.0, "spring": 6.0, "temperature": 2.0}
@@ -659,10 +661,10 @@ def test_several_periods_sql_equals_python_and_robust_is_refused():
     con.register("holiday_rows", pa.Table.from_pandas(holidays))
     sql = con.sql(
         "SELECT * FROM tide_split_multi('loads', 'meter', 't', 'load', periods := [24, 168], "
-        "holidays := (SELECT list(struct_pack(day := day, name := name)) FROM holiday_rows), "
+        "special_days := (SELECT list(struct_pack(day := day, name := name)) FROM holiday_rows), "
         "outside_columns := ['temperature']) ORDER BY meter, t"
     ).df()
-    python = api.split_table(frame, "meter", "t", "load", periods=[24, 168], holidays=holidays,
+    python = api.split_table(frame, "meter", "t", "load", periods=[24, 168], special_days=holidays,
                              outside_columns=["temperature"])  # fmt: skip
     for name in ("trend", "seasonal", "calendar_effect", "outside_effect", "remainder"):
         assert np.array_equal(sql[name].to_numpy(), python[name].to_numpy())
@@ -705,7 +707,7 @@ def test_filled_gaps_have_no_outside_effect():
     # the calendar (holiday) effect, known from the date, is there
     frame = simulated_days(2, seed=12)
     frame = frame[~frame["day"].isin(pd.to_datetime(["2021-03-14", "2022-06-01"]))]
-    out = api.split_table(frame, "shop", "day", "sales", holidays=HOLIDAYS,
+    out = api.split_table(frame, "shop", "day", "sales", special_days=HOLIDAYS,
                           outside_columns=["price"], fill_gaps=True)  # fmt: skip
     inserted = out[out["inserted"]]
     assert len(inserted) == 4
@@ -743,7 +745,7 @@ def test_forecast_with_several_periods_adds_the_holidays_ahead():
     frame = frame[frame["t"] < "2023-04-01"]
     ahead_day = pd.Timestamp("2023-04-04").date()
     listed = pd.concat([holidays, pd.DataFrame({"day": [ahead_day], "name": ["spring"]})])
-    given = {"periods": [24, 168], "holidays": listed}
+    given = {"periods": [24, 168], "special_days": listed}
     ahead = api.forecast(frame, "meter", "t", "load", steps_ahead=24 * 7, **given)
     split = api.split_table(frame, "meter", "t", "load", **given)
     found = api.profile(frame, "meter", "t", "load", **given)

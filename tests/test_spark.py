@@ -434,14 +434,14 @@ def test_holidays_and_outside_columns_equal_duckdb(spark, con):
     con.register("chain_days", holidays)
     days = "(SELECT list(struct_pack(day := day, name := name)) FROM chain_days)"
     frame = spark.createDataFrame(table.to_pandas())
-    given = {"holidays": holidays.to_pylist(), "outside_columns": ["promotion"]}
+    given = {"special_days": holidays.to_pylist(), "outside_columns": ["promotion"]}
     for function, macro, order in (
         ("split_table", "tide_split", ["shop", "day"]),
         ("profile", "tide_profile", ["shop"]),
     ):
         from_duckdb = con.sql(
             f"SELECT * FROM {macro}(daily, 'shop', 'day', 'takings', transform := 'log', "
-            f"holidays := {days}, outside_columns := ['promotion'])"
+            f"special_days := {days}, outside_columns := ['promotion'])"
         )
         from_spark = getattr(tide_spark, function)(
             frame, "shop", "day", "takings", transform="log", **given

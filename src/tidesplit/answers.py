@@ -68,7 +68,7 @@ SPLIT_COLUMNS = (
         "adjusted",
         "DOUBLE",
         "the seasonally adjusted series (value without its seasonal part and, with "
-        "`calendar_effects` or `holidays`, without its calendar effect), on the original scale",
+        "`calendar_effects` or `special_days`, without its calendar effect), on the original scale",
     ),
     Column(
         "weight",
@@ -79,7 +79,7 @@ SPLIT_COLUMNS = (
         "calendar_effect",
         "DOUBLE",
         _on_scale(
-            "the calendar effects fitted at the point (`calendar_effects`, `holidays`; 0 "
+            "the calendar effects fitted at the point (`calendar_effects`, `special_days`; 0 "
             "without)"
         ),
     ),
@@ -176,7 +176,7 @@ PROFILE_COLUMNS = (
     Column(
         "effects",
         EFFECTS_TYPE,
-        "with `calendar_effects`, `holidays` or `outside_columns`: each fitted effect's "
+        "with `calendar_effects`, `special_days` or `outside_columns`: each fitted effect's "
         "`{name, coefficient, std_error, t_value}` (transformed scale; see Calendar effects); "
         "NULL without",
     ),

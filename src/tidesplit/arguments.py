@@ -256,7 +256,7 @@ REGISTRY: tuple[Argument, ...] = (
         most=30,
     ),
     Argument(
-        "holidays",
+        "special_days",
         DAY_LIST,
         "days with an effect of their own (see Holidays and outside variables), a list of "
         "`{day, name}`: each name becomes one coefficient, the days of that name a period "
@@ -455,7 +455,7 @@ def named_days(argument: Argument, value: Any) -> tuple[tuple[int, str], ...] | 
     Days are dates (``datetime.date``, ``numpy.datetime64``, pandas timestamps or ISO text);
     a day named twice under one name counts once. An empty list is none.
 
-    >>> named_days(next(a for a in REGISTRY if a.name == "holidays"),
+    >>> named_days(next(a for a in REGISTRY if a.name == "special_days"),
     ...            [{"day": "2024-12-25", "name": "midwinter"}])
     ((20082, 'midwinter'),)
     """

@@ -102,7 +102,7 @@ def request(settings: dict[str, Any]) -> Request | None:
     8
     >>> request({"calendar_effects": "none"}) is None
     True
-    >>> request({"outside_columns": ("price",), "holidays": ((0, "opening"),)}).names()
+    >>> request({"outside_columns": ("price",), "special_days": ((0, "opening"),)}).names()
     ('opening', 'price')
     """
     chosen = parse_calendar(settings.get("calendar_effects"))
@@ -116,7 +116,7 @@ def request(settings: dict[str, Any]) -> Request | None:
     found = Request(
         calendar=chosen,
         easter_days=days,
-        holidays=tuple(settings.get("holidays") or ()),
+        holidays=tuple(settings.get("special_days") or ()),
         outside=tuple(settings.get("outside_columns") or ()),
     )
     # one coefficient per name: a holiday or an outside column named like another effect

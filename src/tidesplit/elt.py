@@ -138,8 +138,9 @@ class Job:
         """The given arguments, checked for kind and choices by the registry."""
         if self.command not in COMMANDS:
             raise ParamError(f"unknown command {self.command}; one of {', '.join(COMMANDS)}")
-        if isinstance(self.given.get("holidays"), str):
-            self.given = {**self.given, "holidays": read_named_days(self.given["holidays"])}
+        days = self.given.get("special_days")
+        if isinstance(days, str):  # a file of day, name rows (--special-days FILE)
+            self.given = {**self.given, "special_days": read_named_days(days)}
         settled = arguments.accept(self.function, self.given)
         if not self.key:
             raise ParamError("give at least one key column")
@@ -161,7 +162,7 @@ class Job:
 
 def read_named_days(path: str) -> list[tuple[Any, str]]:
     """The ``(day, name)`` rows of a CSV or Parquet file with columns ``day`` and ``name``
-    (the command line's ``--holidays FILE``), read with DuckDB.
+    (the command line's ``--special-days FILE``), read with DuckDB.
 
     >>> import tempfile
     >>> with tempfile.NamedTemporaryFile("w", suffix=".csv", delete=False) as f:
@@ -174,14 +175,14 @@ def read_named_days(path: str) -> list[tuple[Any, str]]:
     from .endpoints import literal
 
     if not os.path.isfile(path):
-        raise ParamError(f"no holidays file {path}")
+        raise ParamError(f"no special-days file {path}")
     try:
         return duckdb.connect().sql(
             f"SELECT CAST(day AS DATE), CAST(name AS VARCHAR) FROM {literal(path)} ORDER BY ALL"
         ).fetchall()
     except duckdb.Error as error:
         raise ParamError(
-            f"the holidays file {path} must hold columns day (dates) and name (text): "
+            f"the special-days file {path} must hold columns day (dates) and name (text): "
             f"{str(error).splitlines()[0]}"
         ) from None
 

@@ -111,7 +111,7 @@ def parts_of(job: Any, settings: dict[str, Any], outcome: Any, source: Any) -> l
             # component forecast by the seasonal naive method)
             # only the future times are read: the effects' arguments are left out (the
             # forecast takes no outside columns, whose future values are unknown)
-            effects = ("calendar_effects", "easter_days", "holidays", "outside_columns")
+            effects = ("calendar_effects", "easter_days", "special_days", "outside_columns")
             ahead = _named(settings, ("fill_gaps", "on_error", *effects), on_error="keep",
                            steps_ahead=steps)  # fmt: skip
             return con.sql(

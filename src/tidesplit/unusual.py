@@ -223,7 +223,7 @@ def unusual_points(
     remainder, (remainder - median) / (1.4826 MAD), the MAD scaled for normal consistency;
     the score is that z-score.
 
-    With regression effects (``calendar_effects``, ``holidays``, ``outside_columns``) the
+    With regression effects (``calendar_effects``, ``special_days``, ``outside_columns``) the
     rule reads the remainder without them: a holiday's dip is expected, not unusual. The
     expected value is trend + seasonal (+ the effects), back on the original scale.
     """
