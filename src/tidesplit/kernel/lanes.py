@@ -198,39 +198,69 @@ def _fit_lanes_listed(typingctx, y, pw, start, stride, table, count, linear, nea
     return signature, codegen
 
 
-@intrinsic
-def _fit_lanes_unit(typingctx, y, start, stride, table, count, moments, linear, near_range,
-                    out):  # fmt: skip
-    """``_fit_lanes_listed`` when every point weight is 1: the sums of the weights and of
-    their moments are the same in every fit (``moments``: total, first, second, from
-    ``loess._unit_moments``), so only the sums over ``y`` are left to do."""
-    signature = types.none(y, start, stride, table, count, moments, linear, near_range, out)
+# Fits with unit point weights taken together by _fit_lanes_unit_four: each fit's two sums
+# are chains of dependent adds, so one fit alone waits on the adder's latency; four fits'
+# chains side by side keep it busy.
+UNIT_FITS = 4
+
+
+def _unit_codegen(fits: int):  # type: ignore[no-untyped-def]
+    """The code of ``_fit_lanes_unit`` for ``fits`` fits, ``gap`` elements apart."""
 
     def codegen(context, builder, sig, args):
-        _, start_v, stride_v, table_a, count_v, moments_v, linear_v, near_range_v, _ = args
+        _, start_v, gap_v, stride_v, _, count_v, moments_v, linear_v, near_range_v, _ = args
         v = _Vectors(builder)
-        y_ptr, table_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 3, 8))
+        y_ptr, table_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 4, 9))
         width = builder.extract_value(
-            context.make_array(sig.args[3])(context, builder, table_a).shape, 1
+            context.make_array(sig.args[4])(context, builder, args[4]).shape, 1
         )
-        value = cgutils.alloca_once_value(builder, v.zero)
-        cross = cgutils.alloca_once_value(builder, v.zero)
+        values = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
+        crosses = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
             k = loop.index
             t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
             w = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
             u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
             j = builder.add(start_v, builder.mul(t, stride_v))
-            term = builder.fmul(w, v.load(y_ptr, j))  # fit_at's w * y, then (w * y) * u
-            builder.store(builder.fadd(builder.load(value), term), value)
-            builder.store(builder.fadd(builder.load(cross), builder.fmul(term, v.splat(u))), cross)
+            for f in range(fits):
+                at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
+                term = builder.fmul(w, v.load(y_ptr, at))  # fit_at's w * y, then (w * y) * u
+                value, cross = values[f], crosses[f]
+                builder.store(builder.fadd(builder.load(value), term), value)
+                builder.store(
+                    builder.fadd(builder.load(cross), builder.fmul(term, v.splat(u))), cross
+                )
         shared = tuple(v.splat(builder.extract_value(moments_v, m)) for m in range(3))
-        v.finish(
-            (*shared, builder.load(value), builder.load(cross)), linear_v, near_range_v, out_ptr
-        )
+        for f in range(fits):
+            moments = (*shared, builder.load(values[f]), builder.load(crosses[f]))
+            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+            v.finish(moments, linear_v, near_range_v, here)
         return context.get_dummy_value()
 
-    return signature, codegen
+    return codegen
+
+
+@intrinsic
+def _fit_lanes_unit(typingctx, y, start, gap, stride, table, count, moments, linear,
+                    near_range, out):  # fmt: skip
+    """``_fit_lanes_listed`` when every point weight is 1: the sums of the weights and of
+    their moments are the same in every fit (``moments``: total, first, second, from
+    ``loess._unit_moments``), so only the sums over ``y`` are left to do. ``gap`` is
+    unused here (see ``_fit_lanes_unit_four``)."""
+    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
+                           out)  # fmt: skip
+    return signature, _unit_codegen(1)
+
+
+@intrinsic
+def _fit_lanes_unit_four(typingctx, y, start, gap, stride, table, count, moments, linear,
+                         near_range, out):  # fmt: skip
+    """``_fit_lanes_unit`` for ``UNIT_FITS`` interior fits whose windows start ``gap``
+    elements apart, the sums of each in its own order; fit ``f``'s values and flags go to
+    ``out[2 * SERIES * f:]``."""
+    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
+                           out)  # fmt: skip
+    return signature, _unit_codegen(UNIT_FITS)
 
 
 @njit(nogil=True, cache=True)
@@ -294,11 +324,18 @@ def _interpolate(ys: np.ndarray, base: int, stride: int, i: int, k: int) -> None
 
 
 @njit(nogil=True, cache=True)
-def _take(ys: np.ndarray, at: int, res: np.ndarray, fallback: np.ndarray, fallback_at: int) -> None:
-    """The lanes' fitted values into ``ys[at:]``; a lane whose fit had no point of weight
-    takes ``fallback[fallback_at + lane]``."""
+def _take(
+    ys: np.ndarray, at: int, res: np.ndarray, fallback: np.ndarray, fallback_at: int, fit: int = 0
+) -> None:
+    """The lanes' fitted values of fit ``fit`` in ``res`` into ``ys[at:]``; a lane whose fit
+    had no point of weight takes ``fallback[fallback_at + lane]``. (An offset rather than a
+    view ``res[k:]``: a view costs two atomic reference counts, as dear as a short fit.)"""
+    first = 2 * SERIES * fit
     for lane in range(SERIES):
-        ys[at + lane] = res[lane] if res[SERIES + lane] != 0.0 else fallback[fallback_at + lane]
+        if res[first + SERIES + lane] != 0.0:
+            ys[at + lane] = res[first + lane]
+        else:
+            ys[at + lane] = fallback[fallback_at + lane]
 
 
 @njit(nogil=True, cache=True)
@@ -345,13 +382,26 @@ def _smooth(
         h = float(max(half - 1, span - half))
         linear = 1 if h > 0.0 and degree > 0 else 0
         near_range = NEAR * (n - 1.0)
-        for i in range(0, n, step):
+        i = 0
+        while i < n:
+            if unit and i + 1 >= half and i + (UNIT_FITS - 1) * step <= interior_last:
+                start = base + (i + 1 - half) * stride
+                _fit_lanes_unit_four(
+                    y, start, step * stride, stride, table, moments[3], moments[:3], linear,
+                    near_range, res,
+                )  # fmt: skip
+                for f in range(UNIT_FITS):
+                    at = i + f * step
+                    _take(ys, out_base + at * out_stride, res, y, base + at * stride, f)
+                i += UNIT_FITS * step
+                continue
             if i + 1 >= half and i <= interior_last:
                 start = base + (i + 1 - half) * stride
                 if unit:
                     _fit_lanes_unit(
-                        y, start, stride, table, moments[3], moments[:3], linear, near_range, res
-                    )
+                        y, start, 0, stride, table, moments[3], moments[:3], linear, near_range,
+                        res,
+                    )  # fmt: skip
                 else:
                     _fit_lanes_listed(
                         y, pw, start, stride, table, moments[3], linear, near_range, res
@@ -360,6 +410,7 @@ def _smooth(
                 nleft, nright = _window(i, n, span, half)
                 _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
             _take(ys, out_base + i * out_stride, res, y, base + i * stride)
+            i += step
         nleft, nright = _window(((n - 1) // step) * step, n, span, half)
     if step != 1:
         for i in range(0, n - step, step):
@@ -478,7 +529,7 @@ def _robustness_weights(
 @njit(nogil=True, cache=True)
 def buffer_size(n: int, period: int) -> int:
     """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
-    return 6 * SERIES * (n + 2 * period + 2) + n + 3 * SERIES
+    return 6 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 1) * SERIES
 
 
 @njit(nogil=True, cache=True)
@@ -506,8 +557,10 @@ def stl_lanes(
     pw = buf[4 * width : 5 * width]
     ones = buf[5 * width : 6 * width]
     absres = buf[6 * width : 6 * width + n]
-    res = buf[6 * width + n : 6 * width + n + 2 * SERIES]
-    medians = buf[6 * width + n + 2 * SERIES : 6 * width + n + 3 * SERIES]
+    res = buf[6 * width + n : 6 * width + n + 2 * UNIT_FITS * SERIES]
+    medians = buf[
+        6 * width + n + 2 * UNIT_FITS * SERIES : 6 * width + n + (2 * UNIT_FITS + 1) * SERIES
+    ]
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
