@@ -301,3 +301,24 @@ def test_several_periods_side_by_side_give_the_bits_of_each_alone():
             assert same_bits(trend[part], t1), (robust, s)
             assert same_bits(weight[part], w1), (robust, s)
             assert same_bits(seasonal[:, part], s1), (robust, s)
+
+
+def test_series_of_one_shape_are_grouped_whatever_their_order():
+    """Two settings of one length taken in turn, another length, an inactive series: the
+    groups hold every active series once, each group one shape, so that the lanes fill."""
+    from tidesplit.kernel.stl import same_shape_groups
+
+    lengths = [120, 120, 96, 120, 120, 96, 120, 120, 120]
+    offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+    settings = np.tile(settings_row(12, 13, 21, False, (2, 3, 2)), (len(lengths), 1))
+    settings[1::2, COL_OUTER] = 6  # every other series robust
+    settings[7, COL_ACTIVE] = 0
+    active = settings[:, COL_ACTIVE] != 0
+    counts = np.zeros(len(lengths), dtype=np.int64)
+    order, starts = same_shape_groups(offsets, settings, active, counts, 0, len(lengths))
+    assert sorted(order) == [s for s in range(len(lengths)) if s != 7]
+    groups = [order[starts[g] : starts[g + 1]] for g in range(len(starts) - 1)]
+    shapes = {(lengths[s], tuple(settings[s])) for s in order}
+    assert len(groups) == len(shapes)  # one group per shape: none split by the order
+    for group in groups:
+        assert len({(lengths[s], tuple(settings[s])) for s in group}) == 1

@@ -91,7 +91,8 @@ def _mstl_range(
                 need = max(need, lanes_buffer_size(n, settings[s, k, COL_PERIOD]))
     buf = np.empty(need)
     deseasoned = np.empty(longest)
-    order, starts = same_shape_groups(offsets, settings, first, stop, n_periods)
+    active = settings[:, 0, COL_ACTIVE] != 0
+    order, starts = same_shape_groups(offsets, settings, active, n_periods, first, stop)
     side = np.empty((most_periods + 3, longest * SERIES))
     for g in range(starts.size - 1):
         begin = starts[g]

@@ -396,25 +396,38 @@ def _stl_one(
 
 @njit(nogil=True, cache=True)
 def same_shape_groups(
-    offsets: np.ndarray, settings: np.ndarray, first: int, stop: int, counts: np.ndarray
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    active: np.ndarray,
+    counts: np.ndarray,
+    first: int,
+    stop: int,
 ) -> tuple[np.ndarray, np.ndarray]:
     """The active series of ``first .. stop-1`` in an order where series of one length, one
-    settings row and one ``counts`` entry (MSTL's number of periods) stand together: (the
-    series in that order, the start of each group in it, with the end as a last entry).
-    Settings may be one row per series or, for several periods, a matrix per series."""
+    settings row (or matrix, for several periods) and one ``counts`` entry (MSTL's number of
+    periods) stand together: (the series in that order, the start of each group in it, with
+    the end as a last entry)."""
     count = 0
     for s in range(first, stop):
-        if settings[s].ravel()[COL_ACTIVE]:
+        if active[s]:
             count += 1
     chosen = np.empty(count, dtype=np.int64)
     lengths = np.empty(count, dtype=np.int64)
+    marks = np.empty(count, dtype=np.int64)
     count = 0
     for s in range(first, stop):
-        if settings[s].ravel()[COL_ACTIVE]:
+        if active[s]:
             chosen[count] = s
             lengths[count] = offsets[s + 1] - offsets[s]
+            # a mark of the settings (FNV-1a over their values), so that series of one
+            # length but different settings do not interleave after sorting
+            mark = np.int64(-3750763034362895579) ^ counts[s]
+            for value in settings[s].flat:
+                mark = (mark ^ value) * np.int64(1099511628211)
+            marks[count] = mark
             count += 1
-    order = chosen[np.argsort(lengths, kind="mergesort")]
+    by_mark = np.argsort(marks, kind="mergesort")
+    order = chosen[by_mark][np.argsort(lengths[by_mark], kind="mergesort")]
     starts = np.empty(count + 1, dtype=np.int64)
     groups = 0
     for i in range(count):
@@ -453,8 +466,9 @@ def _stl_range(
             need = max(need, buffer_size(n, settings[s, COL_PERIOD]))
             need = max(need, lanes_buffer_size(n, settings[s, COL_PERIOD]))
     buf = np.empty(need)
-    one_period = np.zeros(offsets.shape[0], dtype=np.int64)
-    order, starts = same_shape_groups(offsets, settings, first, stop, one_period)
+    one_period = np.zeros(offsets.shape[0] - 1, dtype=np.int64)
+    active = settings[:, COL_ACTIVE] != 0
+    order, starts = same_shape_groups(offsets, settings, active, one_period, first, stop)
     longest = 0
     for s in order:
         longest = max(longest, offsets[s + 1] - offsets[s])
