@@ -80,20 +80,14 @@ class _Vectors:
 
     def add_terms(self, sums: list, w: ir.Value, u: ir.Value, y: ir.Value) -> None:
         """fit_at's five sums, plus the terms of a point of weight ``w`` (lanes) at
-        distance ``u`` (lanes). fit_at skips a point of weight 0: its weight and moment
-        terms are zeros (x + 0 = x for these sums, which start at +0 and so are never -0),
-        and the terms with y are replaced by 0, as a missing y (NaN) must not count."""
+        distance ``u`` (lanes). fit_at skips a point of weight 0; here its terms are zeros
+        (x + 0 = x and x + -0 = x for these sums, which start at +0 and so are never -0).
+        That needs a finite ``y`` there: the callers pass the values with 0 wherever the
+        point weight is 0 (a missing value, NaN, always has weight 0)."""
         b = self.builder
-        taken = b.fcmp_unordered("!=", w, self.zero)
         wu = b.fmul(w, u)
         wy = b.fmul(w, y)
-        terms = (
-            w,
-            wu,
-            b.fmul(wu, u),
-            b.select(taken, wy, self.zero),
-            b.select(taken, b.fmul(wy, u), self.zero),
-        )
+        terms = (w, wu, b.fmul(wu, u), wy, b.fmul(wy, u))
         for total, term in zip(sums, terms, strict=True):
             b.store(b.fadd(b.load(total), term), total)
 
@@ -165,37 +159,63 @@ def _fit_lanes(typingctx, y, pw, start, stride, count, shift, h_far, h_near, inv
     return signature, codegen
 
 
-@intrinsic
-def _fit_lanes_listed(typingctx, y, pw, start, stride, table, count, linear, near_range, out):
-    """``_fit_lanes`` for an interior fit, whose points, tricube weights and distances are
-    listed once per smoothing (``loess._unit_moments``: ``table[0]`` the offsets into the
-    window, ``table[1]`` the weights, 1.0 where fit_at takes the point weight alone,
-    ``table[2]`` the distances; ``count`` of them)."""
-    signature = types.none(y, pw, start, stride, table, count, linear, near_range, out)
+# Weighted interior fits taken together by _fit_lanes_listed_two: their five chains of
+# adds each, side by side.
+LISTED_FITS = 2
+
+
+def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
+    """The code of ``_fit_lanes_listed`` for ``fits`` fits, ``gap`` elements apart."""
 
     def codegen(context, builder, sig, args):
-        _, _, start_v, stride_v, table_a, count_v, linear_v, near_range_v, _ = args
+        _, _, start_v, gap_v, stride_v, _, count_v, linear_v, near_range_v, _ = args
         v = _Vectors(builder)
         y_ptr, pw_ptr, table_ptr, out_ptr = (
-            _data(context, builder, sig, args, k) for k in (0, 1, 4, 8)
+            _data(context, builder, sig, args, k) for k in (0, 1, 5, 9)
         )
         width = builder.extract_value(
-            context.make_array(sig.args[4])(context, builder, table_a).shape, 1
+            context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
         )
-        sums = [cgutils.alloca_once_value(builder, v.zero) for _ in range(5)]
+        sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
             k = loop.index
             t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
-            tricube = builder.load(builder.gep(table_ptr, [builder.add(width, k)]))
+            tricube = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
             u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
             j = builder.add(start_v, builder.mul(t, stride_v))
-            w = builder.fmul(v.splat(tricube), v.load(pw_ptr, j))
-            v.add_terms(sums, w, v.splat(u), v.load(y_ptr, j))
-        moments = tuple(builder.load(total) for total in sums)
-        v.finish(moments, linear_v, near_range_v, out_ptr)
+            for f in range(fits):
+                at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
+                w = builder.fmul(tricube, v.load(pw_ptr, at))
+                v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
+        for f in range(fits):
+            moments = tuple(builder.load(total) for total in sums[f])
+            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+            v.finish(moments, linear_v, near_range_v, here)
         return context.get_dummy_value()
 
-    return signature, codegen
+    return codegen
+
+
+@intrinsic
+def _fit_lanes_listed(typingctx, y, pw, start, gap, stride, table, count, linear, near_range,
+                      out):  # fmt: skip
+    """``_fit_lanes`` for an interior fit, whose points, tricube weights and distances are
+    listed once per smoothing (``loess._unit_moments``: ``table[0]`` the offsets into the
+    window, ``table[1]`` the weights, 1.0 where fit_at takes the point weight alone,
+    ``table[2]`` the distances; ``count`` of them). ``gap`` is unused here (see
+    ``_fit_lanes_listed_two``)."""
+    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+    return signature, _listed_codegen(1)
+
+
+@intrinsic
+def _fit_lanes_listed_two(typingctx, y, pw, start, gap, stride, table, count, linear,
+                          near_range, out):  # fmt: skip
+    """``_fit_lanes_listed`` for ``LISTED_FITS`` interior fits whose windows start ``gap``
+    elements apart, each fit's sums in its own order; fit ``f``'s values and flags go to
+    ``out[2 * SERIES * f:]``."""
+    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+    return signature, _listed_codegen(LISTED_FITS)
 
 
 # Fits with unit point weights taken together by _fit_lanes_unit_four: each fit's two sums
@@ -341,6 +361,7 @@ def _take(
 @njit(nogil=True, cache=True)
 def _smooth(
     y: np.ndarray,
+    raw: np.ndarray,
     pw: np.ndarray,
     base: int,
     stride: int,
@@ -353,11 +374,12 @@ def _smooth(
     out_stride: int,
     res: np.ndarray,
 ) -> None:
-    """``loess.smooth`` in every lane: point ``j`` of lane ``l`` read at
-    ``base + j * stride + l`` and written at ``out_base + j * out_stride + l``."""
+    """``loess.smooth`` of ``raw`` in every lane: point ``j`` of lane ``l`` read at
+    ``base + j * stride + l`` and written at ``out_base + j * out_stride + l``. The fits
+    read ``y``: ``raw`` with 0 where the point weight is 0 (see ``_Vectors.add_terms``)."""
     if n < 2:
         for lane in range(SERIES):
-            ys[out_base + lane] = y[base + lane]
+            ys[out_base + lane] = raw[base + lane]
         return
     step = min(jump, n - 1)
     nleft = 0
@@ -365,7 +387,7 @@ def _smooth(
     if span >= n:
         for i in range(0, n, step):
             _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
-            _take(ys, out_base + i * out_stride, res, y, base + i * stride)
+            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
     else:
         half = (span + 1) // 2
         # Interior fits (a whole window, not clamped at an end) share their points, tricube
@@ -392,8 +414,19 @@ def _smooth(
                 )  # fmt: skip
                 for f in range(UNIT_FITS):
                     at = i + f * step
-                    _take(ys, out_base + at * out_stride, res, y, base + at * stride, f)
+                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
                 i += UNIT_FITS * step
+                continue
+            if not unit and i + 1 >= half and i + (LISTED_FITS - 1) * step <= interior_last:
+                start = base + (i + 1 - half) * stride
+                _fit_lanes_listed_two(
+                    y, pw, start, step * stride, stride, table, moments[3], linear, near_range,
+                    res,
+                )  # fmt: skip
+                for f in range(LISTED_FITS):
+                    at = i + f * step
+                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
+                i += LISTED_FITS * step
                 continue
             if i + 1 >= half and i <= interior_last:
                 start = base + (i + 1 - half) * stride
@@ -404,12 +437,12 @@ def _smooth(
                     )  # fmt: skip
                 else:
                     _fit_lanes_listed(
-                        y, pw, start, stride, table, moments[3], linear, near_range, res
+                        y, pw, start, 0, stride, table, moments[3], linear, near_range, res
                     )
             else:
                 nleft, nright = _window(i, n, span, half)
                 _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
-            _take(ys, out_base + i * out_stride, res, y, base + i * stride)
+            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
             i += step
         nleft, nright = _window(((n - 1) // step) * step, n, span, half)
     if step != 1:
@@ -419,7 +452,7 @@ def _smooth(
         if last_fit != n - 1:
             # the neighbourhood left over from the final jump, as in smooth
             _fit(y, pw, base, stride, n, span, degree, float(n - 1), nleft, nright, res)
-            _take(ys, out_base + (n - 1) * out_stride, res, y, base + (n - 1) * stride)
+            _take(ys, out_base + (n - 1) * out_stride, res, raw, base + (n - 1) * stride)
             if last_fit != n - 2:
                 _interpolate(ys, out_base, out_stride, last_fit, n - 1)
     for lane in range(SERIES):
@@ -432,6 +465,7 @@ def _smooth(
 @njit(nogil=True, cache=True)
 def _subseries(
     detrended: np.ndarray,
+    clean: np.ndarray,
     pw: np.ndarray,
     n: int,
     period: int,
@@ -442,7 +476,8 @@ def _subseries(
     res: np.ndarray,
 ) -> None:
     """``stl._subseries_smooth`` in every lane: the cycle-subseries smoothed one point
-    beyond each end, into ``cycle`` (padded position ``m`` is time ``m - period``)."""
+    beyond each end, into ``cycle`` (padded position ``m`` is time ``m - period``).
+    ``clean`` is ``detrended`` with 0 where the point weight is 0, for the fits."""
     stride = period * SERIES
     for phase in range(period):
         k = (n - phase - 1) // period + 1
@@ -470,10 +505,13 @@ def _subseries(
                 for m in range(k + 2):
                     cycle[base + m * stride + lane] = level
             continue
-        _smooth(detrended, pw, base, stride, k, span, degree, jump, cycle, first_fit, stride, res)
-        _fit(detrended, pw, base, stride, k, span, degree, -1.0, 0, min(span, k) - 1, res)
+        _smooth(
+            clean, detrended, pw, base, stride, k, span, degree, jump, cycle, first_fit, stride,
+            res,
+        )  # fmt: skip
+        _fit(clean, pw, base, stride, k, span, degree, -1.0, 0, min(span, k) - 1, res)
         _take(cycle, base, res, cycle, first_fit)
-        _fit(detrended, pw, base, stride, k, span, degree, float(k), max(0, k - span), k - 1, res)
+        _fit(clean, pw, base, stride, k, span, degree, float(k), max(0, k - span), k - 1, res)
         _take(cycle, base + (k + 1) * stride, res, cycle, base + k * stride)
 
 
@@ -529,7 +567,7 @@ def _robustness_weights(
 @njit(nogil=True, cache=True)
 def buffer_size(n: int, period: int) -> int:
     """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
-    return 6 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 1) * SERIES
+    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 1) * SERIES
 
 
 @njit(nogil=True, cache=True)
@@ -556,11 +594,11 @@ def stl_lanes(
     lowpass = buf[3 * width : 4 * width]
     pw = buf[4 * width : 5 * width]
     ones = buf[5 * width : 6 * width]
-    absres = buf[6 * width : 6 * width + n]
-    res = buf[6 * width + n : 6 * width + n + 2 * UNIT_FITS * SERIES]
-    medians = buf[
-        6 * width + n + 2 * UNIT_FITS * SERIES : 6 * width + n + (2 * UNIT_FITS + 1) * SERIES
-    ]
+    clean = buf[6 * width : 7 * width]
+    rest = 7 * width
+    absres = buf[rest : rest + n]
+    res = buf[rest + n : rest + n + 2 * UNIT_FITS * SERIES]
+    medians = buf[rest + n + 2 * UNIT_FITS * SERIES : rest + n + (2 * UNIT_FITS + 1) * SERIES]
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
@@ -573,15 +611,16 @@ def stl_lanes(
         for _ in range(inner):
             for i in range(n * SERIES):
                 detrended[i] = y[i] - trend[i]
+                clean[i] = detrended[i] if pw[i] != 0.0 else 0.0
             _subseries(
-                detrended, pw, n, period, settings[COL_SEASON_SPAN], settings[COL_SEASON_DEGREE],
-                settings[COL_SEASON_JUMP], cycle, res,
+                detrended, clean, pw, n, period, settings[COL_SEASON_SPAN],
+                settings[COL_SEASON_DEGREE], settings[COL_SEASON_JUMP], cycle, res,
             )  # fmt: skip
             _moving_average(cycle, n + 2 * period, period, smoothed)
             _moving_average(smoothed, n + period + 1, period, lowpass)
             _moving_average(lowpass, n + 2, 3, smoothed)
             _smooth(
-                smoothed, ones, 0, SERIES, n, settings[COL_LOWPASS_SPAN],
+                smoothed, smoothed, ones, 0, SERIES, n, settings[COL_LOWPASS_SPAN],
                 settings[COL_LOWPASS_DEGREE], settings[COL_LOWPASS_JUMP], lowpass, 0, SERIES,
                 res,
             )  # fmt: skip
@@ -589,8 +628,9 @@ def stl_lanes(
             for i in range(n * SERIES):
                 seasonal[i] = cycle[shift + i] - lowpass[i]
                 detrended[i] = y[i] - seasonal[i]
+                clean[i] = detrended[i] if pw[i] != 0.0 else 0.0
             _smooth(
-                detrended, pw, 0, SERIES, n, settings[COL_TREND_SPAN],
+                clean, detrended, pw, 0, SERIES, n, settings[COL_TREND_SPAN],
                 settings[COL_TREND_DEGREE], settings[COL_TREND_JUMP], trend, 0, SERIES, res,
             )  # fmt: skip
         passes += 1
