@@ -74,6 +74,10 @@ class _Vectors:
         address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
         return self.builder.load(address, align=8)
 
+    def store_at(self, value: ir.Value, ptr: ir.Value, index: ir.Value) -> None:
+        address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
+        self.builder.store(value, address, align=8)
+
     def store(self, value: ir.Value, ptr: ir.Value, index: int) -> None:
         at = self.builder.gep(ptr, [ir.Constant(self.i64, index)])
         self.builder.store(value, self.builder.bitcast(at, self.vec.as_pointer()), align=8)
@@ -515,25 +519,90 @@ def _subseries(
         _take(cycle, base + (k + 1) * stride, res, cycle, base + k * stride)
 
 
-@njit(nogil=True, cache=True)
-def _moving_average(x: np.ndarray, n: int, length: int, out: np.ndarray) -> None:
-    """``stl._moving_average`` in every lane."""
-    for lane in range(SERIES):
-        total = 0.0
-        for i in range(length):
-            total += x[i * SERIES + lane]
-        out[lane] = total / length
-        for j in range(1, n - length + 1):
-            total = total - x[(j - 1) * SERIES + lane] + x[(j + length - 1) * SERIES + lane]
-            out[j * SERIES + lane] = total / length
+@intrinsic
+def _moving_average(typingctx, x, n, length, out):
+    """``stl._moving_average`` in every lane: running sums of ``length`` points, each
+    lane's additions, subtractions and divisions in the one-series routine's order, the
+    lanes in one vector (numba's compiler left the lanes' loop scalar, a division per
+    value)."""
+    signature = types.none(x, n, length, out)
+
+    def codegen(context, builder, sig, args):
+        _, n_v, length_v, _ = args
+        v = _Vectors(builder)
+        x_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 3))
+        lanes = ir.Constant(v.i64, SERIES)
+        divisor = v.splat(builder.sitofp(length_v, v.dbl))
+        total = cgutils.alloca_once_value(builder, v.zero)
+        with cgutils.for_range(builder, length_v) as loop:
+            at = builder.mul(loop.index, lanes)
+            builder.store(builder.fadd(builder.load(total), v.load(x_ptr, at)), total)
+        v.store_at(builder.fdiv(builder.load(total), divisor), out_ptr, ir.Constant(v.i64, 0))
+        last = builder.sub(n_v, length_v)
+        with cgutils.for_range(builder, last) as loop:
+            j = builder.add(loop.index, ir.Constant(v.i64, 1))
+            gone = v.load(x_ptr, builder.mul(builder.sub(j, ir.Constant(v.i64, 1)), lanes))
+            come_at = builder.mul(
+                builder.sub(builder.add(j, length_v), ir.Constant(v.i64, 1)), lanes
+            )
+            moved = builder.fadd(builder.fsub(builder.load(total), gone), v.load(x_ptr, come_at))
+            builder.store(moved, total)
+            v.store_at(builder.fdiv(moved, divisor), out_ptr, builder.mul(j, lanes))
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
+@intrinsic
+def _bisquare(typingctx, y, fit, n, scales, rw):
+    """The robustness weights of ``stl._robustness_weights`` in every lane, given each
+    lane's ``6 * median`` in ``scales``: 1 within ``NEAR`` of the scale, the bisquare up to
+    ``FAR``, 0 beyond and where ``y`` is missing; the same operations, both branches
+    computed and the right one selected."""
+    signature = types.none(y, fit, n, scales, rw)
+
+    def codegen(context, builder, sig, args):
+        _, _, n_v, _, _ = args
+        v = _Vectors(builder)
+        y_ptr, fit_ptr, scales_ptr, rw_ptr = (
+            _data(context, builder, sig, args, k) for k in (0, 1, 3, 4)
+        )
+        scale = v.load(scales_ptr, ir.Constant(v.i64, 0))
+        near = builder.fmul(v.splat(ir.Constant(v.dbl, NEAR)), scale)
+        far = builder.fmul(v.splat(ir.Constant(v.dbl, FAR)), scale)
+        fabs = cgutils.get_or_insert_function(
+            builder.module, ir.FunctionType(v.vec, [v.vec]), f"llvm.fabs.v{SERIES}f64"
+        )
+        with cgutils.for_range(builder, n_v) as loop:
+            at = builder.mul(loop.index, ir.Constant(v.i64, SERIES))
+            y_lanes = v.load(y_ptr, at)
+            r = builder.call(fabs, [builder.fsub(y_lanes, v.load(fit_ptr, at))])
+            q = builder.fdiv(r, scale)
+            q = builder.fsub(v.ones, builder.fmul(q, q))
+            weight = builder.select(
+                builder.fcmp_ordered("<=", r, near),
+                v.ones,
+                builder.select(builder.fcmp_ordered("<=", r, far), builder.fmul(q, q), v.zero),
+            )
+            missing = builder.fcmp_unordered("uno", y_lanes, y_lanes)
+            v.store_at(builder.select(missing, v.zero, weight), rw_ptr, at)
+        return context.get_dummy_value()
+
+    return signature, codegen
 
 
 @njit(nogil=True, cache=True)
 def _robustness_weights(
-    y: np.ndarray, fit: np.ndarray, n: int, rw: np.ndarray, absres: np.ndarray, medians: np.ndarray
+    y: np.ndarray,
+    fit: np.ndarray,
+    n: int,
+    rw: np.ndarray,
+    absres: np.ndarray,
+    medians: np.ndarray,
+    scales: np.ndarray,
 ) -> None:
     """``stl._robustness_weights`` in every lane; ``medians`` holds each lane's previous
-    median (NaN for none) and receives this pass's."""
+    median (NaN for none) and receives this pass's; ``scales`` is scratch of ``SERIES``."""
     for lane in range(SERIES):
         count = 0
         for i in range(n):
@@ -541,33 +610,15 @@ def _robustness_weights(
             if not math.isnan(y[at]):
                 absres[count] = abs(y[at] - fit[at])
                 count += 1
-        if count == 0:
-            medians[lane] = math.nan
-            continue
-        medians[lane] = _median_guided(absres, count, medians[lane])
-        scale = 6.0 * medians[lane]
-        near = NEAR * scale
-        far = FAR * scale
-        for i in range(n):
-            at = i * SERIES + lane
-            if math.isnan(y[at]):
-                rw[at] = 0.0
-                continue
-            r = abs(y[at] - fit[at])
-            if r <= near:
-                rw[at] = 1.0
-            elif r <= far:
-                q = r / scale
-                q = 1.0 - q * q
-                rw[at] = q * q
-            else:
-                rw[at] = 0.0
+        medians[lane] = _median_guided(absres, count, medians[lane]) if count else math.nan
+        scales[lane] = 6.0 * medians[lane]
+    _bisquare(y, fit, n, scales, rw)
 
 
 @njit(nogil=True, cache=True)
 def buffer_size(n: int, period: int) -> int:
     """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
-    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 1) * SERIES
+    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES
 
 
 @njit(nogil=True, cache=True)
@@ -599,6 +650,7 @@ def stl_lanes(
     absres = buf[rest : rest + n]
     res = buf[rest + n : rest + n + 2 * UNIT_FITS * SERIES]
     medians = buf[rest + n + 2 * UNIT_FITS * SERIES : rest + n + (2 * UNIT_FITS + 1) * SERIES]
+    scales = buf[rest + n + (2 * UNIT_FITS + 1) * SERIES : rest + n + (2 * UNIT_FITS + 2) * SERIES]
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
@@ -638,6 +690,6 @@ def stl_lanes(
             break
         for i in range(n * SERIES):
             detrended[i] = trend[i] + seasonal[i]
-        _robustness_weights(y, detrended, n, pw, absres, medians)
+        _robustness_weights(y, detrended, n, pw, absres, medians, scales)
         for i in range(n * SERIES):
             weight[i] = pw[i]
