@@ -7,35 +7,54 @@ import math
 import numpy as np
 from numba import njit
 
+# Ranges this short are finished by insertion sort.
+SHORT = 16
+
 
 @njit(nogil=True, cache=True)
 def _select(a: np.ndarray, count: int, k: int) -> float:
-    """The ``k``-th smallest of ``a[:count]`` (0-based), reordering ``a`` in place.
+    """The ``k``-th smallest of ``a[:count]`` (0-based), reordering ``a`` in place so that
+    every value before position ``k`` is at most it.
 
-    Hoare's selection, in place: np.median copied and sorted the residuals on every
-    robustness pass (about a tenth of a robust split's time on monthly series).
+    Quickselect with the partitions done without branches: the values below the pivot
+    (the median of three) are swapped to the front one by one whatever each value is,
+    the count advancing by the comparison's result; then, among the rest, those equal to
+    it. Hoare's partition, with a branch per value, mispredicted about every other one on
+    residuals (1.9 us for 120 values, 5% of a robust split). np.median copied and sorted
+    the residuals on every robustness pass.
     """
     lo = 0
-    hi = count - 1
-    while lo < hi:
-        pivot = a[(lo + hi) // 2]
-        i = lo
-        j = hi
-        while i <= j:
-            while a[i] < pivot:
-                i += 1
-            while a[j] > pivot:
-                j -= 1
-            if i <= j:
-                a[i], a[j] = a[j], a[i]
-                i += 1
-                j -= 1
-        if k <= j:
-            hi = j
-        elif k >= i:
-            lo = i
-        else:
-            break
+    hi = count
+    while hi - lo > SHORT:
+        x = a[lo]
+        y = a[(lo + hi) // 2]
+        z = a[hi - 1]
+        pivot = max(min(x, y), min(max(x, y), z))
+        below = lo
+        for i in range(lo, hi):
+            value = a[i]
+            a[i] = a[below]
+            a[below] = value
+            below += value < pivot
+        if k < below:
+            hi = below
+            continue
+        equal = below
+        for i in range(below, hi):
+            value = a[i]
+            a[i] = a[equal]
+            a[equal] = value
+            equal += value == pivot
+        if k < equal:
+            return pivot
+        lo = equal
+    for i in range(lo + 1, hi):
+        value = a[i]
+        j = i - 1
+        while j >= lo and a[j] > value:
+            a[j + 1] = a[j]
+            j -= 1
+        a[j + 1] = value
     return a[k]
 
 
