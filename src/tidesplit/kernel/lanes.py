@@ -350,16 +350,21 @@ def _interpolate(ys: np.ndarray, base: int, stride: int, i: int, k: int) -> None
 @njit(nogil=True, cache=True)
 def _take(
     ys: np.ndarray, at: int, res: np.ndarray, fallback: np.ndarray, fallback_at: int, fit: int = 0
-) -> None:
+) -> bool:
     """The lanes' fitted values of fit ``fit`` in ``res`` into ``ys[at:]``; a lane whose fit
-    had no point of weight takes ``fallback[fallback_at + lane]``. (An offset rather than a
-    view ``res[k:]``: a view costs two atomic reference counts, as dear as a short fit.)"""
+    had no point of weight takes ``fallback[fallback_at + lane]``. Whether any value taken
+    is NaN. (An offset rather than a view ``res[k:]``: a view costs two atomic reference
+    counts, as dear as a short fit.)"""
     first = 2 * SERIES * fit
+    missing = False
     for lane in range(SERIES):
         if res[first + SERIES + lane] != 0.0:
-            ys[at + lane] = res[first + lane]
+            value = res[first + lane]
         else:
-            ys[at + lane] = fallback[fallback_at + lane]
+            value = fallback[fallback_at + lane]
+        ys[at + lane] = value
+        missing |= value != value
+    return missing
 
 
 @njit(nogil=True, cache=True)
@@ -386,12 +391,13 @@ def _smooth(
             ys[out_base + lane] = raw[base + lane]
         return
     step = min(jump, n - 1)
+    unfitted = False  # a NaN taken (a fit with no point of weight at a missing value)
     nleft = 0
     nright = n - 1
     if span >= n:
         for i in range(0, n, step):
             _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
-            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
+            unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
     else:
         half = (span + 1) // 2
         # Interior fits (a whole window, not clamped at an end) share their points, tricube
@@ -418,7 +424,9 @@ def _smooth(
                 )  # fmt: skip
                 for f in range(UNIT_FITS):
                     at = i + f * step
-                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
+                    unfitted |= _take(
+                        ys, out_base + at * out_stride, res, raw, base + at * stride, f
+                    )
                 i += UNIT_FITS * step
                 continue
             if not unit and i + 1 >= half and i + (LISTED_FITS - 1) * step <= interior_last:
@@ -429,7 +437,9 @@ def _smooth(
                 )  # fmt: skip
                 for f in range(LISTED_FITS):
                     at = i + f * step
-                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
+                    unfitted |= _take(
+                        ys, out_base + at * out_stride, res, raw, base + at * stride, f
+                    )
                 i += LISTED_FITS * step
                 continue
             if i + 1 >= half and i <= interior_last:
@@ -446,7 +456,7 @@ def _smooth(
             else:
                 nleft, nright = _window(i, n, span, half)
                 _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
-            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
+            unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
             i += step
         nleft, nright = _window(((n - 1) // step) * step, n, span, half)
     if step != 1:
@@ -456,9 +466,13 @@ def _smooth(
         if last_fit != n - 1:
             # the neighbourhood left over from the final jump, as in smooth
             _fit(y, pw, base, stride, n, span, degree, float(n - 1), nleft, nright, res)
-            _take(ys, out_base + (n - 1) * out_stride, res, raw, base + (n - 1) * stride)
+            unfitted |= _take(
+                ys, out_base + (n - 1) * out_stride, res, raw, base + (n - 1) * stride
+            )
             if last_fit != n - 2:
                 _interpolate(ys, out_base, out_stride, last_fit, n - 1)
+    if not unfitted:
+        return  # lines between numbers hold no NaN: nothing to fill
     for lane in range(SERIES):
         for i in range(n):
             if math.isnan(ys[out_base + i * out_stride + lane]):
