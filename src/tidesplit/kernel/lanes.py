@@ -368,6 +368,16 @@ def _take(
 
 
 @njit(nogil=True, cache=True)
+def _all_unit(pw: np.ndarray, base: int, stride: int, n: int) -> bool:
+    """Whether every lane's point weights ``pw[base + j * stride + lane]`` are 1."""
+    for j in range(n):
+        for lane in range(SERIES):
+            if pw[base + j * stride + lane] != 1.0:
+                return False
+    return True
+
+
+@njit(nogil=True, cache=True)
 def _smooth(
     y: np.ndarray,
     raw: np.ndarray,
@@ -404,11 +414,7 @@ def _smooth(
         # weights and distances: listed once (as loess.smooth does), and with unit point
         # weights their weights' sums too.
         interior_last = n - 1 - span + half
-        unit = True
-        for j in range(n):
-            for lane in range(SERIES):
-                if pw[base + j * stride + lane] != 1.0:
-                    unit = False
+        unit = _all_unit(pw, base, stride, n)
         table = np.empty((3, span))
         moments = _unit_moments(span, table)
         h = float(max(half - 1, span - half))
