@@ -19,16 +19,9 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import (
-    answers,
-    arguments,
-    arrow_lists,
-    calendar,
-    forecast_ahead,
-    series_profile,
-    sql_build,
-    unusual,
-)
+# The answers other than the split (forecast_ahead, series_profile, unusual) are imported by
+# their handlers: a plain split, the common first query, needs none of them.
+from . import answers, arguments, arrow_lists, calendar, sql_build
 from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import SQL_TYPES
@@ -437,6 +430,8 @@ def _effect_lists(
 
 
 def _profile_handler(call: _Call) -> pa.Array:
+    from . import series_profile
+
     result = call.split(fill_gaps=True)
     found = series_profile.profile(result, call.kind)
     fields: dict[str, pa.Array] = {
@@ -482,6 +477,8 @@ def _audit_handler(call: _Call) -> pa.Array:
 
 
 def _outlier_handler(call: _Call) -> pa.Array:
+    from . import unusual
+
     result = call.split(fill_gaps=True)
     found = unusual.unusual_points(
         result,
@@ -507,6 +504,8 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
+    from . import forecast_ahead
+
     horizon, level, method = forecast_ahead.forecast_arguments(
         call.settings["steps_ahead"], call.settings["coverage"], call.settings["trend_model"]
     )
@@ -611,7 +610,12 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     >>> con.sql(sql).fetchall()
     [(8,)]
     """
-    registered = _registered(con)
+    return _register(con, replace=replace, registered=_registered(con))
+
+
+def _register(
+    con: duckdb.DuckDBPyConnection, *, replace: bool, registered: set[str]
+) -> duckdb.DuckDBPyConnection:
     for name, (handler, result_type) in UDFS.items():
         present = name in registered
         if present and replace:
@@ -637,4 +641,10 @@ def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnec
     >>> con.sql("SELECT 1").fetchall()
     [(1,)]
     """
-    return register(duckdb.connect(database if database is not None else ":memory:", **kwargs))
+    con = duckdb.connect(database if database is not None else ":memory:", **kwargs)
+    if database is None or database == ":memory:":
+        # a new in-memory database has none of our UDFs: no need to ask the catalog (a scan
+        # of every function, 15 ms). A file may be open on another connection of this
+        # process, which shares its UDFs.
+        return _register(con, replace=False, registered=set())
+    return register(con)
