@@ -105,10 +105,10 @@ WITH __src AS (
     FROM __src
 )
 -- No ORDER BY: the lists of one group share one order, and the UDF sorts by time itself,
--- which is several times cheaper than four sorted aggregates. The times and values as they
--- came come twice: as lists of one-field structs (the rows, with the column's name and
--- type), and as plain lists with one such struct per series (the shape) from which rows
--- are made again after unnest; DuckDB builds only what a macro uses, and the plain lists
+-- which is several times cheaper than four sorted aggregates. The input's times and values
+-- are offered two ways: as lists of one-field structs (rows that carry the column's name
+-- and type), and as plain lists with one such struct per series (its shape), from which the
+-- rows are made again after unnest. DuckDB builds only what a macro uses; the plain lists
 -- cost it a fifth less in a whole split (see __tide_split_keys).
 SELECT __key,
        list(__time_row) AS __time_rows,
