@@ -27,7 +27,10 @@ import numpy as np
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from suite import HOURLY, Case, make_batch
 
-FILES = ("__init__.py", "layout.py", "loess.py", "threads.py", "stl.py", "mstl.py")
+FILES = (
+    "__init__.py", "layout.py", "loess.py", "threads.py", "median.py", "lanes.py", "stl.py",
+    "mstl.py",
+)  # fmt: skip
 
 
 def load_before(ref: str, folder: str) -> tuple[ModuleType, ModuleType]:
@@ -42,13 +45,15 @@ def load_before(ref: str, folder: str) -> tuple[ModuleType, ModuleType]:
     package = os.path.join(folder, "kernel_before")
     os.makedirs(package)
     for name in FILES:
-        text = subprocess.run(
+        shown = subprocess.run(
             ["git", "show", f"{ref}:src/tidesplit/kernel/{name}"],
             capture_output=True,
             text=True,
-            check=True,
             cwd=root,
-        ).stdout
+        )
+        if shown.returncode != 0:
+            continue  # a module that came later
+        text = shown.stdout
         with open(os.path.join(package, name), "w") as f:
             f.write(text)
     sys.path.insert(0, folder)
@@ -104,24 +109,33 @@ def prepare(case: Case, stl_mod: ModuleType, mstl_mod: ModuleType):  # type: ign
     return go, (trend, seasonal_out, weight)
 
 
+def noisy(rng: np.random.Generator, n: int, cycle: list[int]) -> np.ndarray:
+    """An invented series with the given periods, missing points, a gap and outliers."""
+    t = np.arange(n)
+    y = rng.normal(0, 1, n) * rng.uniform(0.1, 5) + rng.uniform(-50, 500) + 0.03 * t
+    for p in cycle:
+        y = y + rng.uniform(0, 10) * np.sin(2 * np.pi * t / p + rng.uniform(0, 6))
+    if rng.random() < 0.5:
+        y[rng.random(n) < rng.uniform(0, 0.3)] = np.nan
+    if rng.random() < 0.2:
+        y[rng.integers(0, n) :][: int(rng.integers(1, 3 * cycle[-1]))] = np.nan  # a long gap
+    y[rng.integers(0, n, 3)] += rng.normal(0, 50, 3)  # outliers
+    return y
+
+
 def random_batch(rng: np.random.Generator, count: int, periods: int):  # type: ignore[no-untyped-def]
     """Series of random lengths, periods, spans, jumps, degrees, loops and missing points,
-    with one settings row per period (MSTL's layout when ``periods`` is 2)."""
+    with one settings row per period (MSTL's layout when ``periods`` is 2); each shape
+    drawn is used by up to 20 series in a row."""
     from tidesplit.kernel import layout as k
 
     series, rows = [], []
-    for _ in range(count):
+    while len(series) < count:
         cycle = sorted(int(p) for p in rng.choice([2, 3, 4, 5, 7, 12, 24, 52], periods, False))
         n = int(rng.integers(2 * cycle[-1] + 1, 15 * cycle[-1] + 40))
-        t = np.arange(n)
-        y = rng.normal(0, 1, n) * rng.uniform(0.1, 5) + rng.uniform(-50, 500) + 0.03 * t
-        for p in cycle:
-            y = y + rng.uniform(0, 10) * np.sin(2 * np.pi * t / p + rng.uniform(0, 6))
-        if rng.random() < 0.5:
-            y[rng.random(n) < rng.uniform(0, 0.3)] = np.nan
-        if rng.random() < 0.2:
-            y[rng.integers(0, n) :][: int(rng.integers(1, 3 * cycle[-1]))] = np.nan  # a long gap
-        y[rng.integers(0, n, 3)] += rng.normal(0, 50, 3)  # outliers
+        # up to 20 series of each shape drawn, so that series of one shape run side by
+        # side as well as one by one
+        copies = min(int(rng.integers(1, 21)), count - len(series))
         robust = rng.random() < 0.5
         row = np.zeros((periods, k.N_SETTINGS), dtype=np.int64)
         for r, p in enumerate(cycle):
@@ -136,8 +150,9 @@ def random_batch(rng: np.random.Generator, count: int, periods: int):  # type: i
             row[r, k.COL_INNER] = rng.integers(1, 3)
             row[r, k.COL_OUTER] = rng.integers(1, 8) if robust else 0
             row[r, k.COL_ACTIVE] = 1
-        series.append(y)
-        rows.append(row)
+        for _ in range(copies):
+            series.append(noisy(rng, n, cycle))
+            rows.append(row)
     values = np.concatenate(series)
     offsets = np.concatenate([[0], np.cumsum([y.size for y in series])]).astype(np.int64)
     return values, offsets, np.array(rows)

@@ -209,3 +209,116 @@ def test_split_same_bits_in_a_batch_of_mixed_lengths_as_alone():
         part = slice(offsets[s], offsets[s + 1])
         for a, b in zip(together, alone, strict=True):
             assert same_bits(a[part], b), s
+
+
+def settings_row(period: int, season: int, trend: int, robust: bool, jumps: tuple) -> np.ndarray:
+    row = np.zeros(N_SETTINGS, dtype=np.int64)
+    row[COL_PERIOD] = period
+    row[COL_SEASON_SPAN] = season
+    row[COL_TREND_SPAN] = trend
+    row[COL_LOWPASS_SPAN] = period + 1 - period % 2
+    row[COL_SEASON_DEGREE] = row[COL_TREND_DEGREE] = row[COL_LOWPASS_DEGREE] = 1
+    row[COL_SEASON_JUMP], row[COL_TREND_JUMP], row[COL_LOWPASS_JUMP] = jumps
+    row[COL_INNER] = 1 if robust else 2
+    row[COL_OUTER] = 6 if robust else 0
+    row[COL_ACTIVE] = 1
+    return row
+
+
+def noisy_series(rng: np.random.Generator, n: int, period: int, missing: bool) -> np.ndarray:
+    t = np.arange(n)
+    y = 50 + 0.1 * t + 5 * np.sin(2 * np.pi * t / period) + rng.normal(0, 1, n)
+    y[rng.integers(0, n, 2)] += 40  # outliers
+    if missing:
+        y[rng.random(n) < 0.1] = np.nan
+    return y
+
+
+def test_series_of_one_shape_side_by_side_give_the_bits_of_each_alone():
+    """Series of one length and settings run several at a time, one per vector lane
+    (kernel.lanes); shuffled among other shapes, with missing points, robust or not, a fixed
+    seasonal pattern (span 0), and a group that does not fill the lanes, each series gets
+    the bits it gets split alone."""
+    from tidesplit.kernel.lanes import SERIES
+
+    rng = np.random.default_rng(11)
+    shapes = [
+        (120, settings_row(12, 13, 21, True, (2, 3, 2))),
+        (120, settings_row(12, 13, 21, False, (2, 3, 2))),
+        (96, settings_row(7, 0, 15, True, (1, 2, 1))),
+        (500, settings_row(24, 9, 41, True, (1, 5, 3))),
+        (61, settings_row(4, 35, 45, False, (3, 1, 2))),
+    ]
+    picks = []
+    for k in range(len(shapes)):
+        picks += [k] * (2 * SERIES + k)  # groups that fill the lanes and leave some over
+    picks = rng.permutation(picks)
+    series = [noisy_series(rng, shapes[k][0], shapes[k][1][COL_PERIOD], i % 3 == 0)
+              for i, k in enumerate(picks)]  # fmt: skip
+    settings = np.array([shapes[k][1] for k in picks])
+    settings[5, COL_ACTIVE] = 0  # left alone: its outputs stay as they were
+    values = np.concatenate(series)
+    offsets = np.concatenate([[0], np.cumsum([len(y) for y in series])]).astype(np.int64)
+    together = [np.full(values.size, -1.0) for _ in range(3)]
+    stl_batch_serial(values, offsets, settings, *together)
+    for s, y in enumerate(series):
+        part = slice(offsets[s], offsets[s + 1])
+        if s == 5:
+            assert all((a[part] == -1.0).all() for a in together)
+            continue
+        alone = [np.empty(y.size) for _ in range(3)]
+        stl_batch_serial(y, np.array([0, y.size]), settings[s : s + 1], *alone)
+        for a, b in zip(together, alone, strict=True):
+            assert same_bits(a[part], b), s
+
+
+def test_several_periods_side_by_side_give_the_bits_of_each_alone():
+    """MSTL's rounds for series of one shape run side by side too; robust and not, with
+    missing points and a group that does not fill the lanes."""
+    from tidesplit.kernel.lanes import SERIES
+    from tidesplit.kernel.mstl import mstl_batch_serial
+
+    rng = np.random.default_rng(12)
+    for robust in (False, True):
+        rows = np.array(
+            [settings_row(7, 7, 15, robust, (1, 2, 1)), settings_row(30, 11, 61, robust, (2, 6, 3))]
+        )
+        n = 400
+        series = [noisy_series(rng, n, 7, s % 2 == 0) for s in range(SERIES + 3)]
+        for y in series:
+            y += 4 * np.cos(2 * np.pi * np.arange(n) / 30)
+        values = np.concatenate(series)
+        offsets = np.arange(0, values.size + 1, n, dtype=np.int64)
+        settings = np.tile(rows[None], (len(series), 1, 1))
+        counts = np.full(len(series), 2, dtype=np.int64)
+        trend, weight = np.empty(values.size), np.empty(values.size)
+        seasonal = np.empty((2, values.size))
+        mstl_batch_serial(values, offsets, settings, counts, 2, trend, seasonal, weight)
+        for s, y in enumerate(series):
+            part = slice(offsets[s], offsets[s + 1])
+            t1, w1, s1 = np.empty(n), np.empty(n), np.empty((2, n))
+            mstl_batch_serial(y, np.array([0, n]), settings[s : s + 1], counts[:1], 2, t1, s1, w1)
+            assert same_bits(trend[part], t1), (robust, s)
+            assert same_bits(weight[part], w1), (robust, s)
+            assert same_bits(seasonal[:, part], s1), (robust, s)
+
+
+def test_series_of_one_shape_are_grouped_whatever_their_order():
+    """Two settings of one length taken in turn, another length, an inactive series: the
+    groups hold every active series once, each group one shape, so that the lanes fill."""
+    from tidesplit.kernel.stl import same_shape_groups
+
+    lengths = [120, 120, 96, 120, 120, 96, 120, 120, 120]
+    offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+    settings = np.tile(settings_row(12, 13, 21, False, (2, 3, 2)), (len(lengths), 1))
+    settings[1::2, COL_OUTER] = 6  # every other series robust
+    settings[7, COL_ACTIVE] = 0
+    active = settings[:, COL_ACTIVE] != 0
+    counts = np.zeros(len(lengths), dtype=np.int64)
+    order, starts = same_shape_groups(offsets, settings, active, counts, 0, len(lengths))
+    assert sorted(order) == [s for s in range(len(lengths)) if s != 7]
+    groups = [order[starts[g] : starts[g + 1]] for g in range(len(starts) - 1)]
+    shapes = {(lengths[s], tuple(settings[s])) for s in order}
+    assert len(groups) == len(shapes)  # one group per shape: none split by the order
+    for group in groups:
+        assert len({(lengths[s], tuple(settings[s])) for s in group}) == 1

@@ -90,10 +90,28 @@ def test_robust_with_missing_and_outliers(rng):
 def test_the_robustness_median_is_numpys(rng):
     # the in-place selection that scales the robustness weights gives np.median's value
     # exactly: odd and even counts, ties, a NaN
-    from tidesplit.kernel.stl import _median
+    from tidesplit.kernel.median import _median
 
     for count in (1, 2, 3, 4, 7, 10, 31, 120, 121):
         for values in (rng.normal(size=count), rng.integers(0, 4, count).astype(float)):
             assert _median(values.copy(), count) == np.median(values)
     with_gap = np.array([1.0, np.nan, 3.0])
     assert np.isnan(_median(with_gap, 3))
+
+
+def test_the_guided_median_is_numpys_whatever_the_guess(rng):
+    # the median found among the values near the previous pass's is np.median's value
+    # exactly, whether the guess is good, poor or missing, with ties and a NaN
+    from tidesplit.kernel.median import _median_guided
+
+    for count in (1, 2, 3, 4, 7, 10, 31, 120, 121, 8760):
+        for values in (
+            np.abs(rng.normal(size=count)),
+            rng.integers(0, 4, count).astype(float),
+            np.zeros(count),
+        ):
+            truth = np.median(values)
+            for guess in (truth, truth * 1.05, truth * 0.9, truth * 3, 1e-300, 0.0, np.nan):
+                assert _median_guided(values.copy(), count, guess) == truth, (count, guess)
+    with_gap = np.array([1.0, np.nan, 3.0, 2.0])
+    assert np.isnan(_median_guided(with_gap, 4, 2.0))

@@ -843,6 +843,7 @@ def _robust_one(
     spread = spread if spread > 0.0 else 1.0
     screened = np.zeros(n, dtype=np.bool_)  # the points the columns were screened on
     columns = np.flatnonzero(verdict == KEPT)
+    median = np.nan  # the previous pass's, to guide the next (median._median_guided)
     for r in range(outer + 1):
         # the columns on the points that keep weight (a weight of 0 on the leap-year
         # Februaries leaves the period's length nothing to tell), screened again whenever
@@ -897,7 +898,7 @@ def _robust_one(
         _without_effect(y, X, b, rest)
         for i in range(n):
             fitted[i] = trend[i] + seasonal[i]
-        _robustness_weights(rest, fitted, n, pw, scratch)
+        median = _robustness_weights(rest, fitted, n, pw, scratch, median)
         start[:] = trend
     # confirm: split y - X b with the last weights from the last pass's start, regress;
     # with b solved directly the first round moves it by rounding only

@@ -13,6 +13,9 @@ import math
 import numpy as np
 from numba import get_num_threads, njit, prange
 
+from .lanes import LONGEST, SERIES, stl_lanes
+from .lanes import buffer_size as lanes_buffer_size
+
 # Columns of the settings matrix (defined apart, so that the settings can be built without
 # loading the compiler).
 from .layout import (
@@ -41,6 +44,7 @@ from .loess import (
     fit_at,
     smooth,
 )
+from .median import _median_guided
 from .threads import launch
 
 
@@ -247,60 +251,13 @@ def _subseries_smooth(
 
 
 @njit(nogil=True, cache=True)
-def _select(a: np.ndarray, count: int, k: int) -> float:
-    """The ``k``-th smallest of ``a[:count]`` (0-based), reordering ``a`` in place.
-
-    Hoare's selection, in place: np.median copied and sorted the residuals on every
-    robustness pass (about a tenth of a robust split's time on monthly series).
-    """
-    lo = 0
-    hi = count - 1
-    while lo < hi:
-        pivot = a[(lo + hi) // 2]
-        i = lo
-        j = hi
-        while i <= j:
-            while a[i] < pivot:
-                i += 1
-            while a[j] > pivot:
-                j -= 1
-            if i <= j:
-                a[i], a[j] = a[j], a[i]
-                i += 1
-                j -= 1
-        if k <= j:
-            hi = j
-        elif k >= i:
-            lo = i
-        else:
-            break
-    return a[k]
-
-
-@njit(nogil=True, cache=True)
-def _median(a: np.ndarray, count: int) -> float:
-    """Median of ``a[:count]`` (the mean of the middle two for an even count), as
-    np.median gives it, NaN if any value is; reorders ``a``."""
-    for i in range(count):
-        if math.isnan(a[i]):
-            return math.nan
-    upper = _select(a, count, count // 2)
-    if count % 2:
-        return upper
-    lower = a[0]
-    for i in range(1, count // 2):
-        if a[i] > lower:
-            lower = a[i]
-    return 0.5 * (lower + upper)
-
-
-@njit(nogil=True, cache=True)
 def _robustness_weights(
-    y: np.ndarray, fit: np.ndarray, n: int, rw: np.ndarray, absres: np.ndarray
-) -> None:
+    y: np.ndarray, fit: np.ndarray, n: int, rw: np.ndarray, absres: np.ndarray, guess: float
+) -> float:
     """Bisquare of |remainder| / (6 * median |remainder|) (paper, section 2.4).
 
-    Missing points get weight 0; the median is over the observed points.
+    Missing points get weight 0; the median is over the observed points. ``guess`` is the
+    previous pass's median (NaN for none: see ``_median_guided``); returns this one's.
     """
     count = 0
     for i in range(n):
@@ -308,8 +265,9 @@ def _robustness_weights(
             absres[count] = abs(y[i] - fit[i])
             count += 1
     if count == 0:
-        return
-    scale = 6.0 * _median(absres, count)
+        return math.nan
+    median = _median_guided(absres, count, guess)
+    scale = 6.0 * median
     near = NEAR * scale
     far = FAR * scale
     for i in range(n):
@@ -325,6 +283,7 @@ def _robustness_weights(
             rw[i] = q * q
         else:
             rw[i] = 0.0
+    return median
 
 
 @njit(nogil=True, cache=True)
@@ -418,6 +377,7 @@ def _stl_one(
         ones[i] = 1.0
 
     passes = 0
+    median = math.nan
     while True:
         for _ in range(inner):
             _inner_pass(
@@ -429,9 +389,61 @@ def _stl_one(
             break
         for i in range(n):
             detrended[i] = trend[i] + seasonal[i]
-        _robustness_weights(y, detrended, n, pw, scratch)
+        median = _robustness_weights(y, detrended, n, pw, scratch, median)
         for i in range(n):
             weight[i] = pw[i]
+
+
+@njit(nogil=True, cache=True)
+def same_shape_groups(
+    offsets: np.ndarray,
+    settings: np.ndarray,
+    active: np.ndarray,
+    counts: np.ndarray,
+    first: int,
+    stop: int,
+) -> tuple[np.ndarray, np.ndarray]:
+    """The active series of ``first .. stop-1`` in an order where series of one length, one
+    settings row (or matrix, for several periods) and one ``counts`` entry (MSTL's number of
+    periods) stand together: (the series in that order, the start of each group in it, with
+    the end as a last entry)."""
+    count = 0
+    for s in range(first, stop):
+        if active[s]:
+            count += 1
+    chosen = np.empty(count, dtype=np.int64)
+    lengths = np.empty(count, dtype=np.int64)
+    marks = np.empty(count, dtype=np.int64)
+    count = 0
+    for s in range(first, stop):
+        if active[s]:
+            chosen[count] = s
+            lengths[count] = offsets[s + 1] - offsets[s]
+            # a mark of the settings (FNV-1a over their values), so that series of one
+            # length but different settings do not interleave after sorting
+            mark = np.int64(-3750763034362895579) ^ counts[s]
+            for value in settings[s].flat:
+                mark = (mark ^ value) * np.int64(1099511628211)
+            marks[count] = mark
+            count += 1
+    by_mark = np.argsort(marks, kind="mergesort")
+    order = chosen[by_mark][np.argsort(lengths[by_mark], kind="mergesort")]
+    starts = np.empty(count + 1, dtype=np.int64)
+    groups = 0
+    for i in range(count):
+        s = order[i]
+        if i > 0:
+            t = order[i - 1]
+            if (
+                offsets[s + 1] - offsets[s] == offsets[t + 1] - offsets[t]
+                and counts[s] == counts[t]
+                and np.array_equal(settings[s], settings[t])
+            ):
+                continue
+        starts[groups] = i
+        groups += 1
+    starts[groups] = count
+    return order, starts[: groups + 1]
 
 
 @njit(nogil=True, cache=True)
@@ -445,19 +457,49 @@ def _stl_range(
     seasonal: np.ndarray,
     weight: np.ndarray,
 ) -> None:
-    """Series ``first .. stop-1`` of the batch, one scratch buffer for all of them."""
+    """Series ``first .. stop-1`` of the batch: series of one shape ``SERIES`` at a time
+    side by side (``lanes.stl_lanes``), the rest one by one; scratch reused throughout."""
     need = 0
     for s in range(first, stop):
         if settings[s, COL_ACTIVE]:
             n = offsets[s + 1] - offsets[s]
             need = max(need, buffer_size(n, settings[s, COL_PERIOD]))
+            need = max(need, lanes_buffer_size(n, settings[s, COL_PERIOD]))
     buf = np.empty(need)
-    for s in range(first, stop):
-        if not settings[s, COL_ACTIVE]:
-            continue
-        lo = offsets[s]
-        hi = offsets[s + 1]
-        _stl_one(values[lo:hi], settings[s], trend[lo:hi], seasonal[lo:hi], weight[lo:hi], buf)
+    one_period = np.zeros(offsets.shape[0] - 1, dtype=np.int64)
+    active = settings[:, COL_ACTIVE] != 0
+    order, starts = same_shape_groups(offsets, settings, active, one_period, first, stop)
+    longest = 0
+    for s in order:
+        longest = max(longest, offsets[s + 1] - offsets[s])
+    side = np.empty((4, longest * SERIES))
+    for g in range(starts.size - 1):
+        begin = starts[g]
+        end = starts[g + 1]
+        n = offsets[order[begin] + 1] - offsets[order[begin]]
+        while end - begin >= SERIES and n <= LONGEST:
+            group = order[begin : begin + SERIES]
+            y = side[0, : n * SERIES]
+            for lane in range(SERIES):
+                lo = offsets[group[lane]]
+                for i in range(n):
+                    y[i * SERIES + lane] = values[lo + i]
+            stl_lanes(
+                y, n, settings[group[0]], side[1, : n * SERIES], side[2, : n * SERIES],
+                side[3, : n * SERIES], buf,
+            )  # fmt: skip
+            for lane in range(SERIES):
+                lo = offsets[group[lane]]
+                for i in range(n):
+                    at = i * SERIES + lane
+                    trend[lo + i] = side[1, at]
+                    seasonal[lo + i] = side[2, at]
+                    weight[lo + i] = side[3, at]
+            begin += SERIES
+        for s in order[begin:end]:
+            lo = offsets[s]
+            hi = offsets[s + 1]
+            _stl_one(values[lo:hi], settings[s], trend[lo:hi], seasonal[lo:hi], weight[lo:hi], buf)
 
 
 @njit(nogil=True, cache=True)

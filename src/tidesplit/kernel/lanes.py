@@ -1,0 +1,695 @@
+"""STL on several series of one shape at once, one series per lane of a vector register.
+
+Series of the same length and settings go through the same steps on the same positions:
+only their values and weights differ. Laid side by side, point ``t`` of lane ``l`` at
+``t * SERIES + l`` (the layout called interleaved here), every loess fit of a step serves
+``SERIES`` series: one vector load gives a point of each, the distances and tricube weights
+are computed once, and the fitted values come out of one vector division. Each lane does
+exactly the operations of ``loess.fit_at`` and of ``stl._stl_one`` in their order (plain
+IEEE multiplies, adds, divisions and square roots, no fused multiply-add), so every series
+gets the bits it gets alone; ``benchmarks/kernel_loops.py --check`` and
+``tests/test_kernel_bits.py`` hold that.
+
+Within one series the loess loops already run four fits at a time (``loess``); this layout
+goes further for fleets of equal series, where the neighbourhoods are short (13-21 points on
+monthly data) and the fits' ends and divisions were left scalar.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from llvmlite import ir
+from numba import njit, types
+from numba.core import cgutils
+from numba.extending import intrinsic
+
+from .layout import (
+    COL_INNER,
+    COL_LOWPASS_DEGREE,
+    COL_LOWPASS_JUMP,
+    COL_LOWPASS_SPAN,
+    COL_OUTER,
+    COL_PERIOD,
+    COL_SEASON_DEGREE,
+    COL_SEASON_JUMP,
+    COL_SEASON_SPAN,
+    COL_TREND_DEGREE,
+    COL_TREND_JUMP,
+    COL_TREND_SPAN,
+)
+from .loess import FAR, NEAR, _unit_moments, _window
+from .median import _median_guided
+
+# Series side by side: four doubles fill a 256-bit register. Eight (a 512-bit register
+# here) measured 3-8% slower: the divisions, per lane as dear in either width, and twice
+# the scratch.
+SERIES = 4
+
+# Longer series go one by one: side by side, their scratch outgrows the processor's caches.
+LONGEST = 100_000
+
+
+class _Vectors:
+    """LLVM vectors of ``SERIES`` doubles, for the intrinsics below."""
+
+    def __init__(self, builder: ir.IRBuilder) -> None:
+        self.builder = builder
+        self.dbl = ir.DoubleType()
+        self.i64 = ir.IntType(64)
+        self.vec = ir.VectorType(self.dbl, SERIES)
+        self.undef = ir.Constant(self.vec, ir.Undefined)
+        self.zero = ir.Constant(self.vec, [0.0] * SERIES)
+        self.ones = ir.Constant(self.vec, [1.0] * SERIES)
+
+    def splat(self, x: ir.Value) -> ir.Value:
+        b = self.builder
+        mask = ir.Constant(ir.VectorType(ir.IntType(32), SERIES), [0] * SERIES)
+        first = b.insert_element(self.undef, x, ir.Constant(self.i64, 0))
+        return b.shuffle_vector(first, self.undef, mask)
+
+    def load(self, ptr: ir.Value, index: ir.Value) -> ir.Value:
+        # the lanes of one point are adjacent: one unaligned vector load
+        address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
+        return self.builder.load(address, align=8)
+
+    def store_at(self, value: ir.Value, ptr: ir.Value, index: ir.Value) -> None:
+        address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
+        self.builder.store(value, address, align=8)
+
+    def store(self, value: ir.Value, ptr: ir.Value, index: int) -> None:
+        at = self.builder.gep(ptr, [ir.Constant(self.i64, index)])
+        self.builder.store(value, self.builder.bitcast(at, self.vec.as_pointer()), align=8)
+
+    def add_terms(self, sums: list, w: ir.Value, u: ir.Value, y: ir.Value) -> None:
+        """fit_at's five sums, plus the terms of a point of weight ``w`` (lanes) at
+        distance ``u`` (lanes). fit_at skips a point of weight 0; here its terms are zeros
+        (x + 0 = x and x + -0 = x for these sums, which start at +0 and so are never -0).
+        That needs a finite ``y`` there: the callers pass the values with 0 wherever the
+        point weight is 0 (a missing value, NaN, always has weight 0)."""
+        b = self.builder
+        wu = b.fmul(w, u)
+        wy = b.fmul(w, y)
+        terms = (w, wu, b.fmul(wu, u), wy, b.fmul(wy, u))
+        for total, term in zip(sums, terms, strict=True):
+            b.store(b.fadd(b.load(total), term), total)
+
+    def finish(self, moments: tuple, linear: ir.Value, near_range: ir.Value, out: ir.Value):
+        """loess._finish in every lane at once, the same divisions and square root, both
+        branches computed and the right one selected: the fitted values to ``out[:SERIES]``,
+        1.0 or 0.0 (fit_at's ok) to ``out[SERIES:]``."""
+        b = self.builder
+        total, first, second, value, cross = moments
+        ok = b.fcmp_ordered(">", total, self.zero)
+        mean_y = b.fdiv(value, total)
+        centre = b.fdiv(first, total)
+        spread = b.fsub(b.fdiv(second, total), b.fmul(centre, centre))
+        sqrt = cgutils.get_or_insert_function(
+            b.module, ir.FunctionType(self.vec, [self.vec]), f"llvm.sqrt.v{SERIES}f64"
+        )
+        positive = b.select(b.fcmp_ordered(">", spread, self.zero), spread, self.zero)
+        wide = b.fcmp_ordered(">", b.call(sqrt, [positive]), self.splat(near_range))
+        slope = b.fdiv(b.fsub(b.fdiv(cross, total), b.fmul(centre, mean_y)), spread)
+        line = b.fsub(mean_y, b.fmul(slope, centre))
+        linear_flag = b.icmp_signed("!=", linear, ir.Constant(linear.type, 0))
+        chosen = b.select(linear_flag, b.select(wide, line, mean_y), mean_y)
+        self.store(b.select(ok, chosen, self.zero), out, 0)
+        self.store(b.select(ok, self.ones, self.zero), out, SERIES)
+
+
+def _data(context, builder, sig, args, k):  # type: ignore[no-untyped-def]
+    """The data pointer of array argument ``k``."""
+    return context.make_array(sig.args[k])(context, builder, args[k]).data
+
+
+@intrinsic
+def _fit_lanes(typingctx, y, pw, start, stride, count, shift, h_far, h_near, inv_h, linear,
+               near_range, out):  # fmt: skip
+    """``fit_at`` for ``SERIES`` series side by side: point ``t`` (``0 <= t < count``) of
+    lane ``l`` is ``y[start + t * stride + l]``, at distance ``u = t - shift`` from the
+    fitted position. Writes the fitted values to ``out[:SERIES]`` and, in
+    ``out[SERIES:2 * SERIES]``, 1.0 where the fit had a point of weight (``fit_at``'s ok)
+    and 0.0 where not. ``linear`` is ``h > 0 and degree > 0``; ``near_range`` is
+    ``NEAR * (n - 1)``: ``_finish``'s arguments, taken once for all lanes."""
+    signature = types.none(y, pw, start, stride, count, shift, h_far, h_near, inv_h, linear,
+                           near_range, out)  # fmt: skip
+
+    def codegen(context, builder, sig, args):
+        _, _, start_v, stride_v, count_v, shift_v, far_v, near_v, inv_v, linear_v = args[:10]
+        v = _Vectors(builder)
+        y_ptr, pw_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 1, 11))
+        sums = [cgutils.alloca_once_value(builder, v.zero) for _ in range(5)]
+        fabs = builder.module.declare_intrinsic("llvm.fabs", [v.dbl])
+        one = ir.Constant(v.dbl, 1.0)
+        with cgutils.for_range(builder, count_v) as loop:
+            t = loop.index
+            u = builder.fsub(builder.sitofp(t, v.dbl), shift_v)
+            r = builder.call(fabs, [u])
+            with builder.if_then(builder.not_(builder.fcmp_ordered(">", r, far_v))):
+                near = builder.fcmp_ordered("<=", r, near_v)
+                q = builder.fmul(r, inv_v)
+                q = builder.fsub(one, builder.fmul(builder.fmul(q, q), q))
+                tricube = builder.fmul(builder.fmul(q, q), q)
+                j = builder.add(start_v, builder.mul(t, stride_v))
+                pw_lanes = v.load(pw_ptr, j)
+                # fit_at: the point weight alone when near, else tricube times it
+                w = builder.select(near, pw_lanes, builder.fmul(v.splat(tricube), pw_lanes))
+                v.add_terms(sums, w, v.splat(u), v.load(y_ptr, j))
+        moments = tuple(builder.load(total) for total in sums)
+        v.finish(moments, linear_v, args[10], out_ptr)
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
+# Weighted interior fits taken together by _fit_lanes_listed_two: their five chains of
+# adds each, side by side.
+LISTED_FITS = 2
+
+
+def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
+    """The code of ``_fit_lanes_listed`` for ``fits`` fits, ``gap`` elements apart."""
+
+    def codegen(context, builder, sig, args):
+        _, _, start_v, gap_v, stride_v, _, count_v, linear_v, near_range_v, _ = args
+        v = _Vectors(builder)
+        y_ptr, pw_ptr, table_ptr, out_ptr = (
+            _data(context, builder, sig, args, k) for k in (0, 1, 5, 9)
+        )
+        width = builder.extract_value(
+            context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
+        )
+        sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in range(fits)]
+        with cgutils.for_range(builder, count_v) as loop:
+            k = loop.index
+            t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
+            tricube = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
+            u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
+            j = builder.add(start_v, builder.mul(t, stride_v))
+            for f in range(fits):
+                at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
+                w = builder.fmul(tricube, v.load(pw_ptr, at))
+                v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
+        for f in range(fits):
+            moments = tuple(builder.load(total) for total in sums[f])
+            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+            v.finish(moments, linear_v, near_range_v, here)
+        return context.get_dummy_value()
+
+    return codegen
+
+
+@intrinsic
+def _fit_lanes_listed(typingctx, y, pw, start, gap, stride, table, count, linear, near_range,
+                      out):  # fmt: skip
+    """``_fit_lanes`` for an interior fit, whose points, tricube weights and distances are
+    listed once per smoothing (``loess._unit_moments``: ``table[0]`` the offsets into the
+    window, ``table[1]`` the weights, 1.0 where fit_at takes the point weight alone,
+    ``table[2]`` the distances; ``count`` of them). ``gap`` is unused here (see
+    ``_fit_lanes_listed_two``)."""
+    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+    return signature, _listed_codegen(1)
+
+
+@intrinsic
+def _fit_lanes_listed_two(typingctx, y, pw, start, gap, stride, table, count, linear,
+                          near_range, out):  # fmt: skip
+    """``_fit_lanes_listed`` for ``LISTED_FITS`` interior fits whose windows start ``gap``
+    elements apart, each fit's sums in its own order; fit ``f``'s values and flags go to
+    ``out[2 * SERIES * f:]``."""
+    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+    return signature, _listed_codegen(LISTED_FITS)
+
+
+# Fits with unit point weights taken together by _fit_lanes_unit_four: each fit's two sums
+# are chains of dependent adds, so one fit alone waits on the adder's latency; four fits'
+# chains side by side keep it busy.
+UNIT_FITS = 4
+
+
+def _unit_codegen(fits: int):  # type: ignore[no-untyped-def]
+    """The code of ``_fit_lanes_unit`` for ``fits`` fits, ``gap`` elements apart."""
+
+    def codegen(context, builder, sig, args):
+        _, start_v, gap_v, stride_v, _, count_v, moments_v, linear_v, near_range_v, _ = args
+        v = _Vectors(builder)
+        y_ptr, table_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 4, 9))
+        width = builder.extract_value(
+            context.make_array(sig.args[4])(context, builder, args[4]).shape, 1
+        )
+        values = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
+        crosses = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
+        with cgutils.for_range(builder, count_v) as loop:
+            k = loop.index
+            t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
+            w = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
+            u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
+            j = builder.add(start_v, builder.mul(t, stride_v))
+            for f in range(fits):
+                at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
+                term = builder.fmul(w, v.load(y_ptr, at))  # fit_at's w * y, then (w * y) * u
+                value, cross = values[f], crosses[f]
+                builder.store(builder.fadd(builder.load(value), term), value)
+                builder.store(
+                    builder.fadd(builder.load(cross), builder.fmul(term, v.splat(u))), cross
+                )
+        shared = tuple(v.splat(builder.extract_value(moments_v, m)) for m in range(3))
+        for f in range(fits):
+            moments = (*shared, builder.load(values[f]), builder.load(crosses[f]))
+            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+            v.finish(moments, linear_v, near_range_v, here)
+        return context.get_dummy_value()
+
+    return codegen
+
+
+@intrinsic
+def _fit_lanes_unit(typingctx, y, start, gap, stride, table, count, moments, linear,
+                    near_range, out):  # fmt: skip
+    """``_fit_lanes_listed`` when every point weight is 1: the sums of the weights and of
+    their moments are the same in every fit (``moments``: total, first, second, from
+    ``loess._unit_moments``), so only the sums over ``y`` are left to do. ``gap`` is
+    unused here (see ``_fit_lanes_unit_four``)."""
+    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
+                           out)  # fmt: skip
+    return signature, _unit_codegen(1)
+
+
+@intrinsic
+def _fit_lanes_unit_four(typingctx, y, start, gap, stride, table, count, moments, linear,
+                         near_range, out):  # fmt: skip
+    """``_fit_lanes_unit`` for ``UNIT_FITS`` interior fits whose windows start ``gap``
+    elements apart, the sums of each in its own order; fit ``f``'s values and flags go to
+    ``out[2 * SERIES * f:]``."""
+    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
+                           out)  # fmt: skip
+    return signature, _unit_codegen(UNIT_FITS)
+
+
+@njit(nogil=True, cache=True)
+def _fit(
+    y: np.ndarray,
+    pw: np.ndarray,
+    base: int,
+    stride: int,
+    n: int,
+    span: int,
+    degree: int,
+    xs: float,
+    nleft: int,
+    nright: int,
+    res: np.ndarray,
+) -> None:
+    """``fit_at(y, pw, n, span, degree, xs, nleft, nright)`` in every lane: point ``j`` of
+    lane ``l`` at ``base + j * stride + l``; values and flags into ``res`` (``_fit_lanes``)."""
+    full_range = n - 1.0
+    h = max(xs - nleft, nright - xs)
+    if span > n:
+        h += (span - n) // 2  # as in fit_at
+    h_far = FAR * h
+    h_near = NEAR * h
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    linear = 1 if h > 0.0 and degree > 0 else 0
+    _fit_lanes(
+        y, pw, base + nleft * stride, stride, nright - nleft + 1, xs - nleft, h_far, h_near,
+        inv_h, linear, NEAR * full_range, res,
+    )  # fmt: skip
+
+
+@njit(nogil=True, cache=True)
+def _fill_unfitted(ys: np.ndarray, base: int, stride: int, n: int) -> None:
+    """``loess.fill_unfitted`` on the points ``ys[base + i * stride]``, ``i < n``."""
+    last = -1
+    for i in range(n):
+        if not math.isnan(ys[base + i * stride]):
+            if last == -1 and i > 0:
+                for j in range(i):
+                    ys[base + j * stride] = ys[base + i * stride]
+            elif last >= 0 and i - last > 1:
+                step = (ys[base + i * stride] - ys[base + last * stride]) / (i - last)
+                for j in range(last + 1, i):
+                    ys[base + j * stride] = ys[base + last * stride] + step * (j - last)
+            last = i
+    if last >= 0:
+        for j in range(last + 1, n):
+            ys[base + j * stride] = ys[base + last * stride]
+
+
+@njit(nogil=True, cache=True)
+def _interpolate(ys: np.ndarray, base: int, stride: int, i: int, k: int) -> None:
+    """Points strictly between ``i`` and ``k`` on the line through the fits there, in every
+    lane, as ``loess.smooth`` does between its jumps."""
+    for lane in range(SERIES):
+        at_i = ys[base + i * stride + lane]
+        delta = (ys[base + k * stride + lane] - at_i) / (k - i)
+        for j in range(i + 1, k):
+            ys[base + j * stride + lane] = at_i + delta * (j - i)
+
+
+@njit(nogil=True, cache=True)
+def _take(
+    ys: np.ndarray, at: int, res: np.ndarray, fallback: np.ndarray, fallback_at: int, fit: int = 0
+) -> None:
+    """The lanes' fitted values of fit ``fit`` in ``res`` into ``ys[at:]``; a lane whose fit
+    had no point of weight takes ``fallback[fallback_at + lane]``. (An offset rather than a
+    view ``res[k:]``: a view costs two atomic reference counts, as dear as a short fit.)"""
+    first = 2 * SERIES * fit
+    for lane in range(SERIES):
+        if res[first + SERIES + lane] != 0.0:
+            ys[at + lane] = res[first + lane]
+        else:
+            ys[at + lane] = fallback[fallback_at + lane]
+
+
+@njit(nogil=True, cache=True)
+def _smooth(
+    y: np.ndarray,
+    raw: np.ndarray,
+    pw: np.ndarray,
+    base: int,
+    stride: int,
+    n: int,
+    span: int,
+    degree: int,
+    jump: int,
+    ys: np.ndarray,
+    out_base: int,
+    out_stride: int,
+    res: np.ndarray,
+) -> None:
+    """``loess.smooth`` of ``raw`` in every lane: point ``j`` of lane ``l`` read at
+    ``base + j * stride + l`` and written at ``out_base + j * out_stride + l``. The fits
+    read ``y``: ``raw`` with 0 where the point weight is 0 (see ``_Vectors.add_terms``)."""
+    if n < 2:
+        for lane in range(SERIES):
+            ys[out_base + lane] = raw[base + lane]
+        return
+    step = min(jump, n - 1)
+    nleft = 0
+    nright = n - 1
+    if span >= n:
+        for i in range(0, n, step):
+            _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
+            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
+    else:
+        half = (span + 1) // 2
+        # Interior fits (a whole window, not clamped at an end) share their points, tricube
+        # weights and distances: listed once (as loess.smooth does), and with unit point
+        # weights their weights' sums too.
+        interior_last = n - 1 - span + half
+        unit = True
+        for j in range(n):
+            for lane in range(SERIES):
+                if pw[base + j * stride + lane] != 1.0:
+                    unit = False
+        table = np.empty((3, span))
+        moments = _unit_moments(span, table)
+        h = float(max(half - 1, span - half))
+        linear = 1 if h > 0.0 and degree > 0 else 0
+        near_range = NEAR * (n - 1.0)
+        i = 0
+        while i < n:
+            if unit and i + 1 >= half and i + (UNIT_FITS - 1) * step <= interior_last:
+                start = base + (i + 1 - half) * stride
+                _fit_lanes_unit_four(
+                    y, start, step * stride, stride, table, moments[3], moments[:3], linear,
+                    near_range, res,
+                )  # fmt: skip
+                for f in range(UNIT_FITS):
+                    at = i + f * step
+                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
+                i += UNIT_FITS * step
+                continue
+            if not unit and i + 1 >= half and i + (LISTED_FITS - 1) * step <= interior_last:
+                start = base + (i + 1 - half) * stride
+                _fit_lanes_listed_two(
+                    y, pw, start, step * stride, stride, table, moments[3], linear, near_range,
+                    res,
+                )  # fmt: skip
+                for f in range(LISTED_FITS):
+                    at = i + f * step
+                    _take(ys, out_base + at * out_stride, res, raw, base + at * stride, f)
+                i += LISTED_FITS * step
+                continue
+            if i + 1 >= half and i <= interior_last:
+                start = base + (i + 1 - half) * stride
+                if unit:
+                    _fit_lanes_unit(
+                        y, start, 0, stride, table, moments[3], moments[:3], linear, near_range,
+                        res,
+                    )  # fmt: skip
+                else:
+                    _fit_lanes_listed(
+                        y, pw, start, 0, stride, table, moments[3], linear, near_range, res
+                    )
+            else:
+                nleft, nright = _window(i, n, span, half)
+                _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
+            _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
+            i += step
+        nleft, nright = _window(((n - 1) // step) * step, n, span, half)
+    if step != 1:
+        for i in range(0, n - step, step):
+            _interpolate(ys, out_base, out_stride, i, i + step)
+        last_fit = ((n - 1) // step) * step
+        if last_fit != n - 1:
+            # the neighbourhood left over from the final jump, as in smooth
+            _fit(y, pw, base, stride, n, span, degree, float(n - 1), nleft, nright, res)
+            _take(ys, out_base + (n - 1) * out_stride, res, raw, base + (n - 1) * stride)
+            if last_fit != n - 2:
+                _interpolate(ys, out_base, out_stride, last_fit, n - 1)
+    for lane in range(SERIES):
+        for i in range(n):
+            if math.isnan(ys[out_base + i * out_stride + lane]):
+                _fill_unfitted(ys, out_base + lane, out_stride, n)
+                break
+
+
+@njit(nogil=True, cache=True)
+def _subseries(
+    detrended: np.ndarray,
+    clean: np.ndarray,
+    pw: np.ndarray,
+    n: int,
+    period: int,
+    span: int,
+    degree: int,
+    jump: int,
+    cycle: np.ndarray,
+    res: np.ndarray,
+) -> None:
+    """``stl._subseries_smooth`` in every lane: the cycle-subseries smoothed one point
+    beyond each end, into ``cycle`` (padded position ``m`` is time ``m - period``).
+    ``clean`` is ``detrended`` with 0 where the point weight is 0, for the fits."""
+    stride = period * SERIES
+    for phase in range(period):
+        k = (n - phase - 1) // period + 1
+        base = phase * SERIES
+        first_fit = base + stride  # padded position of the subseries' point 0
+        if span == 0:
+            for lane in range(SERIES):
+                # the (weighted) mean of the subseries everywhere, as _subseries_smooth
+                total = 0.0
+                weight = 0.0
+                for m in range(k):
+                    w = pw[base + m * stride + lane]
+                    if w > 0.0:
+                        total += w * detrended[base + m * stride + lane]
+                        weight += w
+                if weight <= 0.0:
+                    count = 0
+                    for m in range(k):
+                        value = detrended[base + m * stride + lane]
+                        if not math.isnan(value):
+                            total += value
+                            count += 1
+                    weight = max(count, 1)
+                level = total / weight
+                for m in range(k + 2):
+                    cycle[base + m * stride + lane] = level
+            continue
+        _smooth(
+            clean, detrended, pw, base, stride, k, span, degree, jump, cycle, first_fit, stride,
+            res,
+        )  # fmt: skip
+        _fit(clean, pw, base, stride, k, span, degree, -1.0, 0, min(span, k) - 1, res)
+        _take(cycle, base, res, cycle, first_fit)
+        _fit(clean, pw, base, stride, k, span, degree, float(k), max(0, k - span), k - 1, res)
+        _take(cycle, base + (k + 1) * stride, res, cycle, base + k * stride)
+
+
+@intrinsic
+def _moving_average(typingctx, x, n, length, out):
+    """``stl._moving_average`` in every lane: running sums of ``length`` points, each
+    lane's additions, subtractions and divisions in the one-series routine's order, the
+    lanes in one vector (numba's compiler left the lanes' loop scalar, a division per
+    value)."""
+    signature = types.none(x, n, length, out)
+
+    def codegen(context, builder, sig, args):
+        _, n_v, length_v, _ = args
+        v = _Vectors(builder)
+        x_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 3))
+        lanes = ir.Constant(v.i64, SERIES)
+        divisor = v.splat(builder.sitofp(length_v, v.dbl))
+        total = cgutils.alloca_once_value(builder, v.zero)
+        with cgutils.for_range(builder, length_v) as loop:
+            at = builder.mul(loop.index, lanes)
+            builder.store(builder.fadd(builder.load(total), v.load(x_ptr, at)), total)
+        v.store_at(builder.fdiv(builder.load(total), divisor), out_ptr, ir.Constant(v.i64, 0))
+        last = builder.sub(n_v, length_v)
+        with cgutils.for_range(builder, last) as loop:
+            j = builder.add(loop.index, ir.Constant(v.i64, 1))
+            gone = v.load(x_ptr, builder.mul(builder.sub(j, ir.Constant(v.i64, 1)), lanes))
+            come_at = builder.mul(
+                builder.sub(builder.add(j, length_v), ir.Constant(v.i64, 1)), lanes
+            )
+            moved = builder.fadd(builder.fsub(builder.load(total), gone), v.load(x_ptr, come_at))
+            builder.store(moved, total)
+            v.store_at(builder.fdiv(moved, divisor), out_ptr, builder.mul(j, lanes))
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
+@intrinsic
+def _bisquare(typingctx, y, fit, n, scales, rw):
+    """The robustness weights of ``stl._robustness_weights`` in every lane, given each
+    lane's ``6 * median`` in ``scales``: 1 within ``NEAR`` of the scale, the bisquare up to
+    ``FAR``, 0 beyond and where ``y`` is missing; the same operations, both branches
+    computed and the right one selected."""
+    signature = types.none(y, fit, n, scales, rw)
+
+    def codegen(context, builder, sig, args):
+        _, _, n_v, _, _ = args
+        v = _Vectors(builder)
+        y_ptr, fit_ptr, scales_ptr, rw_ptr = (
+            _data(context, builder, sig, args, k) for k in (0, 1, 3, 4)
+        )
+        scale = v.load(scales_ptr, ir.Constant(v.i64, 0))
+        near = builder.fmul(v.splat(ir.Constant(v.dbl, NEAR)), scale)
+        far = builder.fmul(v.splat(ir.Constant(v.dbl, FAR)), scale)
+        fabs = cgutils.get_or_insert_function(
+            builder.module, ir.FunctionType(v.vec, [v.vec]), f"llvm.fabs.v{SERIES}f64"
+        )
+        with cgutils.for_range(builder, n_v) as loop:
+            at = builder.mul(loop.index, ir.Constant(v.i64, SERIES))
+            y_lanes = v.load(y_ptr, at)
+            r = builder.call(fabs, [builder.fsub(y_lanes, v.load(fit_ptr, at))])
+            q = builder.fdiv(r, scale)
+            q = builder.fsub(v.ones, builder.fmul(q, q))
+            weight = builder.select(
+                builder.fcmp_ordered("<=", r, near),
+                v.ones,
+                builder.select(builder.fcmp_ordered("<=", r, far), builder.fmul(q, q), v.zero),
+            )
+            missing = builder.fcmp_unordered("uno", y_lanes, y_lanes)
+            v.store_at(builder.select(missing, v.zero, weight), rw_ptr, at)
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
+@njit(nogil=True, cache=True)
+def _robustness_weights(
+    y: np.ndarray,
+    fit: np.ndarray,
+    n: int,
+    rw: np.ndarray,
+    absres: np.ndarray,
+    medians: np.ndarray,
+    scales: np.ndarray,
+) -> None:
+    """``stl._robustness_weights`` in every lane; ``medians`` holds each lane's previous
+    median (NaN for none) and receives this pass's; ``scales`` is scratch of ``SERIES``."""
+    for lane in range(SERIES):
+        count = 0
+        for i in range(n):
+            at = i * SERIES + lane
+            if not math.isnan(y[at]):
+                absres[count] = abs(y[at] - fit[at])
+                count += 1
+        medians[lane] = _median_guided(absres, count, medians[lane]) if count else math.nan
+        scales[lane] = 6.0 * medians[lane]
+    _bisquare(y, fit, n, scales, rw)
+
+
+@njit(nogil=True, cache=True)
+def buffer_size(n: int, period: int) -> int:
+    """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
+    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES
+
+
+@njit(nogil=True, cache=True)
+def stl_lanes(
+    y: np.ndarray,
+    n: int,
+    settings: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+    buf: np.ndarray,
+) -> None:
+    """``stl._stl_one`` of ``SERIES`` series of ``n`` points and one settings row, laid
+    side by side in ``y`` (point ``t`` of series ``l`` at ``t * SERIES + l``), into
+    ``trend``, ``seasonal`` and ``weight`` in the same layout. ``buf`` holds at least
+    ``buffer_size(n, period)`` values."""
+    period = settings[COL_PERIOD]
+    inner = settings[COL_INNER]
+    outer = settings[COL_OUTER]
+    width = (n + 2 * period + 2) * SERIES
+    detrended = buf[0:width]
+    cycle = buf[width : 2 * width]
+    smoothed = buf[2 * width : 3 * width]
+    lowpass = buf[3 * width : 4 * width]
+    pw = buf[4 * width : 5 * width]
+    ones = buf[5 * width : 6 * width]
+    clean = buf[6 * width : 7 * width]
+    rest = 7 * width
+    absres = buf[rest : rest + n]
+    res = buf[rest + n : rest + n + 2 * UNIT_FITS * SERIES]
+    medians = buf[rest + n + 2 * UNIT_FITS * SERIES : rest + n + (2 * UNIT_FITS + 1) * SERIES]
+    scales = buf[rest + n + (2 * UNIT_FITS + 1) * SERIES : rest + n + (2 * UNIT_FITS + 2) * SERIES]
+    medians[:] = math.nan
+    for i in range(n * SERIES):
+        pw[i] = 0.0 if math.isnan(y[i]) else 1.0
+        trend[i] = 0.0
+        weight[i] = pw[i]
+    for i in range(width):
+        ones[i] = 1.0
+    passes = 0
+    while True:
+        for _ in range(inner):
+            for i in range(n * SERIES):
+                detrended[i] = y[i] - trend[i]
+                clean[i] = detrended[i] if pw[i] != 0.0 else 0.0
+            _subseries(
+                detrended, clean, pw, n, period, settings[COL_SEASON_SPAN],
+                settings[COL_SEASON_DEGREE], settings[COL_SEASON_JUMP], cycle, res,
+            )  # fmt: skip
+            _moving_average(cycle, n + 2 * period, period, smoothed)
+            _moving_average(smoothed, n + period + 1, period, lowpass)
+            _moving_average(lowpass, n + 2, 3, smoothed)
+            _smooth(
+                smoothed, smoothed, ones, 0, SERIES, n, settings[COL_LOWPASS_SPAN],
+                settings[COL_LOWPASS_DEGREE], settings[COL_LOWPASS_JUMP], lowpass, 0, SERIES,
+                res,
+            )  # fmt: skip
+            shift = period * SERIES
+            for i in range(n * SERIES):
+                seasonal[i] = cycle[shift + i] - lowpass[i]
+                detrended[i] = y[i] - seasonal[i]
+                clean[i] = detrended[i] if pw[i] != 0.0 else 0.0
+            _smooth(
+                clean, detrended, pw, 0, SERIES, n, settings[COL_TREND_SPAN],
+                settings[COL_TREND_DEGREE], settings[COL_TREND_JUMP], trend, 0, SERIES, res,
+            )  # fmt: skip
+        passes += 1
+        if passes > outer:
+            break
+        for i in range(n * SERIES):
+            detrended[i] = trend[i] + seasonal[i]
+        _robustness_weights(y, detrended, n, pw, absres, medians, scales)
+        for i in range(n * SERIES):
+            weight[i] = pw[i]
