@@ -6,13 +6,16 @@
     python benchmarks/suite.py --start    # also the cold start, warm and cold numba cache
     python benchmarks/suite.py --rounds 5 # SQL and floor over five alternating rounds
     python benchmarks/suite.py --only hourly --only "100k robust"  # the cases so named
+    python benchmarks/suite.py --only "monthly 100k" --exact       # that case alone
 
 Every measurement runs in a fresh process of its own, so its peak memory (max RSS) is its
 own. Baselines come from the same run: statsmodels' STL or MSTL per series with matched
-parameters (timed on a subset, scaled to all series), and the engine floor, the same SQL
-with a UDF that hands the values straight back. Before timing, each case checks that our
-components equal statsmodels' to 1e-8 on the subset. The data are invented by
-``make_batch``.
+parameters (timed on a subset, scaled to all series); the engine floor, the same SQL with a
+UDF that hands the values straight back in the same result shape; and the minimal floor,
+the least any split must cost (each series' values listed in time order, a UDF that hands
+back three lists of their sizes, the rows unnested with key, time, value, trend, seasonal
+and remainder). Before timing, each case checks that our components equal statsmodels' to
+1e-8 on the subset. The data are invented by ``make_batch``.
 """
 
 from __future__ import annotations
@@ -219,6 +222,34 @@ def identity_udf(*columns: Any) -> Any:
     return pa.StructArray.from_arrays(list(fields.values()), names=list(fields))
 
 
+MINIMAL_UDF = "__tide_minimal_floor"
+
+
+def minimal_udf(values: Any) -> Any:
+    """The minimal floor: one list of values per series in, three lists of the same sizes
+    out (trend, seasonal, remainder: the values handed back), the least any split's result
+    can be."""
+    import pyarrow as pa
+
+    values = values.combine_chunks() if isinstance(values, pa.ChunkedArray) else values
+    return pa.StructArray.from_arrays(
+        [values, values, values], names=["trend", "seasonal", "remainder"]
+    )
+
+
+def minimal_sql() -> str:
+    """The least any split costs in SQL: each series' values listed in time order, the
+    minimal UDF, and the rows back with the columns users need (key, time, value and the
+    three components)."""
+    return (
+        "CREATE OR REPLACE TABLE out AS SELECT id, unnest(ts) AS t, unnest(vs) AS v, "
+        "unnest(p.trend) AS trend, unnest(p.seasonal) AS seasonal, "
+        "unnest(p.remainder) AS remainder "
+        f"FROM (SELECT id, ts, vs, {MINIMAL_UDF}(vs) AS p FROM (SELECT id, "
+        "list(t ORDER BY t) AS ts, list(v::DOUBLE ORDER BY t) AS vs FROM series GROUP BY id))"
+    )
+
+
 def sql_text(case: Case) -> str:
     args = ", ".join(
         f"{k} := {str(v).lower() if isinstance(v, bool) else v}" for k, v in case.params.items()
@@ -228,7 +259,7 @@ def sql_text(case: Case) -> str:
 
 
 def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
-    """One measurement in this process: mode kernel, sql, floor or statsmodels."""
+    """One measurement in this process: mode kernel, sql, floor, minimal or statsmodels."""
     out: dict[str, Any] = {}
     if case.on_disk:
         return measure_on_disk(case, runs)
@@ -290,11 +321,20 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
                 type="arrow",
                 null_handling="special",
             )
+        if mode == "minimal":
+            con.create_function(
+                MINIMAL_UDF,
+                minimal_udf,
+                ["DOUBLE[]"],
+                "STRUCT(trend DOUBLE[], seasonal DOUBLE[], remainder DOUBLE[])",
+                type="arrow",
+                null_handling="special",
+            )
         con.register("series_src", table)
         con.execute("CREATE TABLE series AS SELECT * FROM series_src")
         con.unregister("series_src")
         del table
-        sql = sql_text(case)
+        sql = minimal_sql() if mode == "minimal" else sql_text(case)
         out["seconds"] = best_of(runs, lambda: con.execute(sql))
         rows = con.sql("SELECT count(*) FROM out").fetchall()[0][0]
         assert rows == case.series * case.points, rows
@@ -374,6 +414,11 @@ def main() -> None:
         default=[],
         help="run only the cases whose name contains this text (may be given again)",
     )
+    parser.add_argument(
+        "--exact",
+        action="store_true",
+        help='--only names whole cases ("monthly 100k" alone, not its robust and missing kin)',
+    )
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
@@ -385,29 +430,40 @@ def main() -> None:
 
     print(
         f"tidesplit benchmark suite, {os.cpu_count()} cores; seconds are the best of "
-        f"{args.runs} runs; SQL and floor the median of {args.rounds} alternating rounds, "
-        "SQL / floor the median of the rounds' ratios with their range; statsmodels is "
-        "timed per series on a subset and scaled.\n"
+        f"{args.runs} runs; SQL, floor and minimal floor the median of {args.rounds} "
+        "alternating rounds, SQL / floor and SQL / minimal floor the medians of the rounds' "
+        "ratios with their ranges; statsmodels is timed per series on a subset and scaled.\n"
     )
     header = (
         f"{'case':<34}{'points':>12}{'kernel s':>10}{'SQL s':>9}{'floor s':>9}"
         f"{'statsm. s':>11}{'kernel pts/s':>14}{'x statsm.':>10}{'SQL/floor':>10}"
         f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}{'SQL/floor range':>17}"
+        f"{'min floor s':>13}{'SQL/min floor':>15}{'range':>11}"
     )
     print(header)
     for case in cases(args.quick):
-        if args.only and not any(part in case.name for part in args.only):
+        if args.only and not any(
+            part == case.name if args.exact else part in case.name for part in args.only
+        ):
             continue
         kernel = in_child(case, "kernel", args.runs)
-        # alternating rounds, so that a slow spell of the machine weighs on both alike
+        # alternating rounds, so that a slow spell of the machine weighs on all alike
         rounds = [
-            (in_child(case, "sql", args.runs), in_child(case, "floor", args.runs))
+            (
+                in_child(case, "sql", args.runs),
+                in_child(case, "floor", args.runs),
+                in_child(case, "minimal", args.runs),
+            )
             for _ in range(max(1, args.rounds))
         ]
-        ratios = sorted(s["seconds"] / f["seconds"] for s, f in rounds)
-        sql = sorted((s for s, _ in rounds), key=lambda r: r["seconds"])[len(rounds) // 2]
-        floor = sorted((f for _, f in rounds), key=lambda r: r["seconds"])[len(rounds) // 2]
-        ratio_median = ratios[len(ratios) // 2]
+        ratios = sorted(s["seconds"] / f["seconds"] for s, f, _ in rounds)
+        least_ratios = sorted(s["seconds"] / m["seconds"] for s, _, m in rounds)
+        middle = len(rounds) // 2
+        sql, floor, least = (
+            sorted((r[k] for r in rounds), key=lambda r: r["seconds"])[middle] for k in range(3)
+        )
+        ratio_median = ratios[middle]
+        least_median = least_ratios[middle]
         reference = in_child(case, "statsmodels", 1) if case.subset else None
         points = case.series * case.points
         ratio = f"{reference['seconds'] / kernel['seconds']:.0f}x" if reference else "-"
@@ -421,6 +477,8 @@ def main() -> None:
             f"{ratio:>10}{ratio_median:>10.2f}"
             f"{kernel['peak_mib']:>11.0f}{sql['peak_mib']:>9.0f}{diff:>10}"
             f"{f'{ratios[0]:.2f}-{ratios[-1]:.2f}':>17}"
+            f"{least['seconds']:>13.2f}{least_median:>15.2f}"
+            f"{f'{least_ratios[0]:.2f}-{least_ratios[-1]:.2f}':>11}"
         )
     if args.scale:
         big = Case("monthly 1M (scale run)", 1_000_000, 120, (12,), subset=0, on_disk=True)

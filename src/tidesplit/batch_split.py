@@ -118,7 +118,10 @@ def _check_series(
     One compiled pass finds the failing series; only those are visited here, to word it.
     """
     count = offsets.size - 1
-    todo = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
+    if status.count(OK) == count:  # the common case, without a pass in Python
+        todo = periods > 0
+    else:
+        todo = np.array([st == OK for st in status], dtype=bool) & (periods > 0)
     code = np.empty(count, dtype=np.int64)
     where = np.empty(count, dtype=np.int64)
     checks.scan_batch(
@@ -309,8 +312,12 @@ def _run_kernel(
     for members, n, row in _equal_shape_groups(candidates, lengths, settings):
         if not linear.eligible(n, row):
             continue
-        linear.apply_flat(y, offsets[members], n, row, trend, seasonal, parallel)
-        weight[np.repeat(offsets[members], n) + np.tile(np.arange(n), members.size)] = 1.0
+        starts = offsets[members]
+        linear.apply_flat(y, starts, n, row, trend, seasonal, parallel)
+        if (np.diff(starts) == n).all():  # one run of adjacent series, the common case
+            weight[starts[0] : starts[0] + n * members.size] = 1.0
+        else:
+            weight[np.repeat(starts, n) + np.tile(np.arange(n), members.size)] = 1.0
         direct[members, COL_ACTIVE] = 0
     if direct[:, COL_ACTIVE].any():
         run = stl_batch_parallel if parallel else stl_batch_serial

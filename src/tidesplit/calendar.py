@@ -233,7 +233,10 @@ def regularise(
                 f"too sparse: {lengths[s]} times spread over {span[s]} steps of "
                 f"{describe_step(int(unit[s]), int(step[s]))}"
             )
-    bad = np.array([st != OK for st in status], dtype=bool)
+    if status.count(OK) == count:  # the common case, without a pass in Python
+        bad = np.zeros(count, dtype=bool)
+    else:
+        bad = np.array([st != OK for st in status], dtype=bool)
     if bad.any():
         span[bad] = lengths[bad]  # a bad series keeps its rows as they are
         rows = np.repeat(bad, lengths)

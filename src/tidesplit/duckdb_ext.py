@@ -19,16 +19,9 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import (
-    answers,
-    arguments,
-    arrow_lists,
-    calendar,
-    forecast_ahead,
-    series_profile,
-    sql_build,
-    unusual,
-)
+# The answers other than the split (forecast_ahead, series_profile, unusual) are imported by
+# their handlers: a plain split, the common first query, needs none of them.
+from . import answers, arguments, arrow_lists, calendar, sql_build
 from . import effects as effects_front
 from .answers import COMPONENTS
 from .arguments import SQL_TYPES
@@ -117,14 +110,15 @@ def _per_row_parts(
     used = np.arange(width)[None, :] < row_kept[:, None]  # rows x periods
     items = pa.StructArray.from_arrays(
         [
-            pa.array(np.repeat(table, lengths, axis=0)[used], pa.int64()),
-            pa.array(parts.T[used], pa.float64()),
+            arrow_lists.fixed_array(np.repeat(table, lengths, axis=0)[used], pa.int64()),
+            # a NaN part stays NaN here (not NULL)
+            arrow_lists.fixed_array(parts.T[used], pa.float64()),
         ],
         names=["period", "seasonal"],
     )
-    row_offsets = np.concatenate(([0], np.cumsum(row_kept))).astype(np.int32)
-    rows = pa.ListArray.from_arrays(pa.array(row_offsets), items)
-    return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), rows)
+    row_offsets = np.concatenate(([0], np.cumsum(row_kept)))
+    rows = arrow_lists.list_array(row_offsets, items)
+    return arrow_lists.list_array(offsets, rows)
 
 
 @dataclass
@@ -324,8 +318,15 @@ def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
 
 
 def _lists(values: np.ndarray, offsets: np.ndarray, arrow_type: pa.DataType) -> pa.Array:
-    child = pa.array(values, type=arrow_type, from_pandas=True)
-    return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), child)
+    if arrow_type == pa.float64():
+        child = arrow_lists.float_array(values)
+    elif arrow_type == pa.int64():
+        child = arrow_lists.fixed_array(values, arrow_type)
+    elif arrow_type == pa.bool_():
+        child = arrow_lists.bool_array(values)
+    else:
+        child = pa.array(values, type=arrow_type, from_pandas=True)
+    return arrow_lists.list_array(offsets, child)
 
 
 def _split_handler(call: _Call) -> pa.Array:
@@ -379,23 +380,22 @@ def _series_fields(result: RowsResult) -> dict[str, pa.Array]:
         kept = np.array([len(p) for p in result.batch.series_periods], dtype=np.int64)
         flat = np.array([p for ps in result.batch.series_periods for p in ps], dtype=np.int64)
     period_offsets = np.concatenate(([0], np.cumsum(kept))).astype(np.int64)
+    # through buffers (arrow_lists), as every column of the split: pa.array imports pandas
     return {
-        "period": pa.array(used, type=pa.int64(), mask=used == 0),
+        "period": arrow_lists.fixed_array(used, pa.int64(), used == 0),
         # NULL for a series left unsplit, as period is
-        "periods": pa.ListArray.from_arrays(
-            pa.array(period_offsets.astype(np.int32)),
-            pa.array(flat, pa.int64()),
-            mask=pa.array(used == 0),
+        "periods": arrow_lists.list_array(
+            period_offsets, arrow_lists.fixed_array(flat, pa.int64()), used == 0
         ),
-        "boxcox_lambda": pa.array(result.batch.lambdas, type=pa.float64(), from_pandas=True),
-        "status": pa.array(result.status, type=pa.string()),
+        "boxcox_lambda": arrow_lists.float_array(np.asarray(result.batch.lambdas, np.float64)),
+        "status": arrow_lists.string_array(list(result.status)),
     }
 
 
 def _span_fields(result: RowsResult) -> dict[str, pa.Array]:
     """The season and trend span each series was split with (NULL where it was not)."""
     return {
-        name: pa.array(used, type=pa.int64(), mask=used < 0)
+        name: arrow_lists.fixed_array(used, pa.int64(), used < 0)
         for name, used in (
             ("season_span", result.batch.season_spans),
             ("trend_span", result.batch.trend_spans),
@@ -430,6 +430,8 @@ def _effect_lists(
 
 
 def _profile_handler(call: _Call) -> pa.Array:
+    from . import series_profile
+
     result = call.split(fill_gaps=True)
     found = series_profile.profile(result, call.kind)
     fields: dict[str, pa.Array] = {
@@ -475,6 +477,8 @@ def _audit_handler(call: _Call) -> pa.Array:
 
 
 def _outlier_handler(call: _Call) -> pa.Array:
+    from . import unusual
+
     result = call.split(fill_gaps=True)
     found = unusual.unusual_points(
         result,
@@ -500,6 +504,8 @@ def _outlier_handler(call: _Call) -> pa.Array:
 
 
 def _forecast_handler(call: _Call) -> pa.Array:
+    from . import forecast_ahead
+
     horizon, level, method = forecast_ahead.forecast_arguments(
         call.settings["steps_ahead"], call.settings["coverage"], call.settings["trend_model"]
     )
@@ -604,7 +610,12 @@ def register(con: duckdb.DuckDBPyConnection, *, replace: bool = False) -> duckdb
     >>> con.sql(sql).fetchall()
     [(8,)]
     """
-    registered = _registered(con)
+    return _register(con, replace=replace, registered=_registered(con))
+
+
+def _register(
+    con: duckdb.DuckDBPyConnection, *, replace: bool, registered: set[str]
+) -> duckdb.DuckDBPyConnection:
     for name, (handler, result_type) in UDFS.items():
         present = name in registered
         if present and replace:
@@ -630,4 +641,10 @@ def connect(database: str | None = None, **kwargs: Any) -> duckdb.DuckDBPyConnec
     >>> con.sql("SELECT 1").fetchall()
     [(1,)]
     """
-    return register(duckdb.connect(database if database is not None else ":memory:", **kwargs))
+    con = duckdb.connect(database if database is not None else ":memory:", **kwargs)
+    if database is None or database == ":memory:":
+        # a new in-memory database has none of our UDFs: no need to ask the catalog (a scan
+        # of every function, 15 ms). A file may be open on another connection of this
+        # process, which shares its UDFs.
+        return _register(con, replace=False, registered=set())
+    return register(con)

@@ -29,6 +29,9 @@ def split_mask(statuses: Sequence[str]) -> np.ndarray:
     >>> split_mask(["ok", "every value is missing"]).tolist()
     [True, False]
     """
+    if isinstance(statuses, list) and statuses.count(OK) == len(statuses):
+        # every one plainly ok (the common case): no pass in Python
+        return np.ones(len(statuses), dtype=bool)
     return np.fromiter((is_split(s) for s in statuses), dtype=bool, count=len(statuses))
 
 
