@@ -70,3 +70,20 @@ def test_interrupt_stops_a_query_between_udf_calls(monkeypatch):
         ).fetchall()
     assert 1 <= len(calls) < 6
     con.close()
+
+
+def test_launches_cover_every_series_and_hold_enough_for_the_lanes():
+    """Long series (an hourly year, robust, two periods: ten of them make a launch's work)
+    still go at least LAUNCH_SERIES to a launch, so that the kernel runs them side by side;
+    every series falls in exactly one launch, in order."""
+    from tidesplit.tuning import LAUNCH_SERIES
+
+    for count in (1, 5, LAUNCH_SERIES, 40, 1001):
+        runs = batch_split._launches(np.full(count, 8760), np.full(count, 44))
+        assert runs[0][0] == 0 and runs[-1][1] == count
+        assert all(a[1] == b[0] for a, b in zip(runs, runs[1:], strict=False))
+        if count >= LAUNCH_SERIES:
+            assert all(stop - first >= LAUNCH_SERIES for first, stop in runs)
+    # short series keep launches of about LAUNCH_WORK point-passes
+    runs = batch_split._launches(np.full(100_000, 120), np.full(100_000, 11))
+    assert len(runs) >= 100_000 * 120 * 11 // LAUNCH_WORK - 1

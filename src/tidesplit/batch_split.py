@@ -28,7 +28,7 @@ from .kernel.mstl import mstl_batch_parallel, mstl_batch_serial
 from .kernel.stl import stl_batch_parallel, stl_batch_serial
 from .params import ON_ERROR, ResolvedParams, SplitParams
 from .status import OK, split_mask, with_note
-from .tuning import LARGEST_MAGNITUDE, LAUNCH_WORK
+from .tuning import LARGEST_MAGNITUDE, LAUNCH_SERIES, LAUNCH_WORK
 
 
 @dataclass
@@ -328,11 +328,14 @@ def _run_kernel(
 
 
 def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
-    """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each.
+    """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each,
+    and of LAUNCH_SERIES series at least (but the last).
 
     A compiled kernel does not return to Python until it is done, so Python can raise a
     KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
-    stoppable. A series' numbers do not depend on the launch it falls in.
+    stoppable. The least count keeps long series (an hourly year, robust: ten of them make
+    the work) running side by side in the kernel's lanes, four of one shape at a time, on
+    every thread. A series' numbers do not depend on the launch it falls in.
 
     >>> _launches(np.array([3, 4, 5]), np.array([1, 1, 1]))
     [(0, 3)]
@@ -342,8 +345,13 @@ def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
         return []
     before = np.cumsum(work) - work
     ids = before // LAUNCH_WORK
-    cuts = np.flatnonzero(np.diff(ids)) + 1
-    edges = [0, *cuts.tolist(), work.size]
+    edges = [0]
+    for cut in (np.flatnonzero(np.diff(ids)) + 1).tolist():
+        if cut - edges[-1] >= LAUNCH_SERIES:
+            edges.append(cut)
+    if work.size - edges[-1] < LAUNCH_SERIES and len(edges) > 1:
+        edges.pop()  # a short tail joins the launch before it
+    edges.append(work.size)
     return [(edges[i], edges[i + 1]) for i in range(len(edges) - 1)]
 
 

@@ -35,6 +35,11 @@ PERIOD_PEAK_FLOOR = 0.3
 # launches, so this bounds how long Ctrl-C waits in the Python front.
 LAUNCH_WORK = 4_000_000
 
+# Series per launch at least (but the last): enough for every thread to run the kernel's
+# side-by-side groups (kernel/lanes.py: four series of one shape at a time), where a few
+# long series would make LAUNCH_WORK alone.
+LAUNCH_SERIES = 16
+
 # DuckDB runs UDF calls (up to 2,048 series each) on its own threads, so a call normally
 # uses one thread. A call this large (a few very long series) is likely the only one in
 # flight, so it spreads its series over numba's threads instead.

@@ -14,7 +14,7 @@ from numba import get_num_threads, njit, prange
 from .lanes import LONGEST, SERIES, stl_lanes
 from .lanes import buffer_size as lanes_buffer_size
 from .layout import COL_ACTIVE, COL_PERIOD
-from .stl import _stl_one, buffer_size, same_shape_groups
+from .stl import _stl_one, buffer_size, chunk_edge, same_shape_groups
 from .threads import launch
 
 
@@ -178,8 +178,8 @@ def _mstl_batch_parallel(
             settings,
             n_periods,
             rounds,
-            c * count // chunks,
-            (c + 1) * count // chunks,
+            chunk_edge(c, chunks, count),
+            chunk_edge(c + 1, chunks, count),
             trend,
             seasonal,
             weight,
@@ -198,7 +198,7 @@ def mstl_batch_parallel(
 ) -> None:
     """MSTL of every active series, spread over numba's threads."""
     count = offsets.shape[0] - 1
-    chunks = max(1, min(count, 4 * get_num_threads()))
+    chunks = max(1, min(count // SERIES, 4 * get_num_threads()))
     launch(
         _mstl_batch_parallel,
         values,

@@ -519,6 +519,15 @@ def stl_batch_serial(
     _stl_range(values, offsets, settings, 0, offsets.shape[0] - 1, trend, seasonal, weight)
 
 
+@njit(nogil=True, cache=True)
+def chunk_edge(c: int, chunks: int, count: int) -> int:
+    """Where chunk ``c`` of ``chunks`` starts among ``count`` series: at a multiple of
+    ``SERIES``, so that series of one shape in a row fill the lanes in every chunk."""
+    if c >= chunks:
+        return count
+    return (c * count // chunks) // SERIES * SERIES
+
+
 @njit(nogil=True, parallel=True, cache=True)
 def _stl_batch_parallel(
     values: np.ndarray,
@@ -535,8 +544,8 @@ def _stl_batch_parallel(
             values,
             offsets,
             settings,
-            c * count // chunks,
-            (c + 1) * count // chunks,
+            chunk_edge(c, chunks, count),
+            chunk_edge(c + 1, chunks, count),
             trend,
             seasonal,
             weight,
@@ -553,7 +562,7 @@ def stl_batch_parallel(
 ) -> None:
     """STL over every active series of the batch, spread over numba's threads."""
     count = offsets.shape[0] - 1
-    chunks = max(1, min(count, 4 * get_num_threads()))
+    chunks = max(1, min(count // SERIES, 4 * get_num_threads()))
     launch(_stl_batch_parallel, values, offsets, settings, trend, seasonal, weight, chunks)
 
 
