@@ -8,6 +8,7 @@ ran after, which must be fewer than all of them.
 from __future__ import annotations
 
 import _thread
+import itertools
 
 import duckdb
 import numpy as np
@@ -81,7 +82,7 @@ def test_launches_cover_every_series_and_hold_enough_for_the_lanes():
     for count in (1, 5, LAUNCH_SERIES, 40, 1001):
         runs = batch_split._launches(np.full(count, 8760), np.full(count, 44))
         assert runs[0][0] == 0 and runs[-1][1] == count
-        assert all(a[1] == b[0] for a, b in zip(runs, runs[1:], strict=False))
+        assert all(a[1] == b[0] for a, b in itertools.pairwise(runs))
         if count >= LAUNCH_SERIES:
             assert all(stop - first >= LAUNCH_SERIES for first, stop in runs)
     # short series keep launches of about LAUNCH_WORK point-passes

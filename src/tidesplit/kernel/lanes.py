@@ -12,7 +12,9 @@ gets the bits it gets alone; ``benchmarks/kernel_loops.py --check`` and
 
 Within one series the loess loops already run four fits at a time (``loess``); this layout
 goes further for fleets of equal series, where the neighbourhoods are short (13-21 points on
-monthly data) and the fits' ends and divisions were left scalar.
+monthly data) and the fits' ends and divisions were left scalar. The fits read the values
+with 0 wherever the point weight is 0 (``clean`` below), so that a point of weight 0 adds
+zeros to every sum, as skipping it does, without a test per point.
 """
 
 from __future__ import annotations
@@ -47,7 +49,8 @@ from .median import _median_guided
 # the scratch.
 SERIES = 4
 
-# Longer series go one by one: side by side, their scratch outgrows the processor's caches.
+# Longer series go one by one: side by side, their scratch (some 30 values a point) would
+# outgrow the processor's caches. Measured a gain up to 8,760 points (an hourly year).
 LONGEST = 100_000
 
 
