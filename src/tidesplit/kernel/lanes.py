@@ -41,7 +41,7 @@ from .layout import (
     COL_TREND_JUMP,
     COL_TREND_SPAN,
 )
-from .loess import FAR, NEAR, _unit_moments, _window
+from .loess import FAR, NEAR, _unit_moments, _window, fill_unfitted_strided, subseries_level
 from .median import _median_guided
 
 # Series side by side: four doubles fill a 256-bit register. Eight (a 512-bit register
@@ -76,6 +76,16 @@ class _Vectors:
         # the lanes of one point are adjacent: one unaligned vector load
         address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
         return self.builder.load(address, align=8)
+
+    def listed(self, table: ir.Value, width: ir.Value, k: ir.Value) -> tuple:
+        """Point ``k`` of a list made by ``loess._unit_moments`` (three rows of ``width``):
+        its offset into the window (an integer), its tricube weight (lanes), its distance
+        (one number)."""
+        b = self.builder
+        offset = b.fptosi(b.load(b.gep(table, [k])), self.i64)
+        weight = self.splat(b.load(b.gep(table, [b.add(width, k)])))
+        distance = b.load(b.gep(table, [b.add(b.add(width, width), k)]))
+        return offset, weight, distance
 
     def store_at(self, value: ir.Value, ptr: ir.Value, index: ir.Value) -> None:
         address = self.builder.bitcast(self.builder.gep(ptr, [index]), self.vec.as_pointer())
@@ -186,9 +196,7 @@ def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
         sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
             k = loop.index
-            t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
-            tricube = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
-            u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
+            t, tricube, u = v.listed(table_ptr, width, k)
             j = builder.add(start_v, builder.mul(t, stride_v))
             for f in range(fits):
                 at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
@@ -245,9 +253,7 @@ def _unit_codegen(fits: int):  # type: ignore[no-untyped-def]
         crosses = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
             k = loop.index
-            t = builder.fptosi(builder.load(builder.gep(table_ptr, [k])), v.i64)
-            w = v.splat(builder.load(builder.gep(table_ptr, [builder.add(width, k)])))
-            u = builder.load(builder.gep(table_ptr, [builder.add(builder.add(width, width), k)]))
+            t, w, u = v.listed(table_ptr, width, k)
             j = builder.add(start_v, builder.mul(t, stride_v))
             for f in range(fits):
                 at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
@@ -318,25 +324,6 @@ def _fit(
         y, pw, base + nleft * stride, stride, nright - nleft + 1, xs - nleft, h_far, h_near,
         inv_h, linear, NEAR * full_range, res,
     )  # fmt: skip
-
-
-@njit(nogil=True, cache=True)
-def _fill_unfitted(ys: np.ndarray, base: int, stride: int, n: int) -> None:
-    """``loess.fill_unfitted`` on the points ``ys[base + i * stride]``, ``i < n``."""
-    last = -1
-    for i in range(n):
-        if not math.isnan(ys[base + i * stride]):
-            if last == -1 and i > 0:
-                for j in range(i):
-                    ys[base + j * stride] = ys[base + i * stride]
-            elif last >= 0 and i - last > 1:
-                step = (ys[base + i * stride] - ys[base + last * stride]) / (i - last)
-                for j in range(last + 1, i):
-                    ys[base + j * stride] = ys[base + last * stride] + step * (j - last)
-            last = i
-    if last >= 0:
-        for j in range(last + 1, n):
-            ys[base + j * stride] = ys[base + last * stride]
 
 
 @njit(nogil=True, cache=True)
@@ -485,7 +472,7 @@ def _smooth(
     for lane in range(SERIES):
         for i in range(n):
             if math.isnan(ys[out_base + i * out_stride + lane]):
-                _fill_unfitted(ys, out_base + lane, out_stride, n)
+                fill_unfitted_strided(ys, out_base + lane, out_stride, n)
                 break
 
 
@@ -512,23 +499,8 @@ def _subseries(
         first_fit = base + stride  # padded position of the subseries' point 0
         if span == 0:
             for lane in range(SERIES):
-                # the (weighted) mean of the subseries everywhere, as _subseries_smooth
-                total = 0.0
-                weight = 0.0
-                for m in range(k):
-                    w = pw[base + m * stride + lane]
-                    if w > 0.0:
-                        total += w * detrended[base + m * stride + lane]
-                        weight += w
-                if weight <= 0.0:
-                    count = 0
-                    for m in range(k):
-                        value = detrended[base + m * stride + lane]
-                        if not math.isnan(value):
-                            total += value
-                            count += 1
-                    weight = max(count, 1)
-                level = total / weight
+                # an infinite span: the subseries' mean everywhere, as _subseries_smooth
+                level = subseries_level(detrended, pw, base + lane, stride, k)
                 for m in range(k + 2):
                     cycle[base + m * stride + lane] = level
             continue

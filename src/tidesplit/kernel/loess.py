@@ -364,20 +364,49 @@ def fill_unfitted(ys: np.ndarray, n: int) -> None:
     A loess fit at a missing point whose whole neighbourhood is missing has nothing to fit;
     the paper leaves such points to interpolation of the fitted curve.
     """
+    fill_unfitted_strided(ys, 0, 1, n)
+
+
+@njit(nogil=True, cache=True)
+def fill_unfitted_strided(ys: np.ndarray, base: int, stride: int, n: int) -> None:
+    """``fill_unfitted`` on the points ``ys[base + i * stride]``, ``i < n`` (one series of
+    several laid side by side, or one cycle-subseries)."""
     last = -1
     for i in range(n):
-        if not math.isnan(ys[i]):
+        if not math.isnan(ys[base + i * stride]):
             if last == -1 and i > 0:
                 for j in range(i):
-                    ys[j] = ys[i]
+                    ys[base + j * stride] = ys[base + i * stride]
             elif last >= 0 and i - last > 1:
-                step = (ys[i] - ys[last]) / (i - last)
+                step = (ys[base + i * stride] - ys[base + last * stride]) / (i - last)
                 for j in range(last + 1, i):
-                    ys[j] = ys[last] + step * (j - last)
+                    ys[base + j * stride] = ys[base + last * stride] + step * (j - last)
             last = i
     if last >= 0:
         for j in range(last + 1, n):
-            ys[j] = ys[last]
+            ys[base + j * stride] = ys[base + last * stride]
+
+
+@njit(nogil=True, cache=True)
+def subseries_level(y: np.ndarray, w: np.ndarray, base: int, stride: int, k: int) -> float:
+    """The (weighted) mean of the ``k`` points ``y[base + m * stride]``: the loess fit of a
+    cycle-subseries as its span grows without bound, so the seasonal pattern repeats
+    exactly. Points of weight 0 are left out; when every point has weight 0, the plain mean
+    of the values present."""
+    total = 0.0
+    weight = 0.0
+    for m in range(k):
+        if w[base + m * stride] > 0.0:
+            total += w[base + m * stride] * y[base + m * stride]
+            weight += w[base + m * stride]
+    if weight <= 0.0:
+        count = 0
+        for m in range(k):
+            if not math.isnan(y[base + m * stride]):
+                total += y[base + m * stride]
+                count += 1
+        weight = max(count, 1)
+    return total / weight
 
 
 @njit(nogil=True, cache=True)

@@ -43,6 +43,7 @@ from .loess import (
     fill_unfitted,
     fit_at,
     smooth,
+    subseries_level,
 )
 from .median import _median_guided
 from .threads import launch
@@ -221,23 +222,8 @@ def _subseries_smooth(
             sub_y[m] = detrended[m * period + phase]
             sub_w[m] = pw[m * period + phase]
         if span == 0:
-            # Infinite span: the (weighted) mean of the subseries at every position, the
-            # limit of the loess fit as the span grows, so the pattern repeats exactly.
-            total = 0.0
-            weight = 0.0
-            for m in range(k):
-                if sub_w[m] > 0.0:
-                    total += sub_w[m] * sub_y[m]
-                    weight += sub_w[m]
-            if weight <= 0.0:
-                # every point down-weighted to zero: fall back to the plain mean
-                count = 0
-                for m in range(k):
-                    if not math.isnan(sub_y[m]):
-                        total += sub_y[m]
-                        count += 1
-                weight = max(count, 1)
-            level = total / weight
+            # Infinite span: the (weighted) mean of the subseries at every position
+            level = subseries_level(sub_y, sub_w, 0, 1, k)
             for m in range(k + 2):
                 sub_fit[m] = level
         else:
