@@ -326,15 +326,32 @@ def _fit(
     )  # fmt: skip
 
 
-@njit(nogil=True, cache=True)
-def _interpolate(ys: np.ndarray, base: int, stride: int, i: int, k: int) -> None:
+@intrinsic
+def _interpolate(typingctx, ys, base, stride, i, k):
     """Points strictly between ``i`` and ``k`` on the line through the fits there, in every
-    lane, as ``loess.smooth`` does between its jumps."""
-    for lane in range(SERIES):
-        at_i = ys[base + i * stride + lane]
-        delta = (ys[base + k * stride + lane] - at_i) / (k - i)
-        for j in range(i + 1, k):
-            ys[base + j * stride + lane] = at_i + delta * (j - i)
+    lane, as ``loess.smooth`` does between its jumps: each lane's subtraction, division by
+    ``k - i`` and ``at_i + delta * (j - i)``, in one vector (numba left the lanes' loop
+    scalar, a division per lane)."""
+    signature = types.none(ys, base, stride, i, k)
+
+    def codegen(context, builder, sig, args):
+        _, base_v, stride_v, i_v, k_v = args
+        v = _Vectors(builder)
+        ys_ptr = _data(context, builder, sig, args, 0)
+        at_i = v.load(ys_ptr, builder.add(base_v, builder.mul(i_v, stride_v)))
+        at_k = v.load(ys_ptr, builder.add(base_v, builder.mul(k_v, stride_v)))
+        delta = builder.fdiv(
+            builder.fsub(at_k, at_i), v.splat(builder.sitofp(builder.sub(k_v, i_v), v.dbl))
+        )
+        inside = builder.sub(builder.sub(k_v, i_v), ir.Constant(v.i64, 1))
+        with cgutils.for_range(builder, inside) as loop:
+            moved = builder.add(loop.index, ir.Constant(v.i64, 1))  # j - i
+            j = builder.add(i_v, moved)
+            line = builder.fadd(at_i, builder.fmul(delta, v.splat(builder.sitofp(moved, v.dbl))))
+            v.store_at(line, ys_ptr, builder.add(base_v, builder.mul(j, stride_v)))
+        return context.get_dummy_value()
+
+    return signature, codegen
 
 
 @njit(nogil=True, cache=True)
@@ -382,10 +399,13 @@ def _smooth(
     out_base: int,
     out_stride: int,
     res: np.ndarray,
+    table: np.ndarray,
+    moments: tuple[float, float, float, int],
 ) -> None:
     """``loess.smooth`` of ``raw`` in every lane: point ``j`` of lane ``l`` read at
     ``base + j * stride + l`` and written at ``out_base + j * out_stride + l``. The fits
-    read ``y``: ``raw`` with 0 where the point weight is 0 (see ``_Vectors.add_terms``)."""
+    read ``y``: ``raw`` with 0 where the point weight is 0 (see ``_Vectors.add_terms``).
+    ``table`` and ``moments`` are ``_interior(span)``'s."""
     if n < 2:
         for lane in range(SERIES):
             ys[out_base + lane] = raw[base + lane]
@@ -405,8 +425,6 @@ def _smooth(
         # weights their weights' sums too.
         interior_last = n - 1 - span + half
         unit = _all_unit(pw, base, stride, n)
-        table = np.empty((3, span))
-        moments = _unit_moments(span, table)
         h = float(max(half - 1, span - half))
         linear = 1 if h > 0.0 and degree > 0 else 0
         near_range = NEAR * (n - 1.0)
@@ -488,10 +506,13 @@ def _subseries(
     jump: int,
     cycle: np.ndarray,
     res: np.ndarray,
+    table: np.ndarray,
+    moments: tuple[float, float, float, int],
 ) -> None:
     """``stl._subseries_smooth`` in every lane: the cycle-subseries smoothed one point
     beyond each end, into ``cycle`` (padded position ``m`` is time ``m - period``).
-    ``clean`` is ``detrended`` with 0 where the point weight is 0, for the fits."""
+    ``clean`` is ``detrended`` with 0 where the point weight is 0, for the fits;
+    ``table`` and ``moments`` are ``_interior(span)``'s."""
     stride = period * SERIES
     for phase in range(period):
         k = (n - phase - 1) // period + 1
@@ -506,7 +527,7 @@ def _subseries(
             continue
         _smooth(
             clean, detrended, pw, base, stride, k, span, degree, jump, cycle, first_fit, stride,
-            res,
+            res, table, moments,
         )  # fmt: skip
         _fit(clean, pw, base, stride, k, span, degree, -1.0, 0, min(span, k) - 1, res)
         _take(cycle, base, res, cycle, first_fit)
@@ -613,7 +634,21 @@ def _robustness_weights(
 @njit(nogil=True, cache=True)
 def buffer_size(n: int, period: int) -> int:
     """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
-    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES
+    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES + 9 * (n + 1)
+
+
+@njit(nogil=True, cache=True)
+def _interior(
+    span: int, n: int, scratch: np.ndarray
+) -> tuple[np.ndarray, tuple[float, float, float, int]]:
+    """The interior fits' list of a smoothing of ``span`` over at most ``n`` points
+    (``loess._unit_moments``), in ``scratch`` (``3 * n`` values at least): made once per
+    ``stl_lanes`` call, as it depends on the span alone. A span of ``n`` or more (or an
+    infinite one, 0) has no interior fits: an empty list."""
+    if span < 1 or span >= n:
+        return scratch[:3].reshape((3, 1)), (0.0, 0.0, 0.0, 0)
+    table = scratch[: 3 * span].reshape((3, span))
+    return table, _unit_moments(span, table)
 
 
 @njit(nogil=True, cache=True)
@@ -646,6 +681,17 @@ def stl_lanes(
     res = buf[rest + n : rest + n + 2 * UNIT_FITS * SERIES]
     medians = buf[rest + n + 2 * UNIT_FITS * SERIES : rest + n + (2 * UNIT_FITS + 1) * SERIES]
     scales = buf[rest + n + (2 * UNIT_FITS + 1) * SERIES : rest + n + (2 * UNIT_FITS + 2) * SERIES]
+    rest += n + (2 * UNIT_FITS + 2) * SERIES
+    longest_subseries = (n - 1) // period + 1
+    season_table, season_moments = _interior(
+        settings[COL_SEASON_SPAN], longest_subseries, buf[rest : rest + 3 * (n + 1)]
+    )
+    rest += 3 * (n + 1)
+    trend_table, trend_moments = _interior(settings[COL_TREND_SPAN], n, buf[rest : rest + 3 * n])
+    rest += 3 * (n + 1)
+    lowpass_table, lowpass_moments = _interior(
+        settings[COL_LOWPASS_SPAN], n, buf[rest : rest + 3 * n]
+    )
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
@@ -661,7 +707,8 @@ def stl_lanes(
                 clean[i] = detrended[i] if pw[i] != 0.0 else 0.0
             _subseries(
                 detrended, clean, pw, n, period, settings[COL_SEASON_SPAN],
-                settings[COL_SEASON_DEGREE], settings[COL_SEASON_JUMP], cycle, res,
+                settings[COL_SEASON_DEGREE], settings[COL_SEASON_JUMP], cycle, res, season_table,
+                season_moments,
             )  # fmt: skip
             _moving_average(cycle, n + 2 * period, period, smoothed)
             _moving_average(smoothed, n + period + 1, period, lowpass)
@@ -669,7 +716,7 @@ def stl_lanes(
             _smooth(
                 smoothed, smoothed, ones, 0, SERIES, n, settings[COL_LOWPASS_SPAN],
                 settings[COL_LOWPASS_DEGREE], settings[COL_LOWPASS_JUMP], lowpass, 0, SERIES,
-                res,
+                res, lowpass_table, lowpass_moments,
             )  # fmt: skip
             shift = period * SERIES
             for i in range(n * SERIES):
@@ -679,6 +726,7 @@ def stl_lanes(
             _smooth(
                 clean, detrended, pw, 0, SERIES, n, settings[COL_TREND_SPAN],
                 settings[COL_TREND_DEGREE], settings[COL_TREND_JUMP], trend, 0, SERIES, res,
+                trend_table, trend_moments,
             )  # fmt: skip
         passes += 1
         if passes > outer:
