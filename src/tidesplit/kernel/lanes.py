@@ -185,18 +185,17 @@ def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
     """The code of ``_fit_lanes_listed`` for ``fits`` fits, ``gap`` elements apart."""
 
     def codegen(context, builder, sig, args):
-        _, _, start_v, gap_v, stride_v, _, count_v, linear_v, near_range_v, _ = args
+        _, _, start_v, gap_v, stride_v, _, column_v, count_v, linear_v, near_range_v, _ = args
         v = _Vectors(builder)
         y_ptr, pw_ptr, table_ptr, out_ptr = (
-            _data(context, builder, sig, args, k) for k in (0, 1, 5, 9)
+            _data(context, builder, sig, args, k) for k in (0, 1, 5, 10)
         )
         width = builder.extract_value(
             context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
         )
         sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
-            k = loop.index
-            t, tricube, u = v.listed(table_ptr, width, k)
+            t, tricube, u = v.listed(table_ptr, width, builder.add(column_v, loop.index))
             j = builder.add(start_v, builder.mul(t, stride_v))
             for f in range(fits):
                 at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
@@ -212,24 +211,27 @@ def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
 
 
 @intrinsic
-def _fit_lanes_listed(typingctx, y, pw, start, gap, stride, table, count, linear, near_range,
-                      out):  # fmt: skip
-    """``_fit_lanes`` for an interior fit, whose points, tricube weights and distances are
-    listed once per smoothing (``loess._unit_moments``: ``table[0]`` the offsets into the
-    window, ``table[1]`` the weights, 1.0 where fit_at takes the point weight alone,
-    ``table[2]`` the distances; ``count`` of them). ``gap`` is unused here (see
-    ``_fit_lanes_listed_two``)."""
-    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+def _fit_lanes_listed(typingctx, y, pw, start, gap, stride, table, column, count, linear,
+                      near_range, out):  # fmt: skip
+    """``_fit_lanes`` for a fit whose points, tricube weights and distances are listed
+    (``table[0]`` the offsets into the window, ``table[1]`` the weights, 1.0 where fit_at
+    takes the point weight alone, ``table[2]`` the distances; ``count`` of them from
+    ``column`` on): an interior fit's list, made once per smoothing by
+    ``loess._unit_moments``, or a clamped fit's (``_clamped_lists``). ``gap`` is unused
+    here (see ``_fit_lanes_listed_two``)."""
+    signature = types.none(y, pw, start, gap, stride, table, column, count, linear,
+                           near_range, out)  # fmt: skip
     return signature, _listed_codegen(1)
 
 
 @intrinsic
-def _fit_lanes_listed_two(typingctx, y, pw, start, gap, stride, table, count, linear,
+def _fit_lanes_listed_two(typingctx, y, pw, start, gap, stride, table, column, count, linear,
                           near_range, out):  # fmt: skip
     """``_fit_lanes_listed`` for ``LISTED_FITS`` interior fits whose windows start ``gap``
     elements apart, each fit's sums in its own order; fit ``f``'s values and flags go to
     ``out[2 * SERIES * f:]``."""
-    signature = types.none(y, pw, start, gap, stride, table, count, linear, near_range, out)
+    signature = types.none(y, pw, start, gap, stride, table, column, count, linear,
+                           near_range, out)  # fmt: skip
     return signature, _listed_codegen(LISTED_FITS)
 
 
@@ -243,17 +245,16 @@ def _unit_codegen(fits: int):  # type: ignore[no-untyped-def]
     """The code of ``_fit_lanes_unit`` for ``fits`` fits, ``gap`` elements apart."""
 
     def codegen(context, builder, sig, args):
-        _, start_v, gap_v, stride_v, _, count_v, moments_v, linear_v, near_range_v, _ = args
+        _, start_v, gap_v, stride_v, _, column_v, count_v, moments_v, linear_v, near_v, _ = args
         v = _Vectors(builder)
-        y_ptr, table_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 4, 9))
+        y_ptr, table_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 4, 10))
         width = builder.extract_value(
             context.make_array(sig.args[4])(context, builder, args[4]).shape, 1
         )
         values = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
         crosses = [cgutils.alloca_once_value(builder, v.zero) for _ in range(fits)]
         with cgutils.for_range(builder, count_v) as loop:
-            k = loop.index
-            t, w, u = v.listed(table_ptr, width, k)
+            t, w, u = v.listed(table_ptr, width, builder.add(column_v, loop.index))
             j = builder.add(start_v, builder.mul(t, stride_v))
             for f in range(fits):
                 at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
@@ -267,36 +268,36 @@ def _unit_codegen(fits: int):  # type: ignore[no-untyped-def]
         for f in range(fits):
             moments = (*shared, builder.load(values[f]), builder.load(crosses[f]))
             here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
-            v.finish(moments, linear_v, near_range_v, here)
+            v.finish(moments, linear_v, near_v, here)
         return context.get_dummy_value()
 
     return codegen
 
 
 @intrinsic
-def _fit_lanes_unit(typingctx, y, start, gap, stride, table, count, moments, linear,
+def _fit_lanes_unit(typingctx, y, start, gap, stride, table, column, count, moments, linear,
                     near_range, out):  # fmt: skip
     """``_fit_lanes_listed`` when every point weight is 1: the sums of the weights and of
-    their moments are the same in every fit (``moments``: total, first, second, from
-    ``loess._unit_moments``), so only the sums over ``y`` are left to do. ``gap`` is
-    unused here (see ``_fit_lanes_unit_four``)."""
-    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
-                           out)  # fmt: skip
+    their moments are the same in every fit of one list (``moments``: total, first,
+    second, from ``loess._unit_moments`` or ``_clamped_lists``), so only the sums over
+    ``y`` are left to do. ``gap`` is unused here (see ``_fit_lanes_unit_four``)."""
+    signature = types.none(y, start, gap, stride, table, column, count, moments, linear,
+                           near_range, out)  # fmt: skip
     return signature, _unit_codegen(1)
 
 
 @intrinsic
-def _fit_lanes_unit_four(typingctx, y, start, gap, stride, table, count, moments, linear,
-                         near_range, out):  # fmt: skip
+def _fit_lanes_unit_four(typingctx, y, start, gap, stride, table, column, count, moments,
+                         linear, near_range, out):  # fmt: skip
     """``_fit_lanes_unit`` for ``UNIT_FITS`` interior fits whose windows start ``gap``
     elements apart, the sums of each in its own order; fit ``f``'s values and flags go to
     ``out[2 * SERIES * f:]``."""
-    signature = types.none(y, start, gap, stride, table, count, moments, linear, near_range,
-                           out)  # fmt: skip
+    signature = types.none(y, start, gap, stride, table, column, count, moments, linear,
+                           near_range, out)  # fmt: skip
     return signature, _unit_codegen(UNIT_FITS)
 
 
-@njit(nogil=True, cache=True)
+@njit(nogil=True, cache=True, _nrt=False)
 def _fit(
     y: np.ndarray,
     pw: np.ndarray,
@@ -354,7 +355,143 @@ def _interpolate(typingctx, ys, base, stride, i, k):
     return signature, codegen
 
 
+# Numbers per clamped fit in the index of _clamped_lists: the window's first point, the
+# fit's first column in the list, its count of points, its bandwidth, and the sums of its
+# tricube weights and their first and second moments (for unit point weights).
+ENTRY = 7
+
+
 @njit(nogil=True, cache=True)
+def _clamped_size(n: int, span: int) -> tuple[int, int]:
+    """(fits, listed points) of ``_clamped_lists(n, span)``: every position from -1 to
+    ``n`` when the span covers the series (or more), else the ``span + 1`` positions
+    whose window is clamped at an end (``loess._window``), a list of at most ``span``
+    points each. An infinite span (0) fits nothing."""
+    if span < 1:
+        return 0, 0
+    if span >= n:
+        return n + 2, (n + 2) * n
+    return span + 1, (span + 1) * span
+
+
+@njit(nogil=True, cache=True)
+def clamped_need(n: int, span: int) -> int:
+    """Scratch values that ``_clamped_lists(n, span)`` needs."""
+    fits, points = _clamped_size(n, span)
+    return ENTRY * fits + 3 * points
+
+
+@njit(nogil=True, cache=True)
+def _clamped_slot(xs: int, n: int, span: int) -> int:
+    """The entry of position ``xs`` in ``_clamped_lists(n, span)``'s index."""
+    half = (span + 1) // 2
+    if span >= n or xs + 1 < half:
+        return xs + 1
+    return half + xs - (n - span + half)  # past the last interior fit, n - 1 - span + half
+
+
+@njit(nogil=True, cache=True)
+def _clamped_lists(
+    n: int, span: int, scratch: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """The lists of the fits whose window is clamped at an end of a smoothing of ``span``
+    over ``n`` points (positions -1 and ``n`` too, the cycle-subseries' extensions):
+    ``(index, table)`` in ``scratch`` (``clamped_need(n, span)`` values). A fit's points,
+    tricube weights and distances depend on ``n``, ``span`` and its position alone, so
+    they are listed once per ``stl_lanes`` call instead of in every pass (``_fit``); the
+    list holds the points ``fit_at`` weighs, in its order, each weight computed as
+    ``_fit_lanes`` computes it, so the fits give the same bits. ``index[slot]`` (slot from
+    ``_clamped_slot``) holds the ``ENTRY`` numbers named there."""
+    fits, points = _clamped_size(n, span)
+    index = scratch[: ENTRY * fits].reshape((fits, ENTRY))
+    table = scratch[ENTRY * fits : ENTRY * fits + 3 * points].reshape((3, points))
+    half = (span + 1) // 2
+    column = 0
+    for slot in range(fits):
+        # the inverse of _clamped_slot
+        xs = slot - 1 if span >= n or slot < half else slot - half + (n - span + half)
+        if span >= n:
+            nleft, nright = 0, n - 1
+        else:
+            nleft, nright = _window(xs, n, span, half)
+        # _fit's bandwidth and cut-offs
+        h = max(xs - nleft, nright - xs) * 1.0
+        if span > n:
+            h += (span - n) // 2
+        h_far = FAR * h
+        h_near = NEAR * h
+        inv_h = 1.0 / h if h > 0.0 else 0.0
+        shift = float(xs - nleft)
+        count = 0
+        total = 0.0
+        first = 0.0
+        second = 0.0
+        for t in range(nright - nleft + 1):
+            u = float(t) - shift
+            r = abs(u)
+            if r > h_far:
+                continue
+            if r <= h_near:
+                w = 1.0
+            else:
+                q = r * inv_h
+                q = 1.0 - q * q * q
+                w = q * q * q
+            table[0, column + count] = t
+            table[1, column + count] = w
+            table[2, column + count] = u
+            total += w
+            first += w * u
+            second += w * u * u
+            count += 1
+        entry = index[slot]
+        entry[0] = nleft
+        entry[1] = column
+        entry[2] = count
+        entry[3] = h
+        entry[4] = total
+        entry[5] = first
+        entry[6] = second
+        column += count
+    return index, table
+
+
+@njit(nogil=True, cache=True, _nrt=False)
+def _fit_clamped(
+    y: np.ndarray,
+    pw: np.ndarray,
+    base: int,
+    stride: int,
+    n: int,
+    span: int,
+    degree: int,
+    unit: bool,
+    xs: int,
+    lists: tuple[np.ndarray, np.ndarray],
+    res: np.ndarray,
+) -> None:
+    """``_fit`` at position ``xs`` over its clamped window, from ``_clamped_lists(n,
+    span)``: the same points, weights and operations, so the same bits."""
+    index, table = lists
+    slot = _clamped_slot(xs, n, span)
+    nleft = int(index[slot, 0])
+    column = int(index[slot, 1])
+    count = int(index[slot, 2])
+    h = index[slot, 3]
+    linear = 1 if h > 0.0 and degree > 0 else 0
+    start = base + nleft * stride
+    if unit:
+        moments = (index[slot, 4], index[slot, 5], index[slot, 6])
+        _fit_lanes_unit(
+            y, start, 0, stride, table, column, count, moments, linear, NEAR * (n - 1.0), res
+        )
+    else:
+        _fit_lanes_listed(
+            y, pw, start, 0, stride, table, column, count, linear, NEAR * (n - 1.0), res
+        )
+
+
+@njit(nogil=True, cache=True, _nrt=False)
 def _take(
     ys: np.ndarray, at: int, res: np.ndarray, fallback: np.ndarray, fallback_at: int, fit: int = 0
 ) -> bool:
@@ -374,7 +511,7 @@ def _take(
     return missing
 
 
-@njit(nogil=True, cache=True)
+@njit(nogil=True, cache=True, _nrt=False)
 def _all_unit(pw: np.ndarray, base: int, stride: int, n: int) -> bool:
     """Whether every lane's point weights ``pw[base + j * stride + lane]`` are 1."""
     for j in range(n):
@@ -384,7 +521,7 @@ def _all_unit(pw: np.ndarray, base: int, stride: int, n: int) -> bool:
     return True
 
 
-@njit(nogil=True, cache=True)
+@njit(nogil=True, cache=True, _nrt=False)
 def _smooth(
     y: np.ndarray,
     raw: np.ndarray,
@@ -399,24 +536,26 @@ def _smooth(
     out_base: int,
     out_stride: int,
     res: np.ndarray,
+    unit: bool,
     table: np.ndarray,
     moments: tuple[float, float, float, int],
+    clamped: tuple[np.ndarray, np.ndarray],
 ) -> None:
     """``loess.smooth`` of ``raw`` in every lane: point ``j`` of lane ``l`` read at
     ``base + j * stride + l`` and written at ``out_base + j * out_stride + l``. The fits
     read ``y``: ``raw`` with 0 where the point weight is 0 (see ``_Vectors.add_terms``).
-    ``table`` and ``moments`` are ``_interior(span)``'s."""
+    ``unit``: whether every point weight is 1. ``table`` and ``moments`` are
+    ``_interior(span)``'s, ``clamped`` is ``_clamped_lists(n, span)``."""
     if n < 2:
         for lane in range(SERIES):
             ys[out_base + lane] = raw[base + lane]
         return
     step = min(jump, n - 1)
     unfitted = False  # a NaN taken (a fit with no point of weight at a missing value)
-    nleft = 0
-    nright = n - 1
+    interior_last = -1  # no interior fits when the span covers the series
     if span >= n:
         for i in range(0, n, step):
-            _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
+            _fit_clamped(y, pw, base, stride, n, span, degree, unit, i, clamped, res)
             unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
     else:
         half = (span + 1) // 2
@@ -424,7 +563,6 @@ def _smooth(
         # weights and distances: listed once (as loess.smooth does), and with unit point
         # weights their weights' sums too.
         interior_last = n - 1 - span + half
-        unit = _all_unit(pw, base, stride, n)
         h = float(max(half - 1, span - half))
         linear = 1 if h > 0.0 and degree > 0 else 0
         near_range = NEAR * (n - 1.0)
@@ -433,7 +571,7 @@ def _smooth(
             if unit and i + 1 >= half and i + (UNIT_FITS - 1) * step <= interior_last:
                 start = base + (i + 1 - half) * stride
                 _fit_lanes_unit_four(
-                    y, start, step * stride, stride, table, moments[3], moments[:3], linear,
+                    y, start, step * stride, stride, table, 0, moments[3], moments[:3], linear,
                     near_range, res,
                 )  # fmt: skip
                 for f in range(UNIT_FITS):
@@ -446,8 +584,8 @@ def _smooth(
             if not unit and i + 1 >= half and i + (LISTED_FITS - 1) * step <= interior_last:
                 start = base + (i + 1 - half) * stride
                 _fit_lanes_listed_two(
-                    y, pw, start, step * stride, stride, table, moments[3], linear, near_range,
-                    res,
+                    y, pw, start, step * stride, stride, table, 0, moments[3], linear,
+                    near_range, res,
                 )  # fmt: skip
                 for f in range(LISTED_FITS):
                     at = i + f * step
@@ -460,26 +598,29 @@ def _smooth(
                 start = base + (i + 1 - half) * stride
                 if unit:
                     _fit_lanes_unit(
-                        y, start, 0, stride, table, moments[3], moments[:3], linear, near_range,
-                        res,
+                        y, start, 0, stride, table, 0, moments[3], moments[:3], linear,
+                        near_range, res,
                     )  # fmt: skip
                 else:
                     _fit_lanes_listed(
-                        y, pw, start, 0, stride, table, moments[3], linear, near_range, res
+                        y, pw, start, 0, stride, table, 0, moments[3], linear, near_range, res
                     )
             else:
-                nleft, nright = _window(i, n, span, half)
-                _fit(y, pw, base, stride, n, span, degree, float(i), nleft, nright, res)
+                _fit_clamped(y, pw, base, stride, n, span, degree, unit, i, clamped, res)
             unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
             i += step
-        nleft, nright = _window(((n - 1) // step) * step, n, span, half)
     if step != 1:
         for i in range(0, n - step, step):
             _interpolate(ys, out_base, out_stride, i, i + step)
         last_fit = ((n - 1) // step) * step
         if last_fit != n - 1:
-            # the neighbourhood left over from the final jump, as in smooth
-            _fit(y, pw, base, stride, n, span, degree, float(n - 1), nleft, nright, res)
+            # the neighbourhood left over from the final jump, as in smooth: the clamped
+            # window of n - 1 unless the final jump was an interior fit
+            if last_fit > interior_last:
+                _fit_clamped(y, pw, base, stride, n, span, degree, unit, n - 1, clamped, res)
+            else:
+                nleft, nright = _window(last_fit, n, span, (span + 1) // 2)
+                _fit(y, pw, base, stride, n, span, degree, float(n - 1), nleft, nright, res)
             unfitted |= _take(
                 ys, out_base + (n - 1) * out_stride, res, raw, base + (n - 1) * stride
             )
@@ -494,7 +635,7 @@ def _smooth(
                 break
 
 
-@njit(nogil=True, cache=True)
+@njit(nogil=True, cache=True, _nrt=False)
 def _subseries(
     detrended: np.ndarray,
     clean: np.ndarray,
@@ -508,12 +649,17 @@ def _subseries(
     res: np.ndarray,
     table: np.ndarray,
     moments: tuple[float, float, float, int],
+    clamped_long: tuple[np.ndarray, np.ndarray],
+    clamped_short: tuple[np.ndarray, np.ndarray],
 ) -> None:
     """``stl._subseries_smooth`` in every lane: the cycle-subseries smoothed one point
     beyond each end, into ``cycle`` (padded position ``m`` is time ``m - period``).
     ``clean`` is ``detrended`` with 0 where the point weight is 0, for the fits;
-    ``table`` and ``moments`` are ``_interior(span)``'s."""
+    ``table`` and ``moments`` are ``_interior(span)``'s; ``clamped_long`` and
+    ``clamped_short`` are ``_clamped_lists`` for the longest subseries and for those one
+    point shorter (the only two lengths)."""
     stride = period * SERIES
+    longest = (n - 1) // period + 1
     for phase in range(period):
         k = (n - phase - 1) // period + 1
         base = phase * SERIES
@@ -525,13 +671,16 @@ def _subseries(
                 for m in range(k + 2):
                     cycle[base + m * stride + lane] = level
             continue
+        unit = _all_unit(pw, base, stride, k)
+        clamped = clamped_long if k == longest else clamped_short
         _smooth(
             clean, detrended, pw, base, stride, k, span, degree, jump, cycle, first_fit, stride,
-            res, table, moments,
+            res, unit, table, moments, clamped,
         )  # fmt: skip
-        _fit(clean, pw, base, stride, k, span, degree, -1.0, 0, min(span, k) - 1, res)
+        # the extensions: windows [0, min(span, k) - 1] and [max(0, k - span), k - 1]
+        _fit_clamped(clean, pw, base, stride, k, span, degree, unit, -1, clamped, res)
         _take(cycle, base, res, cycle, first_fit)
-        _fit(clean, pw, base, stride, k, span, degree, float(k), max(0, k - span), k - 1, res)
+        _fit_clamped(clean, pw, base, stride, k, span, degree, unit, k, clamped, res)
         _take(cycle, base + (k + 1) * stride, res, cycle, base + k * stride)
 
 
@@ -607,7 +756,7 @@ def _bisquare(typingctx, y, fit, n, scales, rw):
     return signature, codegen
 
 
-@njit(nogil=True, cache=True)
+@njit(nogil=True, cache=True, _nrt=False)
 def _robustness_weights(
     y: np.ndarray,
     fit: np.ndarray,
@@ -632,9 +781,19 @@ def _robustness_weights(
 
 
 @njit(nogil=True, cache=True)
-def buffer_size(n: int, period: int) -> int:
-    """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points."""
-    return 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES + 9 * (n + 1)
+def buffer_size(n: int, settings: np.ndarray) -> int:
+    """Scratch values that ``stl_lanes`` needs for ``SERIES`` series of ``n`` points and
+    the settings row ``settings``."""
+    period = settings[COL_PERIOD]
+    longest = (n - 1) // period + 1
+    lists = (
+        clamped_need(longest, settings[COL_SEASON_SPAN])
+        + clamped_need(longest - 1, settings[COL_SEASON_SPAN])
+        + clamped_need(n, settings[COL_TREND_SPAN])
+        + clamped_need(n, settings[COL_LOWPASS_SPAN])
+    )
+    fixed = 7 * SERIES * (n + 2 * period + 2) + n + (2 * UNIT_FITS + 2) * SERIES
+    return fixed + 9 * (n + 1) + lists
 
 
 @njit(nogil=True, cache=True)
@@ -664,7 +823,7 @@ def stl_lanes(
     """``stl._stl_one`` of ``SERIES`` series of ``n`` points and one settings row, laid
     side by side in ``y`` (point ``t`` of series ``l`` at ``t * SERIES + l``), into
     ``trend``, ``seasonal`` and ``weight`` in the same layout. ``buf`` holds at least
-    ``buffer_size(n, period)`` values."""
+    ``buffer_size(n, settings)`` values."""
     period = settings[COL_PERIOD]
     inner = settings[COL_INNER]
     outer = settings[COL_OUTER]
@@ -692,6 +851,16 @@ def stl_lanes(
     lowpass_table, lowpass_moments = _interior(
         settings[COL_LOWPASS_SPAN], n, buf[rest : rest + 3 * n]
     )
+    rest += 3 * (n + 1)
+    # the clamped fits' lists: the cycle-subseries have two lengths at most
+    season_span = settings[COL_SEASON_SPAN]
+    season_long = _clamped_lists(longest_subseries, season_span, buf[rest:])
+    rest += clamped_need(longest_subseries, season_span)
+    season_short = _clamped_lists(longest_subseries - 1, season_span, buf[rest:])
+    rest += clamped_need(longest_subseries - 1, season_span)
+    trend_clamped = _clamped_lists(n, settings[COL_TREND_SPAN], buf[rest:])
+    rest += clamped_need(n, settings[COL_TREND_SPAN])
+    lowpass_clamped = _clamped_lists(n, settings[COL_LOWPASS_SPAN], buf[rest:])
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
@@ -708,7 +877,7 @@ def stl_lanes(
             _subseries(
                 detrended, clean, pw, n, period, settings[COL_SEASON_SPAN],
                 settings[COL_SEASON_DEGREE], settings[COL_SEASON_JUMP], cycle, res, season_table,
-                season_moments,
+                season_moments, season_long, season_short,
             )  # fmt: skip
             _moving_average(cycle, n + 2 * period, period, smoothed)
             _moving_average(smoothed, n + period + 1, period, lowpass)
@@ -716,7 +885,7 @@ def stl_lanes(
             _smooth(
                 smoothed, smoothed, ones, 0, SERIES, n, settings[COL_LOWPASS_SPAN],
                 settings[COL_LOWPASS_DEGREE], settings[COL_LOWPASS_JUMP], lowpass, 0, SERIES,
-                res, lowpass_table, lowpass_moments,
+                res, True, lowpass_table, lowpass_moments, lowpass_clamped,
             )  # fmt: skip
             shift = period * SERIES
             for i in range(n * SERIES):
@@ -726,7 +895,7 @@ def stl_lanes(
             _smooth(
                 clean, detrended, pw, 0, SERIES, n, settings[COL_TREND_SPAN],
                 settings[COL_TREND_DEGREE], settings[COL_TREND_JUMP], trend, 0, SERIES, res,
-                trend_table, trend_moments,
+                _all_unit(pw, 0, SERIES, n), trend_table, trend_moments, trend_clamped,
             )  # fmt: skip
         passes += 1
         if passes > outer:

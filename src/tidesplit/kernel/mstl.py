@@ -88,7 +88,7 @@ def _mstl_range(
             most_periods = max(most_periods, n_periods[s])
             for k in range(n_periods[s]):
                 need = max(need, buffer_size(n, settings[s, k, COL_PERIOD]))
-                need = max(need, lanes_buffer_size(n, settings[s, k, COL_PERIOD]))
+                need = max(need, lanes_buffer_size(n, settings[s, k]))
     buf = np.empty(need)
     deseasoned = np.empty(longest)
     active = settings[:, 0, COL_ACTIVE] != 0

@@ -450,7 +450,7 @@ def _stl_range(
         if settings[s, COL_ACTIVE]:
             n = offsets[s + 1] - offsets[s]
             need = max(need, buffer_size(n, settings[s, COL_PERIOD]))
-            need = max(need, lanes_buffer_size(n, settings[s, COL_PERIOD]))
+            need = max(need, lanes_buffer_size(n, settings[s]))
     buf = np.empty(need)
     one_period = np.zeros(offsets.shape[0] - 1, dtype=np.int64)
     active = settings[:, COL_ACTIVE] != 0
