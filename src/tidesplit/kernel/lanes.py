@@ -235,6 +235,43 @@ def _fit_lanes_listed_two(typingctx, y, pw, start, gap, stride, table, column, c
     return signature, _listed_codegen(LISTED_FITS)
 
 
+@intrinsic
+def _fit_lanes_clamped_two(typingctx, y, pw, start_a, start_b, stride, table, column_a,
+                           column_b, count, linear_a, linear_b, near_range, out):  # fmt: skip
+    """Two fits of ``_fit_lanes_listed`` side by side, each with its own window start and
+    list, both lists ``count`` long (``_clamped_lists(..., whole=True)``): the two fits'
+    ten chains of adds keep the adder busy where one fit's five wait on its latency. Fit
+    ``f``'s values and flags go to ``out[2 * SERIES * f:]``."""
+    signature = types.none(y, pw, start_a, start_b, stride, table, column_a, column_b, count,
+                           linear_a, linear_b, near_range, out)  # fmt: skip
+
+    def codegen(context, builder, sig, args):
+        _, _, start_a_v, start_b_v, stride_v, _, column_a_v, column_b_v, count_v = args[:9]
+        linear_a_v, linear_b_v, near_range_v = args[9:12]
+        v = _Vectors(builder)
+        y_ptr, pw_ptr, table_ptr, out_ptr = (
+            _data(context, builder, sig, args, k) for k in (0, 1, 5, 12)
+        )
+        width = builder.extract_value(
+            context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
+        )
+        fits = ((start_a_v, column_a_v), (start_b_v, column_b_v))
+        sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in fits]
+        with cgutils.for_range(builder, count_v) as loop:
+            for f, (start, column) in enumerate(fits):
+                t, tricube, u = v.listed(table_ptr, width, builder.add(column, loop.index))
+                at = builder.add(start, builder.mul(t, stride_v))
+                w = builder.fmul(tricube, v.load(pw_ptr, at))
+                v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
+        for f, linear in enumerate((linear_a_v, linear_b_v)):
+            moments = tuple(builder.load(total) for total in sums[f])
+            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+            v.finish(moments, linear, near_range_v, here)
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
 # Fits with unit point weights taken together by _fit_lanes_unit_four: each fit's two sums
 # are chains of dependent adds, so one fit alone waits on the adder's latency; four fits'
 # chains side by side keep it busy.
@@ -392,7 +429,7 @@ def _clamped_slot(xs: int, n: int, span: int) -> int:
 
 @njit(nogil=True, cache=True)
 def _clamped_lists(
-    n: int, span: int, scratch: np.ndarray
+    n: int, span: int, scratch: np.ndarray, whole: bool
 ) -> tuple[np.ndarray, np.ndarray]:
     """The lists of the fits whose window is clamped at an end of a smoothing of ``span``
     over ``n`` points (positions -1 and ``n`` too, the cycle-subseries' extensions):
@@ -401,7 +438,14 @@ def _clamped_lists(
     they are listed once per ``stl_lanes`` call instead of in every pass (``_fit``); the
     list holds the points ``fit_at`` weighs, in its order, each weight computed as
     ``_fit_lanes`` computes it, so the fits give the same bits. ``index[slot]`` (slot from
-    ``_clamped_slot``) holds the ``ENTRY`` numbers named there."""
+    ``_clamped_slot``) holds the ``ENTRY`` numbers named there.
+
+    ``whole``: list every point of the window, those beyond the bandwidth's cut-off with
+    weight 0, so that every list has the window's length and two fits can run side by
+    side (``_fit_lanes_clamped_two``). A point of weight 0 adds zeros to the sums, as
+    skipping it does, where its value is finite: the fits' values with 0 where the point
+    weight is 0 (``clean``) are; the low-pass filter's input, not refused for NaN, is
+    listed without them."""
     fits, points = _clamped_size(n, span)
     index = scratch[: ENTRY * fits].reshape((fits, ENTRY))
     table = scratch[ENTRY * fits : ENTRY * fits + 3 * points].reshape((3, points))
@@ -430,8 +474,10 @@ def _clamped_lists(
             u = float(t) - shift
             r = abs(u)
             if r > h_far:
-                continue
-            if r <= h_near:
+                if not whole:
+                    continue
+                w = 0.0
+            elif r <= h_near:
                 w = 1.0
             else:
                 q = r * inv_h
@@ -489,6 +535,42 @@ def _fit_clamped(
         _fit_lanes_listed(
             y, pw, start, 0, stride, table, column, count, linear, NEAR * (n - 1.0), res
         )
+
+
+@njit(nogil=True, cache=True, _nrt=False)
+def _paired(lists: tuple[np.ndarray, np.ndarray], n: int, span: int, xa: int, xb: int) -> bool:
+    """Whether the fits at ``xa`` and ``xb`` can run side by side: lists of one length
+    (always so in lists made ``whole``)."""
+    index = lists[0]
+    return index[_clamped_slot(xa, n, span), 2] == index[_clamped_slot(xb, n, span), 2]
+
+
+@njit(nogil=True, cache=True, _nrt=False)
+def _fit_clamped_two(
+    y: np.ndarray,
+    pw: np.ndarray,
+    base: int,
+    stride: int,
+    n: int,
+    span: int,
+    degree: int,
+    xa: int,
+    xb: int,
+    lists: tuple[np.ndarray, np.ndarray],
+    res: np.ndarray,
+) -> None:
+    """``_fit_clamped`` at positions ``xa`` and ``xb`` at once (lists made ``whole``),
+    their values and flags to ``res`` as fits 0 and 1 (see ``_take``)."""
+    index, table = lists
+    a = _clamped_slot(xa, n, span)
+    b = _clamped_slot(xb, n, span)
+    linear_a = 1 if index[a, 3] > 0.0 and degree > 0 else 0
+    linear_b = 1 if index[b, 3] > 0.0 and degree > 0 else 0
+    _fit_lanes_clamped_two(
+        y, pw, base + int(index[a, 0]) * stride, base + int(index[b, 0]) * stride, stride,
+        table, int(index[a, 1]), int(index[b, 1]), int(index[a, 2]), linear_a, linear_b,
+        NEAR * (n - 1.0), res,
+    )  # fmt: skip
 
 
 @njit(nogil=True, cache=True, _nrt=False)
@@ -554,9 +636,20 @@ def _smooth(
     unfitted = False  # a NaN taken (a fit with no point of weight at a missing value)
     interior_last = -1  # no interior fits when the span covers the series
     if span >= n:
-        for i in range(0, n, step):
+        i = 0
+        while i < n:
+            if not unit and i + step < n and _paired(clamped, n, span, i, i + step):
+                _fit_clamped_two(y, pw, base, stride, n, span, degree, i, i + step, clamped, res)
+                for f in range(2):
+                    at = i + f * step
+                    unfitted |= _take(
+                        ys, out_base + at * out_stride, res, raw, base + at * stride, f
+                    )
+                i += 2 * step
+                continue
             _fit_clamped(y, pw, base, stride, n, span, degree, unit, i, clamped, res)
             unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
+            i += step
     else:
         half = (span + 1) // 2
         # Interior fits (a whole window, not clamped at an end) share their points, tricube
@@ -605,6 +698,21 @@ def _smooth(
                     _fit_lanes_listed(
                         y, pw, start, 0, stride, table, 0, moments[3], linear, near_range, res
                     )
+            elif (
+                not unit
+                and (i + step + 1 < half or i > interior_last)
+                and i + step < n
+                and _paired(clamped, n, span, i, i + step)
+            ):
+                # two clamped fits at the same end
+                _fit_clamped_two(y, pw, base, stride, n, span, degree, i, i + step, clamped, res)
+                for f in range(2):
+                    at = i + f * step
+                    unfitted |= _take(
+                        ys, out_base + at * out_stride, res, raw, base + at * stride, f
+                    )
+                i += 2 * step
+                continue
             else:
                 _fit_clamped(y, pw, base, stride, n, span, degree, unit, i, clamped, res)
             unfitted |= _take(ys, out_base + i * out_stride, res, raw, base + i * stride)
@@ -678,6 +786,11 @@ def _subseries(
             res, unit, table, moments, clamped,
         )  # fmt: skip
         # the extensions: windows [0, min(span, k) - 1] and [max(0, k - span), k - 1]
+        if not unit and _paired(clamped, k, span, -1, k):
+            _fit_clamped_two(clean, pw, base, stride, k, span, degree, -1, k, clamped, res)
+            _take(cycle, base, res, cycle, first_fit, 0)
+            _take(cycle, base + (k + 1) * stride, res, cycle, base + k * stride, 1)
+            continue
         _fit_clamped(clean, pw, base, stride, k, span, degree, unit, -1, clamped, res)
         _take(cycle, base, res, cycle, first_fit)
         _fit_clamped(clean, pw, base, stride, k, span, degree, unit, k, clamped, res)
@@ -854,13 +967,13 @@ def stl_lanes(
     rest += 3 * (n + 1)
     # the clamped fits' lists: the cycle-subseries have two lengths at most
     season_span = settings[COL_SEASON_SPAN]
-    season_long = _clamped_lists(longest_subseries, season_span, buf[rest:])
+    season_long = _clamped_lists(longest_subseries, season_span, buf[rest:], True)
     rest += clamped_need(longest_subseries, season_span)
-    season_short = _clamped_lists(longest_subseries - 1, season_span, buf[rest:])
+    season_short = _clamped_lists(longest_subseries - 1, season_span, buf[rest:], True)
     rest += clamped_need(longest_subseries - 1, season_span)
-    trend_clamped = _clamped_lists(n, settings[COL_TREND_SPAN], buf[rest:])
+    trend_clamped = _clamped_lists(n, settings[COL_TREND_SPAN], buf[rest:], True)
     rest += clamped_need(n, settings[COL_TREND_SPAN])
-    lowpass_clamped = _clamped_lists(n, settings[COL_LOWPASS_SPAN], buf[rest:])
+    lowpass_clamped = _clamped_lists(n, settings[COL_LOWPASS_SPAN], buf[rest:], False)
     medians[:] = math.nan
     for i in range(n * SERIES):
         pw[i] = 0.0 if math.isnan(y[i]) else 1.0
