@@ -115,15 +115,13 @@ class _Vectors:
         b = self.builder
         total, first, second, value, cross = moments
         ok = b.fcmp_ordered(">", total, self.zero)
-        mean_y = b.fdiv(value, total)
-        centre = b.fdiv(first, total)
-        spread = b.fsub(b.fdiv(second, total), b.fmul(centre, centre))
-        sqrt = cgutils.get_or_insert_function(
-            b.module, ir.FunctionType(self.vec, [self.vec]), f"llvm.sqrt.v{SERIES}f64"
-        )
+        inv_total = b.fdiv(self.ones, total)
+        mean_y = b.fmul(value, inv_total)
+        centre = b.fmul(first, inv_total)
+        spread = b.fsub(b.fmul(second, inv_total), b.fmul(centre, centre))
         positive = b.select(b.fcmp_ordered(">", spread, self.zero), spread, self.zero)
-        wide = b.fcmp_ordered(">", b.call(sqrt, [positive]), self.splat(near_range))
-        slope = b.fdiv(b.fsub(b.fdiv(cross, total), b.fmul(centre, mean_y)), spread)
+        wide = b.fcmp_ordered(">", positive, self.splat(b.fmul(near_range, near_range)))
+        slope = b.fdiv(b.fsub(b.fmul(cross, inv_total), b.fmul(centre, mean_y)), spread)
         line = b.fsub(mean_y, b.fmul(slope, centre))
         linear_flag = b.icmp_signed("!=", linear, ir.Constant(linear.type, 0))
         chosen = b.select(linear_flag, b.select(wide, line, mean_y), mean_y)

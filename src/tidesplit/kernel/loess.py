@@ -311,13 +311,15 @@ def _finish(
     """The fitted value from a fit's weighted moments (see ``fit_at``)."""
     if total <= 0.0:
         return 0.0, False
-    mean_y = value / total
+    inv_total = 1.0 / total
+    mean_y = value * inv_total
     if h > 0.0 and degree > 0:
-        centre = first / total
-        spread = second / total - centre * centre
-        if math.sqrt(max(spread, 0.0)) > NEAR * full_range:
+        centre = first * inv_total
+        spread = second * inv_total - centre * centre
+        near_range = NEAR * full_range
+        if max(spread, 0.0) > near_range * near_range:
             # line through the weighted centre, evaluated at u = 0
-            slope = (cross / total - centre * mean_y) / spread
+            slope = (cross * inv_total - centre * mean_y) / spread
             return mean_y - slope * centre, True
     return mean_y, True
 
