@@ -76,6 +76,31 @@ def test_linear_shortcut_equals_direct_loops(rng, options, n, period):
     np.testing.assert_allclose(s_fast, seasonal.reshape(batch.shape), rtol=0, atol=1e-11)
 
 
+@pytest.mark.parametrize(("n", "period"), [(120, 12), (52, 4), (13, 4), (97, 7)])
+def test_linear_products_are_the_defined_sums(rng, n, period):
+    # Each value of the shortcut is sum(y[k] * op[k, j]) over k ascending from 0.0 (see
+    # kernel/linear.py), whichever way the products are blocked: lengths that fill the
+    # vector columns and lengths that leave some over, counts with series left out of the
+    # blocks of four, all to the bit.
+    count = 11
+    row = SplitParams(period=period).resolve().settings_row()
+    values = rng.normal(size=count * n) * 100
+    starts = np.arange(count, dtype=np.int64) * n
+    trend = np.empty(count * n)
+    seasonal = np.empty(count * n)
+    linear.apply_flat(values, starts, n, row, trend, seasonal)
+    t_op, s_op = linear.operators(n, row)
+    for s in range(count):
+        y = values[s * n : (s + 1) * n]
+        want_trend = np.zeros(n)
+        want_seasonal = np.zeros(n)
+        for k in range(n):
+            want_trend = want_trend + y[k] * t_op[k]
+            want_seasonal = want_seasonal + y[k] * s_op[k]
+        assert np.array_equal(trend[s * n : (s + 1) * n], want_trend)
+        assert np.array_equal(seasonal[s * n : (s + 1) * n], want_seasonal)
+
+
 def test_batch_path_mixes_shortcut_and_loops(rng):
     # A batch with complete, gappy and robust series, in one call: every series equals its
     # own single-series split.

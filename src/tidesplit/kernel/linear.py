@@ -24,7 +24,10 @@ import threading
 from collections import OrderedDict
 
 import numpy as np
-from numba import get_num_threads, njit, prange
+from llvmlite import ir
+from numba import get_num_threads, njit, prange, types
+from numba.core import cgutils
+from numba.extending import intrinsic
 
 from .layout import COL_OUTER
 from .stl import stl_batch_parallel, stl_batch_serial
@@ -107,6 +110,62 @@ def operators(
     return found
 
 
+# Output columns a block's sums keep in vector registers at once: eight doubles, one
+# 512-bit register (two 256-bit ones where that is the widest).
+_COLUMNS = 8
+
+
+@intrinsic
+def _block_columns(typingctx, values, starts, q, n, t_op, s_op, j0, trend, seasonal):
+    """Columns ``j0 .. j0 + _COLUMNS - 1`` of the trend and seasonal of the ``_BLOCK``
+    series starting at ``starts[q:q + _BLOCK]``: every value ``sum(y[k] * op[k, j] for k
+    ascending)`` from 0.0, as ``_products`` defines it, the block's 2 x ``_BLOCK`` sums of
+    ``_COLUMNS`` columns held in registers across ``k`` (numba kept them in memory, a load
+    and a store per term)."""
+    signature = types.none(values, starts, q, n, t_op, s_op, j0, trend, seasonal)
+
+    def codegen(context, builder, sig, args):
+        _, _, q_v, n_v, _, _, j0_v, _, _ = args
+        values_p, starts_p, t_p, s_p, trend_p, seasonal_p = (
+            context.make_array(sig.args[k])(context, builder, args[k]).data
+            for k in (0, 1, 4, 5, 7, 8)
+        )
+        dbl = ir.DoubleType()
+        i64 = ir.IntType(64)
+        vec = ir.VectorType(dbl, _COLUMNS)
+        undef = ir.Constant(vec, ir.Undefined)
+        mask = ir.Constant(ir.VectorType(ir.IntType(32), _COLUMNS), [0] * _COLUMNS)
+
+        def at(pointer, index):
+            return builder.bitcast(builder.gep(pointer, [index]), vec.as_pointer())
+
+        starts = [
+            builder.load(builder.gep(starts_p, [builder.add(q_v, ir.Constant(i64, r))]))
+            for r in range(_BLOCK)
+        ]
+        zero = ir.Constant(vec, [0.0] * _COLUMNS)
+        sums = [cgutils.alloca_once_value(builder, zero) for _ in range(2 * _BLOCK)]
+        with cgutils.for_range(builder, n_v) as loop:
+            k = loop.index
+            row = builder.add(builder.mul(k, n_v), j0_v)
+            t_row = builder.load(at(t_p, row), align=8)
+            s_row = builder.load(at(s_p, row), align=8)
+            for r in range(_BLOCK):
+                y = builder.load(builder.gep(values_p, [builder.add(starts[r], k)]))
+                y = builder.shuffle_vector(
+                    builder.insert_element(undef, y, ir.Constant(i64, 0)), undef, mask
+                )
+                for total, op_row in ((sums[r], t_row), (sums[_BLOCK + r], s_row)):
+                    builder.store(builder.fadd(builder.load(total), builder.fmul(y, op_row)), total)
+        for r in range(_BLOCK):
+            out = builder.add(starts[r], j0_v)
+            builder.store(builder.load(sums[r]), at(trend_p, out), align=8)
+            builder.store(builder.load(sums[_BLOCK + r]), at(seasonal_p, out), align=8)
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
 @njit(nogil=True, cache=True)
 def _products(
     values: np.ndarray,
@@ -125,35 +184,39 @@ def _products(
     in the rest alike, so it depends on the series alone.
     """
     acc = np.empty((2 * _BLOCK, n))
+    whole = n - n % _COLUMNS  # columns in full vectors; the rest below
     q = first
     while q + _BLOCK <= stop:
-        acc[:] = 0.0
-        a = starts[q]
-        b = starts[q + 1]
-        c = starts[q + 2]
-        d = starts[q + 3]
-        for k in range(n):
-            ya = values[a + k]
-            yb = values[b + k]
-            yc = values[c + k]
-            yd = values[d + k]
-            for j in range(n):
-                x = t_op[k, j]
-                acc[0, j] += ya * x
-                acc[1, j] += yb * x
-                acc[2, j] += yc * x
-                acc[3, j] += yd * x
-            for j in range(n):
-                x = s_op[k, j]
-                acc[4, j] += ya * x
-                acc[5, j] += yb * x
-                acc[6, j] += yc * x
-                acc[7, j] += yd * x
-        for r in range(_BLOCK):
-            lo = starts[q + r]
-            for j in range(n):
-                trend[lo + j] = acc[r, j]
-                seasonal[lo + j] = acc[_BLOCK + r, j]
+        for j0 in range(0, whole, _COLUMNS):
+            _block_columns(values, starts, q, n, t_op, s_op, j0, trend, seasonal)
+        if whole < n:
+            acc[:, whole:] = 0.0
+            a = starts[q]
+            b = starts[q + 1]
+            c = starts[q + 2]
+            d = starts[q + 3]
+            for k in range(n):
+                ya = values[a + k]
+                yb = values[b + k]
+                yc = values[c + k]
+                yd = values[d + k]
+                for j in range(whole, n):
+                    x = t_op[k, j]
+                    acc[0, j] += ya * x
+                    acc[1, j] += yb * x
+                    acc[2, j] += yc * x
+                    acc[3, j] += yd * x
+                for j in range(whole, n):
+                    x = s_op[k, j]
+                    acc[4, j] += ya * x
+                    acc[5, j] += yb * x
+                    acc[6, j] += yc * x
+                    acc[7, j] += yd * x
+            for r in range(_BLOCK):
+                lo = starts[q + r]
+                for j in range(whole, n):
+                    trend[lo + j] = acc[r, j]
+                    seasonal[lo + j] = acc[_BLOCK + r, j]
         q += _BLOCK
     while q < stop:
         lo = starts[q]
