@@ -177,24 +177,17 @@ def _check_transformed(
 def _check_output(
     values: np.ndarray,
     offsets: np.ndarray,
-    trend: np.ndarray,
-    seasonal: np.ndarray,
+    broken: np.ndarray,
     settings: np.ndarray,
     status: list[str],
     describe_phase: Callable[[int, int, int], str] | None,
 ) -> np.ndarray:
-    """Series whose split came out non-finite somewhere, each given a reason in ``status``.
+    """Series whose split came out non-finite somewhere (``broken``, from
+    ``checks.finish_points``), each given a reason in ``status``.
 
     The checks before the split rule out what can be foreseen; this is the net under them,
     so that no series reports ``ok`` with a missing trend or seasonal value.
     """
-    # a non-finite point makes its series' sum non-finite: one pass, no mask per point
-    # (the values' bound keeps finite sums from overflowing)
-    lengths = np.diff(offsets)
-    filled = np.flatnonzero(lengths > 0)
-    sums = np.add.reduceat(np.add(trend, seasonal), offsets[filled]) if filled.size else []
-    broken = np.zeros(lengths.size, dtype=bool)
-    broken[filled] = ~np.isfinite(sums)
     failed = np.flatnonzero(broken & (settings[:, 0, COL_ACTIVE] == 1))
     for s in failed:
         lo, hi = int(offsets[s]), int(offsets[s + 1])
@@ -444,20 +437,27 @@ def split_batch(
         parts = None
     else:
         trend, seasonal, weight, parts = _run(y, offsets, plan, params, groups, parallel)
-    if _check_output(values, offsets, trend, seasonal, plan.settings, status, describe_phase).size:
+    remainder, adjusted, calendar = (memory.empty(y.size) for _ in range(3))
+    broken = np.empty(count, dtype=bool)
+    checks.finish_points(
+        values, y, offsets, trend, seasonal, weight, remainder, adjusted, calendar, broken
+    )
+    if _check_output(values, offsets, broken, plan.settings, status, describe_phase).size:
         ok = _settle(status, on_error, label)
         rows = np.repeat(~ok, lengths)
-        trend[rows] = seasonal[rows] = weight[rows] = np.nan
+        for points in (trend, seasonal, weight, remainder, adjusted, calendar):
+            points[rows] = np.nan
         if parts is not None:
             parts[:, rows] = np.nan
     result = _assemble(
-        values, offsets, y, trend, seasonal, weight, parts, plan, ok, back, status, describe_point
-    )
+        values, offsets, trend, seasonal, weight, remainder, adjusted, parts, plan, ok, back,
+        status, describe_point,
+    )  # fmt: skip
     if fitted is not None:
         _add_effects(result, y, fitted, design, plan, ok, back, status, describe_point)
     else:
-        result.calendar_effect = np.where(np.isnan(trend), np.nan, 0.0)
-        result.outside_effect = result.calendar_effect
+        result.calendar_effect = calendar
+        result.outside_effect = calendar
         result.adjusted_season_only = result.adjusted
     return result
 
@@ -618,10 +618,11 @@ def _run(
 def _assemble(
     values: np.ndarray,
     offsets: np.ndarray,
-    y: np.ndarray,
     trend: np.ndarray,
     seasonal: np.ndarray,
     weight: np.ndarray,
+    remainder: np.ndarray,
+    adjusted: np.ndarray,
     parts: np.ndarray | None,
     plan: _Plan,
     ok: np.ndarray,
@@ -629,7 +630,7 @@ def _assemble(
     status: list[str],
     describe_point: Callable[[int, int], str] | None,
 ) -> BatchResult:
-    """Remainder, the seasonally adjusted series back on the original scale, the notes."""
+    """The seasonally adjusted series back on the original scale, the notes, the result."""
     lengths = np.diff(offsets)
     series_periods = None
     if plan.multi:
@@ -645,15 +646,11 @@ def _assemble(
                 status[s] = with_note(
                     status[s], f"dropped period {shown}: not shorter than half the series"
                 )
-    remainder = np.subtract(y, trend, out=memory.empty(y.size))
-    remainder -= seasonal
-    adjusted = np.subtract(y, seasonal, out=memory.empty(y.size))
     lambdas = plan.lambdas
     if back is not None:
         back = back & np.repeat(ok, lengths)
         adjusted[back] = transform.inverse(adjusted[back], np.repeat(lambdas, lengths)[back])
         _note_unreachable(values, offsets, adjusted, lambdas, back, status, describe_point)
-    weight[np.isnan(values)] = np.nan
     lambdas[~ok] = np.nan
     periods = plan.periods
     periods[~ok] = 0

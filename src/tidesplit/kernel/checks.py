@@ -81,3 +81,39 @@ def scan_batch(
                 code[s] = PHASE_UNSEEN
                 where[s] = phase
                 break
+
+
+@njit(nogil=True, cache=True)
+def finish_points(
+    values: np.ndarray,
+    y: np.ndarray,
+    offsets: np.ndarray,
+    trend: np.ndarray,
+    seasonal: np.ndarray,
+    weight: np.ndarray,
+    remainder: np.ndarray,
+    adjusted: np.ndarray,
+    calendar: np.ndarray,
+    broken: np.ndarray,
+) -> None:
+    """Everything a split's points need after the kernel, in one pass: ``remainder = (y -
+    trend) - seasonal``, ``adjusted = y - seasonal``, ``weight`` NaN where the value is
+    missing, ``calendar`` (the effect without regression: 0, NaN where the trend is), and
+    per series ``broken``: whether a trend or seasonal value came out non-finite.
+
+    One compiled loop instead of a numpy pass for each (with the GIL released): about a
+    fifth of what a DuckDB call spent outside the kernel.
+    """
+    for s in range(offsets.shape[0] - 1):
+        bad = False
+        for i in range(offsets[s], offsets[s + 1]):
+            t = trend[i]
+            part = seasonal[i]
+            fitted = t + part
+            bad |= fitted - fitted != 0.0  # NaN or infinite
+            remainder[i] = (y[i] - t) - part
+            adjusted[i] = y[i] - part
+            if math.isnan(values[i]):
+                weight[i] = math.nan
+            calendar[i] = math.nan if math.isnan(t) else 0.0
+        broken[s] = bad
