@@ -798,9 +798,8 @@ def _subseries(
 @intrinsic
 def _moving_average(typingctx, x, n, length, out):
     """``stl._moving_average`` in every lane: running sums of ``length`` points, each
-    lane's additions, subtractions and divisions in the one-series routine's order, the
-    lanes in one vector (numba's compiler left the lanes' loop scalar, a division per
-    value)."""
+    lane's additions, subtractions and scalings in the one-series routine's order, the
+    lanes in one vector (numba's compiler left the lanes' loop scalar)."""
     signature = types.none(x, n, length, out)
 
     def codegen(context, builder, sig, args):
@@ -808,12 +807,12 @@ def _moving_average(typingctx, x, n, length, out):
         v = _Vectors(builder)
         x_ptr, out_ptr = (_data(context, builder, sig, args, k) for k in (0, 3))
         lanes = ir.Constant(v.i64, SERIES)
-        divisor = v.splat(builder.sitofp(length_v, v.dbl))
+        scale = v.splat(builder.fdiv(ir.Constant(v.dbl, 1.0), builder.sitofp(length_v, v.dbl)))
         total = cgutils.alloca_once_value(builder, v.zero)
         with cgutils.for_range(builder, length_v) as loop:
             at = builder.mul(loop.index, lanes)
             builder.store(builder.fadd(builder.load(total), v.load(x_ptr, at)), total)
-        v.store_at(builder.fdiv(builder.load(total), divisor), out_ptr, ir.Constant(v.i64, 0))
+        v.store_at(builder.fmul(builder.load(total), scale), out_ptr, ir.Constant(v.i64, 0))
         last = builder.sub(n_v, length_v)
         with cgutils.for_range(builder, last) as loop:
             j = builder.add(loop.index, ir.Constant(v.i64, 1))
@@ -823,7 +822,40 @@ def _moving_average(typingctx, x, n, length, out):
             )
             moved = builder.fadd(builder.fsub(builder.load(total), gone), v.load(x_ptr, come_at))
             builder.store(moved, total)
-            v.store_at(builder.fdiv(moved, divisor), out_ptr, builder.mul(j, lanes))
+            v.store_at(builder.fmul(moved, scale), out_ptr, builder.mul(j, lanes))
+        return context.get_dummy_value()
+
+    return signature, codegen
+
+
+@intrinsic
+def _part_out(typingctx, y, minuend, shift, subtrahend, pw, n, part, rest, clean):
+    """``part = minuend[shift:] - subtrahend`` (or ``minuend`` alone where ``subtrahend`` is
+    ``y`` itself, see below), ``rest = y - part`` and ``clean = rest`` where the point
+    weight is not 0, else 0, for ``n`` points of every lane: the loops of ``stl_lanes``
+    between its smoothings, one vector per point (numba's compiler kept them scalar, the
+    arrays being views of one scratch buffer). With ``subtrahend`` of ``None`` type the
+    part is ``minuend[shift:]`` as it stands."""
+    signature = types.none(y, minuend, shift, subtrahend, pw, n, part, rest, clean)
+    plain = isinstance(subtrahend, types.NoneType)
+
+    def codegen(context, builder, sig, args):
+        shift_v, n_v = args[2], args[5]
+        v = _Vectors(builder)
+        y_ptr, minuend_ptr, pw_ptr, part_ptr, rest_ptr, clean_ptr = (
+            _data(context, builder, sig, args, k) for k in (0, 1, 4, 6, 7, 8)
+        )
+        sub_ptr = None if plain else _data(context, builder, sig, args, 3)
+        with cgutils.for_range(builder, n_v) as loop:
+            at = builder.mul(loop.index, ir.Constant(v.i64, SERIES))
+            value = v.load(minuend_ptr, builder.add(at, shift_v))
+            if not plain:
+                value = builder.fsub(value, v.load(sub_ptr, at))
+                v.store_at(value, part_ptr, at)
+            rest = builder.fsub(v.load(y_ptr, at), value)
+            v.store_at(rest, rest_ptr, at)
+            weighed = builder.fcmp_unordered("!=", v.load(pw_ptr, at), v.zero)
+            v.store_at(builder.select(weighed, rest, v.zero), clean_ptr, at)
         return context.get_dummy_value()
 
     return signature, codegen
