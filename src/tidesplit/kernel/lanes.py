@@ -829,39 +829,6 @@ def _moving_average(typingctx, x, n, length, out):
 
 
 @intrinsic
-def _part_out(typingctx, y, minuend, shift, subtrahend, pw, n, part, rest, clean):
-    """``part = minuend[shift:] - subtrahend`` (or ``minuend`` alone where ``subtrahend`` is
-    ``y`` itself, see below), ``rest = y - part`` and ``clean = rest`` where the point
-    weight is not 0, else 0, for ``n`` points of every lane: the loops of ``stl_lanes``
-    between its smoothings, one vector per point (numba's compiler kept them scalar, the
-    arrays being views of one scratch buffer). With ``subtrahend`` of ``None`` type the
-    part is ``minuend[shift:]`` as it stands."""
-    signature = types.none(y, minuend, shift, subtrahend, pw, n, part, rest, clean)
-    plain = isinstance(subtrahend, types.NoneType)
-
-    def codegen(context, builder, sig, args):
-        shift_v, n_v = args[2], args[5]
-        v = _Vectors(builder)
-        y_ptr, minuend_ptr, pw_ptr, part_ptr, rest_ptr, clean_ptr = (
-            _data(context, builder, sig, args, k) for k in (0, 1, 4, 6, 7, 8)
-        )
-        sub_ptr = None if plain else _data(context, builder, sig, args, 3)
-        with cgutils.for_range(builder, n_v) as loop:
-            at = builder.mul(loop.index, ir.Constant(v.i64, SERIES))
-            value = v.load(minuend_ptr, builder.add(at, shift_v))
-            if not plain:
-                value = builder.fsub(value, v.load(sub_ptr, at))
-                v.store_at(value, part_ptr, at)
-            rest = builder.fsub(v.load(y_ptr, at), value)
-            v.store_at(rest, rest_ptr, at)
-            weighed = builder.fcmp_unordered("!=", v.load(pw_ptr, at), v.zero)
-            v.store_at(builder.select(weighed, rest, v.zero), clean_ptr, at)
-        return context.get_dummy_value()
-
-    return signature, codegen
-
-
-@intrinsic
 def _bisquare(typingctx, y, fit, n, scales, rw):
     """The robustness weights of ``stl._robustness_weights`` in every lane, given each
     lane's ``6 * median`` in ``scales``: 1 within ``NEAR`` of the scale, the bisquare up to
