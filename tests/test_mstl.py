@@ -154,3 +154,22 @@ def test_sql_multi_with_inferred_periods_and_gaps(con, rng):
         np.log(frame["load"]),
         atol=1e-10,
     )
+
+
+def test_per_row_parts_same_periods_and_mixed():
+    # Each output row lists (period, seasonal part) for the periods its series kept: the
+    # same periods for every series (taken without masks) and a series that kept fewer.
+    from tidesplit.duckdb_ext import _per_row_parts
+
+    parts = np.array([[1.0, 2.0, 3.0], [4.0, 5.0, 6.0]])
+    offsets = np.array([0, 2, 3])
+    every = _per_row_parts(parts, [(24, 168), (24, 168)], offsets).to_pylist()
+    assert every == [
+        [
+            [{"period": 24, "seasonal": 1.0}, {"period": 168, "seasonal": 4.0}],
+            [{"period": 24, "seasonal": 2.0}, {"period": 168, "seasonal": 5.0}],
+        ],
+        [[{"period": 24, "seasonal": 3.0}, {"period": 168, "seasonal": 6.0}]],
+    ]
+    fewer = _per_row_parts(parts, [(24, 168), (24,)], offsets).to_pylist()
+    assert fewer == [every[0], [[{"period": 24, "seasonal": 3.0}]]]

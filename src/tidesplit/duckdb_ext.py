@@ -106,6 +106,19 @@ def _per_row_parts(
     kept = np.array([len(p) for p in series_periods], dtype=np.int64)
     for s, periods in enumerate(series_periods):
         table[s, : len(periods)] = periods
+    if kept.size and (kept == width).all() and (table == table[0]).all():
+        # every series split with the same periods (the common case): each row holds them
+        # all, in order, so the items are the parts point by point, with no mask
+        points = parts.shape[1]
+        items = pa.StructArray.from_arrays(
+            [
+                arrow_lists.fixed_array(np.tile(table[0], points), pa.int64()),
+                arrow_lists.fixed_array(np.ascontiguousarray(parts.T).ravel(), pa.float64()),
+            ],
+            names=["period", "seasonal"],
+        )
+        row_offsets = np.arange(points + 1, dtype=np.int64) * width
+        return arrow_lists.list_array(offsets, arrow_lists.list_array(row_offsets, items))
     row_kept = np.repeat(kept, lengths)
     used = np.arange(width)[None, :] < row_kept[:, None]  # rows x periods
     items = pa.StructArray.from_arrays(
