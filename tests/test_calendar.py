@@ -11,6 +11,7 @@ from datasets import co2_monthly
 import tidesplit
 from tidesplit import calendar
 from tidesplit.api import _time_codes
+from tidesplit.kernel import grid
 
 
 def frame_of(times, values, key="a"):
@@ -305,3 +306,30 @@ def test_an_infinite_time_is_said_to_be_infinite(con):
         "SELECT DISTINCT status FROM tide_split(inf, 'k', 't', 'v', on_error := 'keep')"
     ).fetchall()
     assert status == [("a time is infinite",)]
+
+
+def test_rows_sorted_within_series_as_a_stable_sort(rng):
+    # DuckDB's list() hands rows back in no promised order; the UDF sorts each series by
+    # time itself (kernel/grid.sort_within), as np.lexsort((codes, series)) would, ties
+    # in the order they came: series in order, shuffled grids without gaps (put in place
+    # row by row), grids with gaps and repeated times (sorted), an empty series.
+    parts = [
+        np.arange(10),
+        rng.permutation(50) + 1_000,
+        np.roll(np.arange(0, 80, 2), 7),
+        rng.permutation(np.repeat(np.arange(6), 3)),
+        np.array([], dtype=np.int64),
+        np.array([5, 4, 4, 9]),
+    ]
+    codes = np.concatenate(parts).astype(np.int64)
+    offsets = np.concatenate(([0], np.cumsum([p.size for p in parts])))
+    values = rng.normal(size=codes.size)
+    order, sorted_codes, sorted_values = grid.sort_within(codes, values, offsets)
+    series = np.repeat(np.arange(len(parts)), np.diff(offsets))
+    expected = np.lexsort((codes, series))
+    assert np.array_equal(order, expected)
+    assert np.array_equal(sorted_codes, codes[expected])
+    assert np.array_equal(sorted_values, values[expected])
+    back = np.empty_like(values)
+    grid.place(order, sorted_values, back)
+    assert np.array_equal(back, values)

@@ -180,11 +180,12 @@ class _Call:
             return result
         for name in (*COMPONENTS, "inserted"):
             moved = np.empty_like(getattr(result, name))
-            moved[self.order] = getattr(result, name)
+            grid.place(self.order, getattr(result, name), moved)
             setattr(result, name, moved)
         if result.seasonal_parts is not None:
             parts = np.empty_like(result.seasonal_parts)
-            parts[:, self.order] = result.seasonal_parts
+            for k in range(parts.shape[0]):
+                grid.place(self.order, result.seasonal_parts[k], parts[k])
             result.seasonal_parts = parts
         return result
 
@@ -280,10 +281,7 @@ def _decode(udf: str, columns: dict[str, pa.Array]) -> _Call:
     # DuckDB's list() keeps no order; the lists of one group share one, so we sort here,
     # once, instead of asking for four sorted aggregates
     if codes is not None and codes.size > 1 and not grid.sorted_within(codes, offsets):
-        series = np.repeat(np.arange(offsets.size - 1), np.diff(offsets))
-        order = np.lexsort((codes, series))
-        codes = codes[order]
-        flat = flat[order]
+        order, codes, flat = grid.sort_within(codes, flat, offsets)
     kinds, zones = columns["time_kind"], columns["time_zone"]
     kind = calendar.time_kind(kinds[0].as_py() if len(kinds) else None)
     zone = zones[0].as_py() if len(zones) else None

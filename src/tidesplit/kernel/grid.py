@@ -25,6 +25,73 @@ def sorted_within(codes: np.ndarray, offsets: np.ndarray) -> bool:
 
 
 @njit(nogil=True, cache=True)
+def sort_within(
+    codes: np.ndarray, values: np.ndarray, offsets: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Each series' rows in order of their codes, ties in the order they came (a stable
+    sort, as ``np.lexsort((codes, series))`` gives): the input row of each sorted row, and
+    the codes and values sorted.
+
+    A series in order is taken as it is; one whose codes are distinct and fill a range
+    (a regular grid without gaps, the usual case) has each row put in its place in one
+    pass; the others are sorted on their own. DuckDB's ``list()`` hands long series back
+    as several sorted runs, and for such calls (a million points) one ``np.lexsort`` and
+    numpy's gathers and scatters took 0.14 s, holding the GIL, against a kernel of 0.7 s.
+
+    >>> order, codes, values = sort_within(
+    ...     np.array([2, 1, 5, 7, 5]), np.array([0.2, 0.1, 0.5, 0.7, 0.6]), np.array([0, 2, 5]))
+    >>> order.tolist(), codes.tolist(), values.tolist()
+    ([1, 0, 2, 4, 3], [1, 2, 5, 5, 7], [0.1, 0.2, 0.5, 0.6, 0.7])
+    """
+    order = np.empty(codes.shape[0], dtype=np.int64)
+    for s in range(offsets.shape[0] - 1):
+        lo = offsets[s]
+        hi = offsets[s + 1]
+        ordered = True
+        low = codes[lo] if hi > lo else 0
+        high = low
+        for i in range(lo + 1, hi):
+            ordered &= codes[i] >= codes[i - 1]
+            low = min(low, codes[i])
+            high = max(high, codes[i])
+        if ordered:
+            for i in range(lo, hi):
+                order[i] = i
+            continue
+        span = high - low  # negative only where the subtraction wrapped around
+        placed = span >= 0 and span == hi - lo - 1  # as many slots as rows
+        if placed:
+            order[lo:hi] = -1
+            for i in range(lo, hi):
+                slot = lo + codes[i] - low
+                if order[slot] != -1:  # a repeated code: not one row per slot
+                    placed = False
+                    break
+                order[slot] = i
+        if not placed:
+            order[lo:hi] = lo + np.argsort(codes[lo:hi], kind="mergesort")
+    sorted_codes = np.empty_like(codes)
+    sorted_values = np.empty_like(values)
+    for i in range(codes.shape[0]):
+        sorted_codes[i] = codes[order[i]]
+        sorted_values[i] = values[order[i]]
+    return order, sorted_codes, sorted_values
+
+
+@njit(nogil=True, cache=True)
+def place(order: np.ndarray, sorted_rows: np.ndarray, out: np.ndarray) -> None:
+    """``out[order] = sorted_rows``: values of the sorted rows back at their input rows.
+
+    >>> out = np.empty(3)
+    >>> place(np.array([2, 0, 1]), np.array([1.0, 2.0, 3.0]), out)
+    >>> out.tolist()
+    [2.0, 3.0, 1.0]
+    """
+    for i in range(order.shape[0]):
+        out[order[i]] = sorted_rows[i]
+
+
+@njit(nogil=True, cache=True)
 def fixed_grid(
     codes: np.ndarray,
     offsets: np.ndarray,
