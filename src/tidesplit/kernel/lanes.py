@@ -6,7 +6,7 @@ only their values and weights differ. Laid side by side, point ``t`` of lane ``l
 ``SERIES`` series: one vector load gives a point of each, the distances and tricube weights
 are computed once, and the fitted values come out of one vector division. Each lane does
 exactly the operations of ``loess.fit_at`` and of ``stl._stl_one`` in their order (plain
-IEEE multiplies, adds, divisions and square roots, no fused multiply-add), so every series
+IEEE multiplies, adds and divisions, no fused multiply-add), so every series
 gets the bits it gets alone; ``benchmarks/kernel_loops.py --check`` and
 ``tests/test_kernel_bits.py`` hold that.
 
@@ -109,7 +109,7 @@ class _Vectors:
             b.store(b.fadd(b.load(total), term), total)
 
     def finish(self, moments: tuple, linear: ir.Value, near_range: ir.Value, out: ir.Value):
-        """loess._finish in every lane at once, the same divisions and square root, both
+        """loess._finish in every lane at once, the same divisions and comparisons, both
         branches computed and the right one selected: the fitted values to ``out[:SERIES]``,
         1.0 or 0.0 (fit_at's ok) to ``out[SERIES:]``."""
         b = self.builder

@@ -311,6 +311,9 @@ def _finish(
     """The fitted value from a fit's weighted moments (see ``fit_at``)."""
     if total <= 0.0:
         return 0.0, False
+    # One division by the total, the other moments scaled by its reciprocal, and the
+    # reference routines' test sqrt(spread) > 0.001 * range made on the squares: the same
+    # fit to rounding, for two divisions a fit where there were five and a square root.
     inv_total = 1.0 / total
     mean_y = value * inv_total
     if h > 0.0 and degree > 0:
