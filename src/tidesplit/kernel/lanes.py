@@ -41,7 +41,15 @@ from .layout import (
     COL_TREND_JUMP,
     COL_TREND_SPAN,
 )
-from .loess import FAR, NEAR, _unit_moments, _window, fill_unfitted_strided, subseries_level
+from .loess import (
+    FAR,
+    NEAR,
+    _unit_moments,
+    _window,
+    fill_unfitted_strided,
+    list_window,
+    subseries_level,
+)
 from .median import _median_guided
 
 # Series side by side: four doubles fill a 256-bit register. Eight (a 512-bit register
@@ -179,30 +187,49 @@ def _fit_lanes(typingctx, y, pw, start, stride, count, shift, h_far, h_near, inv
 LISTED_FITS = 2
 
 
+def _weighted_fits(  # type: ignore[no-untyped-def]
+    context, builder, sig, args, fits, count, stride, near_range, out_k
+):
+    """The code of weighted listed fits side by side: ``fits`` holds each fit's window
+    start, list column and ``linear`` flag; arguments 0, 1 and 5 are ``y``, ``pw`` and the
+    lists' table, argument ``out_k`` the output (fit ``f``'s values and flags from
+    ``out[2 * SERIES * f]``). Fits that share a list column read its entry once."""
+    v = _Vectors(builder)
+    y_ptr, pw_ptr, table_ptr, out_ptr = (
+        _data(context, builder, sig, args, k) for k in (0, 1, 5, out_k)
+    )
+    width = builder.extract_value(
+        context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
+    )
+    sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in fits]
+    with cgutils.for_range(builder, count) as loop:
+        entries = {}
+        for f, (start, column, _) in enumerate(fits):
+            if id(column) not in entries:
+                entries[id(column)] = v.listed(
+                    table_ptr, width, builder.add(column, loop.index)
+                )
+            t, tricube, u = entries[id(column)]
+            at = builder.add(start, builder.mul(t, stride))
+            w = builder.fmul(tricube, v.load(pw_ptr, at))
+            v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
+    for f, (_, _, linear) in enumerate(fits):
+        moments = tuple(builder.load(total) for total in sums[f])
+        here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
+        v.finish(moments, linear, near_range, here)
+
+
 def _listed_codegen(fits: int):  # type: ignore[no-untyped-def]
     """The code of ``_fit_lanes_listed`` for ``fits`` fits, ``gap`` elements apart."""
 
     def codegen(context, builder, sig, args):
         _, _, start_v, gap_v, stride_v, _, column_v, count_v, linear_v, near_range_v, _ = args
-        v = _Vectors(builder)
-        y_ptr, pw_ptr, table_ptr, out_ptr = (
-            _data(context, builder, sig, args, k) for k in (0, 1, 5, 10)
-        )
-        width = builder.extract_value(
-            context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
-        )
-        sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in range(fits)]
-        with cgutils.for_range(builder, count_v) as loop:
-            t, tricube, u = v.listed(table_ptr, width, builder.add(column_v, loop.index))
-            j = builder.add(start_v, builder.mul(t, stride_v))
-            for f in range(fits):
-                at = builder.add(j, builder.mul(gap_v, ir.Constant(v.i64, f)))
-                w = builder.fmul(tricube, v.load(pw_ptr, at))
-                v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
-        for f in range(fits):
-            moments = tuple(builder.load(total) for total in sums[f])
-            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
-            v.finish(moments, linear_v, near_range_v, here)
+        i64 = ir.IntType(64)
+        shared = [
+            (builder.add(start_v, builder.mul(gap_v, ir.Constant(i64, f))), column_v, linear_v)
+            for f in range(fits)
+        ]
+        _weighted_fits(context, builder, sig, args, shared, count_v, stride_v, near_range_v, 10)
         return context.get_dummy_value()
 
     return codegen
@@ -244,27 +271,10 @@ def _fit_lanes_clamped_two(typingctx, y, pw, start_a, start_b, stride, table, co
                            linear_a, linear_b, near_range, out)  # fmt: skip
 
     def codegen(context, builder, sig, args):
-        _, _, start_a_v, start_b_v, stride_v, _, column_a_v, column_b_v, count_v = args[:9]
-        linear_a_v, linear_b_v, near_range_v = args[9:12]
-        v = _Vectors(builder)
-        y_ptr, pw_ptr, table_ptr, out_ptr = (
-            _data(context, builder, sig, args, k) for k in (0, 1, 5, 12)
-        )
-        width = builder.extract_value(
-            context.make_array(sig.args[5])(context, builder, args[5]).shape, 1
-        )
-        fits = ((start_a_v, column_a_v), (start_b_v, column_b_v))
-        sums = [[cgutils.alloca_once_value(builder, v.zero) for _ in range(5)] for _ in fits]
-        with cgutils.for_range(builder, count_v) as loop:
-            for f, (start, column) in enumerate(fits):
-                t, tricube, u = v.listed(table_ptr, width, builder.add(column, loop.index))
-                at = builder.add(start, builder.mul(t, stride_v))
-                w = builder.fmul(tricube, v.load(pw_ptr, at))
-                v.add_terms(sums[f], w, v.splat(u), v.load(y_ptr, at))
-        for f, linear in enumerate((linear_a_v, linear_b_v)):
-            moments = tuple(builder.load(total) for total in sums[f])
-            here = builder.gep(out_ptr, [ir.Constant(v.i64, 2 * SERIES * f)])
-            v.finish(moments, linear, near_range_v, here)
+        _, _, start_a, start_b, stride, _, column_a, column_b, count = args[:9]
+        linear_a, linear_b, near_range = args[9:12]
+        own = [(start_a, column_a, linear_a), (start_b, column_b, linear_b)]
+        _weighted_fits(context, builder, sig, args, own, count, stride, near_range, 12)
         return context.get_dummy_value()
 
     return signature, codegen
@@ -456,38 +466,13 @@ def _clamped_lists(
             nleft, nright = 0, n - 1
         else:
             nleft, nright = _window(xs, n, span, half)
-        # _fit's bandwidth and cut-offs
+        # _fit's bandwidth
         h = max(xs - nleft, nright - xs) * 1.0
         if span > n:
             h += (span - n) // 2
-        h_far = FAR * h
-        h_near = NEAR * h
-        inv_h = 1.0 / h if h > 0.0 else 0.0
-        shift = float(xs - nleft)
-        count = 0
-        total = 0.0
-        first = 0.0
-        second = 0.0
-        for t in range(nright - nleft + 1):
-            u = float(t) - shift
-            r = abs(u)
-            if r > h_far:
-                if not whole:
-                    continue
-                w = 0.0
-            elif r <= h_near:
-                w = 1.0
-            else:
-                q = r * inv_h
-                q = 1.0 - q * q * q
-                w = q * q * q
-            table[0, column + count] = t
-            table[1, column + count] = w
-            table[2, column + count] = u
-            total += w
-            first += w * u
-            second += w * u * u
-            count += 1
+        total, first, second, count = list_window(
+            nright - nleft + 1, float(xs - nleft), h, whole, table, column
+        )
         entry = index[slot]
         entry[0] = nleft
         entry[1] = column

@@ -415,6 +415,46 @@ def subseries_level(y: np.ndarray, w: np.ndarray, base: int, stride: int, k: int
 
 
 @njit(nogil=True, cache=True)
+def list_window(
+    points: int, shift: float, h: float, whole: bool, table: np.ndarray, column: int
+) -> tuple[float, float, float, int]:
+    """One fit's list: for the ``points`` points of its window (offset ``t``, distance
+    ``u = t - shift``, bandwidth ``h``) that ``fit_at`` weighs, in its order, the offset,
+    the tricube weight (1.0 where ``fit_at`` takes the point weight alone) and ``u``, into
+    ``table[:, column:]``; with ``whole`` the points beyond the cut-off too, with weight 0.
+    Returns the sums of the weights and of their first and second moments, as ``fit_at``
+    accumulates them with unit point weights, and the count listed."""
+    h_far = FAR * h
+    h_near = NEAR * h
+    inv_h = 1.0 / h if h > 0.0 else 0.0
+    total = 0.0
+    first = 0.0
+    second = 0.0
+    count = 0
+    for t in range(points):
+        u = float(t) - shift
+        r = abs(u)
+        if r > h_far:
+            if not whole:
+                continue
+            w = 0.0
+        elif r <= h_near:
+            w = 1.0  # fit_at takes the point weight itself: 1.0
+        else:
+            q = r * inv_h
+            q = 1.0 - q * q * q
+            w = q * q * q
+        total += w
+        first += w * u
+        second += w * u * u
+        table[0, column + count] = t
+        table[1, column + count] = w
+        table[2, column + count] = u
+        count += 1
+    return total, first, second, count
+
+
+@njit(nogil=True, cache=True)
 def _unit_moments(span: int, table: np.ndarray) -> tuple[float, float, float, int]:
     """The interior fits' points and tricube weights, and their moments for unit weights.
 
@@ -428,32 +468,7 @@ def _unit_moments(span: int, table: np.ndarray) -> tuple[float, float, float, in
     """
     half = (span + 1) // 2
     h = float(max(half - 1, span - half))
-    h_far = FAR * h
-    h_near = NEAR * h
-    inv_h = 1.0 / h if h > 0.0 else 0.0
-    total = 0.0
-    first = 0.0
-    second = 0.0
-    count = 0
-    for t in range(span):
-        u = float(t - (half - 1))
-        r = abs(u)
-        if r > h_far:
-            continue
-        if r <= h_near:
-            w = 1.0  # fit_at takes the point weight itself: 1.0
-        else:
-            q = r * inv_h
-            q = 1.0 - q * q * q
-            w = q * q * q * 1.0
-        total += w
-        first += w * u
-        second += w * u * u
-        table[0, count] = t
-        table[1, count] = w
-        table[2, count] = u
-        count += 1
-    return total, first, second, count
+    return list_window(span, float(half - 1), h, False, table, 0)
 
 
 @njit(nogil=True, cache=True)
