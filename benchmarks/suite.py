@@ -14,8 +14,10 @@ parameters (timed on a subset, scaled to all series); the engine floor, the same
 UDF that hands the values straight back in the same result shape; and the minimal floor,
 the least any split must cost (each series' values listed in time order, a UDF that hands
 back three lists of their sizes, the rows unnested with key, time, value, trend, seasonal
-and remainder). Before timing, each case checks that our components equal statsmodels' to
-1e-8 on the subset. The data are invented by ``make_batch``.
+and remainder), next to our SQL selecting those same columns (DuckDB then leaves the
+others out: neither unnested nor stored). Before timing, each case checks that our
+components equal statsmodels' to 1e-8 on the subset. The data are invented by
+``make_batch``.
 """
 
 from __future__ import annotations
@@ -250,16 +252,25 @@ def minimal_sql() -> str:
     )
 
 
-def sql_text(case: Case) -> str:
+# the minimal floor's columns, under our names
+MINIMAL_COLUMNS = "id, t, v, trend, seasonal, remainder"
+
+
+def sql_text(case: Case, columns: str = "*") -> str:
+    """Our split of the case's table into ``out``, every column or the ones named."""
     args = ", ".join(
         f"{k} := {str(v).lower() if isinstance(v, bool) else v}" for k, v in case.params.items()
     )
     macro = "tide_split" if len(case.periods) == 1 else "tide_split_multi"
-    return f"CREATE OR REPLACE TABLE out AS SELECT * FROM {macro}(series, 'id', 't', 'v', {args})"
+    return (
+        f"CREATE OR REPLACE TABLE out AS SELECT {columns} "
+        f"FROM {macro}(series, 'id', 't', 'v', {args})"
+    )
 
 
 def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
-    """One measurement in this process: mode kernel, sql, floor, minimal or statsmodels."""
+    """One measurement in this process: mode kernel, sql, floor, minimal, same_columns (our
+    SQL with the minimal floor's columns) or statsmodels."""
     out: dict[str, Any] = {}
     if case.on_disk:
         return measure_on_disk(case, runs)
@@ -334,7 +345,12 @@ def measure(case: Case, mode: str, runs: int) -> dict[str, Any]:
         con.execute("CREATE TABLE series AS SELECT * FROM series_src")
         con.unregister("series_src")
         del table
-        sql = minimal_sql() if mode == "minimal" else sql_text(case)
+        if mode == "minimal":
+            sql = minimal_sql()
+        elif mode == "same_columns":
+            sql = sql_text(case, MINIMAL_COLUMNS)
+        else:
+            sql = sql_text(case)
         out["seconds"] = best_of(runs, lambda: con.execute(sql))
         rows = con.sql("SELECT count(*) FROM out").fetchall()[0][0]
         assert rows == case.series * case.points, rows
@@ -430,15 +446,16 @@ def main() -> None:
 
     print(
         f"tidesplit benchmark suite, {os.cpu_count()} cores; seconds are the best of "
-        f"{args.runs} runs; SQL, floor and minimal floor the median of {args.rounds} "
-        "alternating rounds, SQL / floor and SQL / minimal floor the medians of the rounds' "
-        "ratios with their ranges; statsmodels is timed per series on a subset and scaled.\n"
+        f"{args.runs} runs; SQL, floor, minimal floor and cols (our SQL selecting the "
+        f"minimal floor's columns) the median of {args.rounds} alternating rounds, SQL / "
+        "floor and cols / minimal floor the medians of the rounds' ratios with their "
+        "ranges; statsmodels is timed per series on a subset and scaled.\n"
     )
     header = (
         f"{'case':<34}{'points':>12}{'kernel s':>10}{'SQL s':>9}{'floor s':>9}"
         f"{'statsm. s':>11}{'kernel pts/s':>14}{'x statsm.':>10}{'SQL/floor':>10}"
         f"{'kernel MiB':>11}{'SQL MiB':>9}{'max diff':>10}{'SQL/floor range':>17}"
-        f"{'min floor s':>13}{'SQL/min floor':>15}{'range':>11}"
+        f"{'min floor s':>13}{'cols s':>8}{'cols/min floor':>16}{'range':>11}"
     )
     print(header)
     for case in cases(args.quick):
@@ -453,14 +470,15 @@ def main() -> None:
                 in_child(case, "sql", args.runs),
                 in_child(case, "floor", args.runs),
                 in_child(case, "minimal", args.runs),
+                in_child(case, "same_columns", args.runs),
             )
             for _ in range(max(1, args.rounds))
         ]
-        ratios = sorted(s["seconds"] / f["seconds"] for s, f, _ in rounds)
-        least_ratios = sorted(s["seconds"] / m["seconds"] for s, _, m in rounds)
+        ratios = sorted(s["seconds"] / f["seconds"] for s, f, _, _ in rounds)
+        least_ratios = sorted(c["seconds"] / m["seconds"] for _, _, m, c in rounds)
         middle = len(rounds) // 2
-        sql, floor, least = (
-            sorted((r[k] for r in rounds), key=lambda r: r["seconds"])[middle] for k in range(3)
+        sql, floor, least, same = (
+            sorted((r[k] for r in rounds), key=lambda r: r["seconds"])[middle] for k in range(4)
         )
         ratio_median = ratios[middle]
         least_median = least_ratios[middle]
@@ -477,7 +495,7 @@ def main() -> None:
             f"{ratio:>10}{ratio_median:>10.2f}"
             f"{kernel['peak_mib']:>11.0f}{sql['peak_mib']:>9.0f}{diff:>10}"
             f"{f'{ratios[0]:.2f}-{ratios[-1]:.2f}':>17}"
-            f"{least['seconds']:>13.2f}{least_median:>15.2f}"
+            f"{least['seconds']:>13.2f}{same['seconds']:>8.2f}{least_median:>16.2f}"
             f"{f'{least_ratios[0]:.2f}-{least_ratios[-1]:.2f}':>11}"
         )
     if args.scale:

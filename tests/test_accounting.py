@@ -198,6 +198,28 @@ def test_python_twins_account_for_every_row(fleet_in_one_call):
     assert len(ahead) == sum(3 if k in fleet.grid else 1 for k in fleet.kinds)
 
 
+@pytest.mark.parametrize(
+    "macro, args",
+    [
+        ("tide_split", f"period := {PERIOD}, fill_gaps := true, robust := true"),
+        ("tide_split_multi", f"periods := [2, {PERIOD}]"),
+    ],
+)
+def test_a_few_columns_are_the_rows_of_every_column(fleet_in_one_call, macro, args):
+    """Selecting some columns lets DuckDB leave the others out of the unnest (README,
+    Performance): the rows and their values stay those of every column, unsplit keys too."""
+    con, _, _ = fleet_in_one_call
+    call = f"{macro}(fleet, {KEYS}, 't', 'v', {args}, on_error := 'keep')"
+    con.execute(f"CREATE TABLE every_column AS SELECT * FROM {call}")
+    few = "shop, item, t, v, trend, seasonal, remainder"
+    chosen = con.sql(f"SELECT {few} FROM {call} ORDER BY ALL").df()
+    stored = con.sql(f"SELECT {few} FROM every_column ORDER BY ALL").df()
+    rows = con.execute("SELECT count(*) FROM every_column").fetchone()[0]
+    assert len(chosen) == len(stored) == rows
+    assert stored["trend"].isna().any() and stored["trend"].notna().any()  # both kinds of key
+    pd.testing.assert_frame_equal(chosen, stored)
+
+
 def test_across_udf_calls_more_than_2048_keys():
     """2,500 keys arrive in two UDF calls (DuckDB hands over at most 2,048 rows per call)."""
     fleet = make_fleet(np.random.default_rng(9), 2500, "date", bad_share=0.05)

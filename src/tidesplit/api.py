@@ -280,12 +280,18 @@ class _Table:
         self.starts = np.flatnonzero(changed)
         self.offsets = np.append(self.starts, len(frame)).astype(np.int64)
         self.values = pd.to_numeric(self.frame[value]).to_numpy(dtype=np.float64, na_value=np.nan)
-        self.outside = np.column_stack(
-            [
-                self.frame[f"__outside{i}"].astype("Float64").to_numpy(np.float64, na_value=np.nan)
-                for i in range(len(outside))
-            ]
-        ) if outside else None
+        self.outside = (
+            np.column_stack(
+                [
+                    self.frame[f"__outside{i}"]
+                    .astype("Float64")
+                    .to_numpy(np.float64, na_value=np.nan)
+                    for i in range(len(outside))
+                ]
+            )
+            if outside
+            else None
+        )
         self.first_rows = self.frame.iloc[self.starts][keys]
         self.keys, self.time, self.value = keys, time, value
         self.status = [OK] * self.starts.size

@@ -178,10 +178,16 @@ class _Call:
             seen = result.source >= 0
             result.source[seen] = self.order[result.source[seen]]
             return result
-        for name in (*COMPONENTS, "inserted"):
-            moved = np.empty_like(getattr(result, name))
-            grid.place(self.order, getattr(result, name), moved)
-            setattr(result, name, moved)
+        # each array once: without effects, calendar_effect and outside_effect are one
+        # array and adjusted_season_only is adjusted; inserted is all false (no fill_gaps)
+        # and so the same in any order
+        moved_by_id: dict[int, np.ndarray] = {}
+        for name in COMPONENTS:
+            array = getattr(result, name)
+            if id(array) not in moved_by_id:
+                moved_by_id[id(array)] = np.empty_like(array)
+                grid.place(self.order, array, moved_by_id[id(array)])
+            setattr(result, name, moved_by_id[id(array)])
         if result.seasonal_parts is not None:
             parts = np.empty_like(result.seasonal_parts)
             for k in range(parts.shape[0]):

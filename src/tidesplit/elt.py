@@ -177,9 +177,13 @@ def read_named_days(path: str) -> list[tuple[Any, str]]:
     if not os.path.isfile(path):
         raise ParamError(f"no special-days file {path}")
     try:
-        return duckdb.connect().sql(
-            f"SELECT CAST(day AS DATE), CAST(name AS VARCHAR) FROM {literal(path)} ORDER BY ALL"
-        ).fetchall()
+        return (
+            duckdb.connect()
+            .sql(
+                f"SELECT CAST(day AS DATE), CAST(name AS VARCHAR) FROM {literal(path)} ORDER BY ALL"
+            )
+            .fetchall()
+        )
     except duckdb.Error as error:
         raise ParamError(
             f"the special-days file {path} must hold columns day (dates) and name (text): "
@@ -266,10 +270,14 @@ def _sql_value(value: Any) -> str:
     if items and all(isinstance(v, tuple) and len(v) == 2 for v in items):
         import numpy as np
 
-        return "[" + ", ".join(
-            f"{{'day': DATE '{np.datetime64(int(day), 'D')}', 'name': {_sql_value(name)}}}"
-            for day, name in items
-        ) + "]"
+        return (
+            "["
+            + ", ".join(
+                f"{{'day': DATE '{np.datetime64(int(day), 'D')}', 'name': {_sql_value(name)}}}"
+                for day, name in items
+            )
+            + "]"
+        )
     return "[" + ", ".join(_sql_value(v) for v in items) + "]::DOUBLE[]"
 
 

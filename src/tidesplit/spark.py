@@ -330,9 +330,7 @@ def _run(
         # the fronts take binary numbers; decimals become doubles, as in the SQL functions
         frame = frame.withColumn(value_field.name, _column(value_field.name).cast("double"))
         value_field = st.StructField(value_field.name, st.DoubleType())
-    outside = [
-        _resolve(frame, name, "outside") for name in settings.get("outside_columns") or ()
-    ]
+    outside = [_resolve(frame, name, "outside") for name in settings.get("outside_columns") or ()]
     clashes = answers.outside_clashes(keys, time_field.name, value_field.name,
                                       [f.name for f in outside])  # fmt: skip
     if clashes:

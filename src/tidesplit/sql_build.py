@@ -78,10 +78,17 @@ _KIND_CHECKS = "\n".join(
         ("__tide_check_number", f'^({NUMBER_TYPES}|"NULL")$', "a number"),
         ("__tide_check_flag", '^(BOOLEAN|"NULL")$', "true or false"),
         ("__tide_check_text", '^(VARCHAR|"NULL")$', "text"),
-        ("__tide_check_numbers", f'^((({NUMBER_TYPES})|"NULL")\\[\\]|"NULL")$', "a list of numbers"),
+        (
+            "__tide_check_numbers",
+            f'^((({NUMBER_TYPES})|"NULL")\\[\\]|"NULL")$',
+            "a list of numbers",
+        ),
         ("__tide_check_names", '^((VARCHAR|"NULL")\\[\\]|"NULL")$', "a list of column names"),
-        ("__tide_check_days", '^(STRUCT\\("day" DATE, "name" VARCHAR\\)\\[\\]|"NULL"\\[\\]|"NULL")$',
-         "a list of {day DATE, name VARCHAR}"),
+        (
+            "__tide_check_days",
+            '^(STRUCT\\("day" DATE, "name" VARCHAR\\)\\[\\]|"NULL"\\[\\]|"NULL")$',
+            "a list of {day DATE, name VARCHAR}",
+        ),
     )
 )
 

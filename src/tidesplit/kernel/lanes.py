@@ -206,9 +206,7 @@ def _weighted_fits(  # type: ignore[no-untyped-def]
         entries = {}
         for f, (start, column, _) in enumerate(fits):
             if id(column) not in entries:
-                entries[id(column)] = v.listed(
-                    table_ptr, width, builder.add(column, loop.index)
-                )
+                entries[id(column)] = v.listed(table_ptr, width, builder.add(column, loop.index))
             t, tricube, u = entries[id(column)]
             at = builder.add(start, builder.mul(t, stride))
             w = builder.fmul(tricube, v.load(pw_ptr, at))
