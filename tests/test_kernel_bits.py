@@ -237,9 +237,10 @@ def noisy_series(rng: np.random.Generator, n: int, period: int, missing: bool) -
 def test_series_of_one_shape_side_by_side_give_the_bits_of_each_alone():
     """Series of one length and settings run several at a time, one per vector lane
     (kernel.lanes); shuffled among other shapes, with missing points, robust or not, a fixed
-    seasonal pattern (span 0), and a group that does not fill the lanes, each series gets
-    the bits it gets split alone."""
-    from tidesplit.kernel.lanes import SERIES
+    seasonal pattern (span 0), and shapes whose last few series do not fill the lanes (run
+    in lanes with the last repeated, or one by one), each series gets the bits it gets
+    split alone."""
+    from tidesplit.kernel.lanes import PADDED_FROM, SERIES
 
     rng = np.random.default_rng(11)
     shapes = [
@@ -249,9 +250,10 @@ def test_series_of_one_shape_side_by_side_give_the_bits_of_each_alone():
         (500, settings_row(24, 9, 41, True, (1, 5, 3))),
         (61, settings_row(4, 35, 45, False, (3, 1, 2))),
     ]
+    left_over = (0, 1, PADDED_FROM - 1, PADDED_FROM, SERIES - 1)
     picks = []
     for k in range(len(shapes)):
-        picks += [k] * (2 * SERIES + k)  # groups that fill the lanes and leave some over
+        picks += [k] * (2 * SERIES + left_over[k])  # full groups, then a few left over
     picks = rng.permutation(picks)
     series = [noisy_series(rng, shapes[k][0], shapes[k][1][COL_PERIOD], i % 3 == 0)
               for i, k in enumerate(picks)]  # fmt: skip
@@ -274,17 +276,17 @@ def test_series_of_one_shape_side_by_side_give_the_bits_of_each_alone():
 
 def test_several_periods_side_by_side_give_the_bits_of_each_alone():
     """MSTL's rounds for series of one shape run side by side too; robust and not, with
-    missing points and a group that does not fill the lanes."""
-    from tidesplit.kernel.lanes import SERIES
+    missing points and a few series left over (one by one, or in lanes padded)."""
+    from tidesplit.kernel.lanes import PADDED_FROM, SERIES
     from tidesplit.kernel.mstl import mstl_batch_serial
 
     rng = np.random.default_rng(12)
-    for robust in (False, True):
+    for robust, left_over in ((False, PADDED_FROM - 1), (True, PADDED_FROM + 1)):
         rows = np.array(
             [settings_row(7, 7, 15, robust, (1, 2, 1)), settings_row(30, 11, 61, robust, (2, 6, 3))]
         )
         n = 400
-        series = [noisy_series(rng, n, 7, s % 2 == 0) for s in range(SERIES + 3)]
+        series = [noisy_series(rng, n, 7, s % 2 == 0) for s in range(SERIES + left_over)]
         for y in series:
             y += 4 * np.cos(2 * np.pi * np.arange(n) / 30)
         values = np.concatenate(series)

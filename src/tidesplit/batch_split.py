@@ -327,7 +327,7 @@ def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     A compiled kernel does not return to Python until it is done, so Python can raise a
     KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
     stoppable. The least count keeps long series (an hourly year, robust: ten of them make
-    the work) running side by side in the kernel's lanes, four of one shape at a time, on
+    the work) running side by side in the kernel's lanes, eight of one shape at a time, on
     every thread. A series' numbers do not depend on the launch it falls in.
 
     >>> _launches(np.array([3, 4, 5]), np.array([1, 1, 1]))

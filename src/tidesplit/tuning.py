@@ -36,7 +36,7 @@ PERIOD_PEAK_FLOOR = 0.3
 LAUNCH_WORK = 4_000_000
 
 # Series per launch at least (but the last): enough for every thread to run the kernel's
-# side-by-side groups (kernel/lanes.py: four series of one shape at a time), where a few
+# side-by-side groups (kernel/lanes.py: eight series of one shape at a time), where a few
 # long series would make LAUNCH_WORK alone.
 LAUNCH_SERIES = 16
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from numba import get_num_threads, njit, prange
 
-from .lanes import LONGEST, SERIES, stl_lanes
+from .lanes import LONGEST, PADDED_FROM, SERIES, lane_group, stl_lanes
 from .lanes import buffer_size as lanes_buffer_size
 from .layout import COL_ACTIVE, COL_PERIOD
 from .stl import _stl_one, buffer_size, chunk_edge, same_shape_groups
@@ -99,13 +99,13 @@ def _mstl_range(
         end = starts[g + 1]
         n = offsets[order[begin] + 1] - offsets[order[begin]]
         # series of one length and settings (hence one number of periods) side by side
-        while end - begin >= SERIES and n <= LONGEST:
-            group = order[begin : begin + SERIES]
+        while end - begin >= PADDED_FROM and n <= LONGEST:
+            group = lane_group(order, begin, end)
             _mstl_lanes(
                 values, offsets, settings, n_periods[group[0]], rounds, group, trend, seasonal,
                 weight, side, buf,
             )  # fmt: skip
-            begin += SERIES
+            begin = min(begin + SERIES, end)
         for s in order[begin:end]:
             lo = offsets[s]
             hi = offsets[s + 1]

@@ -13,7 +13,7 @@ import math
 import numpy as np
 from numba import get_num_threads, njit, prange
 
-from .lanes import LONGEST, SERIES, stl_lanes
+from .lanes import LONGEST, PADDED_FROM, SERIES, lane_group, stl_lanes
 from .lanes import buffer_size as lanes_buffer_size
 
 # Columns of the settings matrix (defined apart, so that the settings can be built without
@@ -447,7 +447,8 @@ def _stl_range(
     weight: np.ndarray,
 ) -> None:
     """Series ``first .. stop-1`` of the batch: series of one shape ``SERIES`` at a time
-    side by side (``lanes.stl_lanes``), the rest one by one; scratch reused throughout."""
+    side by side (``lanes.stl_lanes``; a shape's last few too, from ``PADDED_FROM``), the
+    rest one by one; scratch reused throughout."""
     need = 0
     for s in range(first, stop):
         if settings[s, COL_ACTIVE]:
@@ -466,8 +467,8 @@ def _stl_range(
         begin = starts[g]
         end = starts[g + 1]
         n = offsets[order[begin] + 1] - offsets[order[begin]]
-        while end - begin >= SERIES and n <= LONGEST:
-            group = order[begin : begin + SERIES]
+        while end - begin >= PADDED_FROM and n <= LONGEST:
+            group = lane_group(order, begin, end)
             y = side[0, : n * SERIES]
             for lane in range(SERIES):
                 lo = offsets[group[lane]]
@@ -484,7 +485,7 @@ def _stl_range(
                     trend[lo + i] = side[1, at]
                     seasonal[lo + i] = side[2, at]
                     weight[lo + i] = side[3, at]
-            begin += SERIES
+            begin = min(begin + SERIES, end)
         for s in order[begin:end]:
             lo = offsets[s]
             hi = offsets[s + 1]
