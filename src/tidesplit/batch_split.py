@@ -10,11 +10,13 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numba import get_num_threads
 
 from . import effects as effects_front
 from . import memory, span_choice, transform
 from .errors import ParamError, SplitError
 from .kernel import checks, linear, regression
+from .kernel.lanes import SERIES
 from .kernel.layout import (
     COL_ACTIVE,
     COL_INNER,
@@ -322,7 +324,8 @@ def _run_kernel(
 
 def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each,
-    and of LAUNCH_SERIES series at least (but the last).
+    and of LAUNCH_SERIES series at least (but the last), or a lane group per thread where
+    numba has more threads than that fills.
 
     A compiled kernel does not return to Python until it is done, so Python can raise a
     KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
@@ -336,13 +339,14 @@ def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     work = lengths * passes
     if work.size == 0:
         return []
+    least = max(LAUNCH_SERIES, SERIES * get_num_threads())
     before = np.cumsum(work) - work
     ids = before // LAUNCH_WORK
     edges = [0]
     for cut in (np.flatnonzero(np.diff(ids)) + 1).tolist():
-        if cut - edges[-1] >= LAUNCH_SERIES:
+        if cut - edges[-1] >= least:
             edges.append(cut)
-    if work.size - edges[-1] < LAUNCH_SERIES and len(edges) > 1:
+    if work.size - edges[-1] < least and len(edges) > 1:
         edges.pop()  # a short tail joins the launch before it
     edges.append(work.size)
     return [(edges[i], edges[i + 1]) for i in range(len(edges) - 1)]

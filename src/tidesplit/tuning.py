@@ -37,7 +37,8 @@ LAUNCH_WORK = 4_000_000
 
 # Series per launch at least (but the last): enough for every thread to run the kernel's
 # side-by-side groups (kernel/lanes.py: eight series of one shape at a time), where a few
-# long series would make LAUNCH_WORK alone.
+# long series would make LAUNCH_WORK alone. Two threads here; with more, a launch takes a
+# group per thread (batch_split._launches).
 LAUNCH_SERIES = 16
 
 # DuckDB runs UDF calls (up to 2,048 series each) on its own threads, so a call normally
