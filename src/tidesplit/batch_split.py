@@ -324,8 +324,8 @@ def _run_kernel(
 
 def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each,
-    and of LAUNCH_SERIES series at least (but the last), or a lane group per thread where
-    numba has more threads than that fills.
+    and (but the last) of LAUNCH_SERIES series at least, or of one lane group per numba
+    thread where that is more.
 
     A compiled kernel does not return to Python until it is done, so Python can raise a
     KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
