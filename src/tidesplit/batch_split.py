@@ -325,7 +325,7 @@ def _run_kernel(
 def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     """Runs of consecutive series, ``(first, stop)``, of about LAUNCH_WORK point-passes each,
     and (but the last) of LAUNCH_SERIES series at least, or of one lane group per numba
-    thread where that is more.
+    thread where that is more, in whole lane groups per thread.
 
     A compiled kernel does not return to Python until it is done, so Python can raise a
     KeyboardInterrupt (Ctrl-C) only between launches; bounded launches make a long batch
@@ -339,13 +339,20 @@ def _launches(lengths: np.ndarray, passes: np.ndarray) -> list[tuple[int, int]]:
     work = lengths * passes
     if work.size == 0:
         return []
-    least = max(LAUNCH_SERIES, SERIES * get_num_threads())
+    # a launch (but the last) holds a whole number of lane groups per thread, so that the
+    # threads' shares come out even: 21 long series on two threads were a group on one
+    # and two on the other, a third of the time with a core idle
+    group = SERIES * get_num_threads()
+    least = max(LAUNCH_SERIES, group)
     before = np.cumsum(work) - work
     ids = before // LAUNCH_WORK
     edges = [0]
     for cut in (np.flatnonzero(np.diff(ids)) + 1).tolist():
-        if cut - edges[-1] >= least:
-            edges.append(cut)
+        size = cut - edges[-1]
+        if size >= least:
+            rounded = edges[-1] - (-size // group) * group
+            if rounded < work.size:
+                edges.append(rounded)
     if work.size - edges[-1] < least and len(edges) > 1:
         edges.pop()  # a short tail joins the launch before it
     edges.append(work.size)
