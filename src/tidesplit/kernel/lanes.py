@@ -53,9 +53,10 @@ from .loess import (
 from .median import _median_guided
 
 # Series side by side: eight doubles fill a 512-bit register. Against four (a 256-bit
-# register), measured with kernel_loops.py: monthly robust 1.11x, 5% missing 1.23x, hourly
-# robust 1.03x, hourly plain 0.93x (eight lanes of an hourly year's scratch outgrow the
-# 2 MiB second-level cache). Four was the faster while every fit rebuilt its lists.
+# register), measured with kernel_loops.py (one thread): monthly robust 1.13x, 5% missing
+# 1.26x, hourly robust 1.04x, hourly plain 0.94x (likely the scratch: eight lanes of an
+# hourly year outgrow the 2 MiB second-level cache). Four was the faster while every fit
+# rebuilt its lists.
 SERIES = 8
 
 # A shape's last few series fill the lanes when at least this many are left, the last one
